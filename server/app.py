@@ -1,0 +1,78 @@
+"""Application factory: settings, database, templates, routers, guards and error pages."""
+
+from __future__ import annotations
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse, Response
+from fastapi.staticfiles import StaticFiles
+from fastapi.templating import Jinja2Templates
+from sqlalchemy.exc import OperationalError
+
+from server.config import PROJECT_ROOT, Settings
+from server.db import make_engine
+from server.errors import LoadlineError
+from server.routes import api_initiatives, api_periods, api_teams, health, pages
+from server.security import RequestGuard
+from server.templating import configure_templates
+from server.validation import api_errors
+
+API_DESCRIPTION = """
+Loadline's JSON API. Efforts and capacities are person-days. Plans are estimates, not
+promises; Loadline plans work and never rates people. Availability is stored as days only.
+"""
+
+
+def create_app(settings: Settings | None = None) -> FastAPI:
+    """Build a Loadline application; each call has its own engine (tests build many)."""
+    settings = settings or Settings.from_env()
+    app = FastAPI(title="Loadline", version="0.1.0", description=API_DESCRIPTION)
+    app.state.settings = settings
+    app.state.engine = make_engine(settings)
+    templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
+    configure_templates(templates)
+    app.state.templates = templates
+
+    app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
+    for module in (health, api_teams, api_periods, api_initiatives, pages):
+        app.include_router(module.router)
+    _add_error_handlers(app)
+    app.add_middleware(
+        RequestGuard,  # type: ignore[arg-type]
+        secret=settings.secret_key,
+        max_body_bytes=settings.max_body_bytes,
+    )
+    return app
+
+
+def _wants_json(request: Request) -> bool:
+    return request.url.path.startswith("/api/") or "application/json" in request.headers.get(
+        "accept", ""
+    )
+
+
+def _add_error_handlers(app: FastAPI) -> None:
+    @app.exception_handler(RequestValidationError)
+    async def _validation(request: Request, exc: RequestValidationError) -> Response:
+        return JSONResponse({"detail": api_errors(exc.errors())}, status_code=422)
+
+    @app.exception_handler(LoadlineError)
+    async def _domain(request: Request, exc: LoadlineError) -> Response:
+        if _wants_json(request):
+            return JSONResponse({"detail": exc.detail()}, status_code=exc.status_code)
+        return request.app.state.templates.TemplateResponse(
+            request, "error.html", {"message": exc.message}, status_code=exc.status_code
+        )
+
+    @app.exception_handler(OperationalError)
+    async def _database_unavailable(request: Request, exc: OperationalError) -> Response:
+        # A locked or full database: say so plainly; nothing was stored.
+        reason = str(exc.orig) if exc.orig is not None else "database error"
+        message = (
+            f"The database could not complete the change ({reason}). Nothing was saved; try again."
+        )
+        if _wants_json(request):
+            return JSONResponse({"detail": {"message": message}}, status_code=503)
+        return request.app.state.templates.TemplateResponse(
+            request, "error.html", {"message": message}, status_code=503
+        )

@@ -1,0 +1,1 @@
+"""Planning: turns stored teams, periods and initiatives into selector problems and plans."""

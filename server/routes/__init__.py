@@ -1,0 +1,1 @@
+"""HTTP routes: JSON API modules (api_*) and server-rendered pages."""

@@ -1,0 +1,54 @@
+"""JSON API: periods."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+from fastapi import APIRouter, status
+
+from server.deps import SessionDep
+from server.models import Period
+from server.routes.responses import ERRORS
+from server.schemas import PeriodCreate, PeriodPublic, PeriodUpdate
+from server.store import periods as store
+
+router = APIRouter(prefix="/api/v1", tags=["periods"], responses=ERRORS)
+
+
+def period_public(db_period: Period) -> PeriodPublic:
+    return PeriodPublic(
+        id=db_period.id or 0,
+        name=db_period.name,
+        kind=db_period.kind,
+        start_date=db_period.start_date,
+        end_date=db_period.end_date,
+        weekmask=db_period.weekmask,
+        non_working_dates=[dt.date.fromisoformat(d) for d in db_period.non_working_dates],
+        working_days=store.period_working_days(db_period),
+    )
+
+
+@router.get("/periods", response_model=list[PeriodPublic])
+def list_periods(session: SessionDep) -> list[PeriodPublic]:
+    return [period_public(p) for p in store.list_periods(session)]
+
+
+@router.post("/periods", response_model=PeriodPublic, status_code=status.HTTP_201_CREATED)
+def create_period(period_in: PeriodCreate, session: SessionDep) -> PeriodPublic:
+    return period_public(store.create_period(session, period_in=period_in))
+
+
+@router.get("/periods/{period_id}", response_model=PeriodPublic)
+def read_period(period_id: int, session: SessionDep) -> PeriodPublic:
+    return period_public(store.get_period(session, period_id=period_id))
+
+
+@router.patch("/periods/{period_id}", response_model=PeriodPublic)
+def update_period(period_id: int, period_in: PeriodUpdate, session: SessionDep) -> PeriodPublic:
+    return period_public(store.update_period(session, period_id=period_id, period_in=period_in))
+
+
+@router.delete("/periods/{period_id}", status_code=status.HTTP_204_NO_CONTENT)
+def delete_period(period_id: int, session: SessionDep) -> None:
+    """Delete a period; its initiatives move to the unscheduled backlog."""
+    store.delete_period(session, period_id=period_id)

@@ -1,0 +1,450 @@
+"""Server-rendered pages: home, team (members, availability, capacity), initiative lists.
+
+Routes stay thin: they parse the form into the API's own input models, call the persistence
+layer, and on a refused value re-show the same form with the values kept and the message beside
+the field.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Request
+from fastapi.responses import RedirectResponse, Response
+from starlette.datastructures import FormData
+
+from server.deps import SessionDep, TemplatesDep
+from server.errors import LoadlineError
+from server.planning.team_capacity import capacity_of
+from server.schemas import (
+    INITIATIVE_STATES,
+    AvailabilityCreate,
+    CapacitySettingsIn,
+    InitiativeCreate,
+    InitiativeUpdate,
+    MemberCreate,
+    PeriodCreate,
+    TeamCreate,
+)
+from server.store import initiatives as initiative_store
+from server.store import periods as period_store
+from server.store import teams as team_store
+from server.validation import parse_form
+
+router = APIRouter(include_in_schema=False)
+
+
+def _see_other(url: str) -> RedirectResponse:
+    return RedirectResponse(url, status_code=303)
+
+
+def _text(form: FormData, name: str) -> str:
+    value = form.get(name, "")
+    return value.strip() if isinstance(value, str) else ""
+
+
+def _optional(form: FormData, name: str) -> str | None:
+    return _text(form, name) or None
+
+
+def _render(
+    templates: TemplatesDep,
+    request: Request,
+    name: str,
+    context: dict[str, Any],
+    status_code: int = 200,
+) -> Response:
+    return templates.TemplateResponse(request, name, context, status_code=status_code)
+
+
+def _store_or_errors(action: Any) -> tuple[Any, dict[str, str]]:
+    """Run a persistence call; a refused change becomes a message beside its field."""
+    try:
+        return action(), {}
+    except LoadlineError as exc:
+        return None, {exc.field or "form": exc.message}
+
+
+# --- home --------------------------------------------------------------------------------
+
+
+def _home_context(session: SessionDep) -> dict[str, Any]:
+    periods = period_store.list_periods(session)
+    return {
+        "teams": team_store.list_teams(session),
+        "periods": periods,
+        "working_days": {p.id: period_store.period_working_days(p) for p in periods},
+        "team_form": {},
+        "team_errors": {},
+        "period_form": {"kind": "sprint", "weekmask": "1111100"},
+        "period_errors": {},
+    }
+
+
+@router.get("/")
+def home(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
+    return _render(templates, request, "home.html", _home_context(session))
+
+
+@router.post("/teams")
+async def add_team(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
+    form = await request.form()
+    values = {"name": _text(form, "name")}
+    team_in, errors = parse_form(TeamCreate, values)
+    if team_in is not None:
+        db_team, errors = _store_or_errors(lambda: team_store.create_team(session, team_in=team_in))
+        if db_team is not None:
+            return _see_other(f"/teams/{db_team.id}")
+    context = _home_context(session) | {"team_form": values, "team_errors": errors}
+    return _render(templates, request, "home.html", context, status_code=422)
+
+
+def _period_values(form: FormData) -> dict[str, Any]:
+    raw_dates = _text(form, "non_working_dates").replace(",", " ").split()
+    return {
+        "name": _text(form, "name"),
+        "kind": _text(form, "kind"),
+        "start_date": _text(form, "start_date"),
+        "end_date": _text(form, "end_date"),
+        "weekmask": _text(form, "weekmask") or "1111100",
+        "non_working_dates": raw_dates,
+    }
+
+
+@router.post("/periods")
+async def add_period(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
+    form = await request.form()
+    values = _period_values(form)
+    period_in, errors = parse_form(PeriodCreate, values)
+    if period_in is not None:
+        db_period, errors = _store_or_errors(
+            lambda: period_store.create_period(session, period_in=period_in)
+        )
+        if db_period is not None:
+            return _see_other("/")
+    shown = values | {"non_working_dates": _text(form, "non_working_dates")}
+    context = _home_context(session) | {"period_form": shown, "period_errors": _flatten(errors)}
+    return _render(templates, request, "home.html", context, status_code=422)
+
+
+def _flatten(errors: dict[str, str]) -> dict[str, str]:
+    """Name list items by their list: 'non_working_dates.2' -> 'non_working_dates'."""
+    flat: dict[str, str] = {}
+    for field, message in errors.items():
+        head = field.split(".")[0]
+        flat.setdefault(head, message)
+    return flat
+
+
+# --- team page ---------------------------------------------------------------------------
+
+
+def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> dict[str, Any]:
+    db_team = team_store.get_team(session, team_id=team_id)
+    periods = period_store.list_periods(session)
+    if period_id is None and periods:
+        period_id = periods[0].id
+    period = next((p for p in periods if p.id == period_id), None)
+    capacity = None
+    settings = None
+    availability: dict[int, Any] = {}
+    if period is not None:
+        capacity = capacity_of(session, team_id=team_id, period_id=period.id or 0)
+        settings = period_store.get_capacity_settings(
+            session, team_id=team_id, period_id=period.id or 0
+        )
+        availability = {
+            row.member_id: row
+            for row in team_store.list_availability(session, team_id=team_id, period_id=period.id)
+        }
+    return {
+        "team": db_team,
+        "members": team_store.list_members(session, team_id=team_id),
+        "periods": periods,
+        "period": period,
+        "capacity": capacity,
+        "capacity_settings": settings,
+        "availability": availability,
+        "member_form": {"allocation": "1"},
+        "member_errors": {},
+        "availability_form": {},
+        "availability_errors": {},
+        "settings_form": {},
+        "settings_errors": {},
+    }
+
+
+@router.get("/teams/{team_id}")
+def team_page(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    period_id: int | None = None,
+) -> Response:
+    return _render(templates, request, "team.html", _team_context(session, team_id, period_id))
+
+
+@router.post("/teams/{team_id}/members")
+async def add_member(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    values = {
+        "team_id": team_id,
+        "name": _text(form, "name"),
+        "allocation": _text(form, "allocation"),
+    }
+    member_in, errors = parse_form(MemberCreate, values)
+    period_id = _optional_int(_text(form, "period_id"))
+    if member_in is not None:
+        db_member, errors = _store_or_errors(
+            lambda: team_store.create_member(session, member_in=member_in)
+        )
+        if db_member is not None:
+            return _see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "member_form": values,
+        "member_errors": errors,
+    }
+    return _render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/availability")
+async def set_availability(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = _optional_int(_text(form, "period_id"))
+    values = {
+        "member_id": _text(form, "member_id"),
+        "period_id": period_id,
+        "days_off": _text(form, "days_off") or "0",
+        "allocation": _optional(form, "allocation"),
+    }
+    availability_in, errors = parse_form(AvailabilityCreate, values)
+    if availability_in is not None:
+        member = team_store.get_member(session, member_id=availability_in.member_id)
+        if member.team_id != team_id:
+            errors = {"member_id": "That member is not on this team."}
+        else:
+            row, errors = _store_or_errors(
+                lambda: team_store.set_availability(session, availability_in=availability_in)
+            )
+            if row is not None:
+                return _see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "availability_form": values,
+        "availability_errors": errors,
+    }
+    return _render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/capacity")
+async def set_capacity(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = _optional_int(_text(form, "period_id"))
+    values = {
+        "focus_factor": _text(form, "focus_factor"),
+        "reserve_pct": _text(form, "reserve_pct"),
+    }
+    settings_in, errors = parse_form(CapacitySettingsIn, values)
+    if settings_in is not None and period_id is not None:
+        period_store.get_period(session, period_id=period_id)
+        period_store.set_capacity_settings(
+            session, team_id=team_id, period_id=period_id, settings_in=settings_in
+        )
+        return _see_other(_team_url(team_id, period_id))
+    if period_id is None:
+        errors = {"period_id": "Choose a period first."}
+    context = _team_context(session, team_id, period_id) | {
+        "settings_form": values,
+        "settings_errors": errors,
+    }
+    return _render(templates, request, "team.html", context, status_code=422)
+
+
+def _team_url(team_id: int, period_id: int | None) -> str:
+    return f"/teams/{team_id}" + (f"?period_id={period_id}" if period_id else "")
+
+
+def _optional_int(value: str) -> int | None:
+    return int(value) if value.isdigit() else None
+
+
+# --- initiatives -------------------------------------------------------------------------
+
+
+def _initiatives_context(session: SessionDep, team_id: int, period: str | None) -> dict[str, Any]:
+    db_team = team_store.get_team(session, team_id=team_id)
+    periods = period_store.list_periods(session)
+    if period is None:
+        period = str(periods[0].id) if periods else initiative_store.BACKLOG
+    period_id: int | str = (
+        initiative_store.BACKLOG
+        if period == initiative_store.BACKLOG
+        else _optional_int(period) or 0
+    )
+    if period_id != initiative_store.BACKLOG:
+        period_store.get_period(session, period_id=int(period_id))
+    records = initiative_store.list_initiatives(session, team_id=team_id, period_id=period_id)
+    return {
+        "team": db_team,
+        "periods": periods,
+        "period_key": str(period_id),
+        "records": records,
+        "titles": {r.row.id: r.row.title for r in records},
+        "states": INITIATIVE_STATES,
+        "form": {"state": "candidate", "period_id": str(period_id)},
+        "errors": {},
+    }
+
+
+@router.get("/teams/{team_id}/initiatives")
+def initiatives_page(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    period: str | None = None,
+) -> Response:
+    context = _initiatives_context(session, team_id, period)
+    return _render(templates, request, "initiatives.html", context)
+
+
+def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
+    """Form fields -> the API's initiative input (blank optional fields become null)."""
+    period = _text(form, "period_id")
+    effort: dict[str, Any] = {"likely": _text(form, "effort.likely")}
+    if _text(form, "effort.low") or _text(form, "effort.high"):
+        effort |= {"low": _optional(form, "effort.low"), "high": _optional(form, "effort.high")}
+    confidence = _optional(form, "confidence")
+    return {
+        "team_id": team_id,
+        "period_id": None if period in {"", initiative_store.BACKLOG} else period,
+        "title": _text(form, "title"),
+        "notes": form.get("notes", "") if isinstance(form.get("notes", ""), str) else "",
+        "effort": effort,
+        "value": _text(form, "value"),
+        "confidence": _percent_to_share(confidence),
+        "state": _text(form, "state") or "candidate",
+        "either_or": _optional(form, "either_or"),
+        "needs": [v for v in form.getlist("needs") if isinstance(v, str) and v],
+    }
+
+
+def _percent_to_share(raw: str | None) -> Any:
+    """Confidence is typed as a percentage on the page and stored as a share."""
+    if raw is None:
+        return None
+    try:
+        return float(raw.rstrip("% ")) / 100
+    except ValueError:
+        return raw
+
+
+def form_echo(form: FormData) -> dict[str, Any]:
+    """The values as typed, to re-show a refused form unchanged."""
+    echo: dict[str, Any] = {key: value for key, value in form.items() if isinstance(value, str)}
+    echo["needs"] = [v for v in form.getlist("needs") if isinstance(v, str)]
+    return echo
+
+
+@router.post("/teams/{team_id}/initiatives")
+async def add_initiative(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    values = initiative_values(form, team_id)
+    initiative_in, errors = parse_form(InitiativeCreate, values)
+    if initiative_in is not None:
+        record, errors = _store_or_errors(
+            lambda: initiative_store.create_initiative(session, initiative_in=initiative_in)
+        )
+        if record is not None:
+            period = _text(form, "period_id") or initiative_store.BACKLOG
+            return _see_other(f"/teams/{team_id}/initiatives?period={period}")
+    context = _initiatives_context(session, team_id, _text(form, "period_id") or None)
+    context |= {"form": form_echo(form), "errors": errors}
+    return _render(templates, request, "initiatives.html", context, status_code=422)
+
+
+def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
+    record = initiative_store.get_initiative(session, initiative_id=initiative_id)
+    row = record.row
+    effort = record.own_effort
+    others = initiative_store.list_initiatives(session, team_id=row.team_id)
+    return {
+        "record": record,
+        "team": team_store.get_team(session, team_id=row.team_id),
+        "periods": period_store.list_periods(session),
+        "states": INITIATIVE_STATES,
+        "candidates": [r for r in others if r.row.id != row.id],
+        "form": {
+            "title": row.title,
+            "notes": row.notes,
+            "effort.likely": _plain(effort.likely),
+            "effort.low": _plain(effort.low),
+            "effort.high": _plain(effort.high),
+            "value": _plain(row.value),
+            "confidence": _plain(row.confidence * 100 if row.confidence is not None else None),
+            "state": row.state,
+            "either_or": row.either_or or "",
+            "period_id": str(row.period_id) if row.period_id else initiative_store.BACKLOG,
+            "needs": [str(n) for n in record.needs],
+            "version": str(row.version),
+        },
+        "errors": {},
+        "current": None,
+    }
+
+
+def _plain(value: float | None) -> str:
+    return "" if value is None else f"{value:g}"
+
+
+@router.get("/initiatives/{initiative_id}/edit")
+def edit_initiative_page(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    return _render(
+        templates, request, "initiative_edit.html", _edit_context(session, initiative_id)
+    )
+
+
+@router.post("/initiatives/{initiative_id}")
+async def edit_initiative(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    context = _edit_context(session, initiative_id)
+    team_id = context["record"].row.team_id
+    values = initiative_values(form, team_id)
+    values.pop("team_id")
+    values["version"] = _text(form, "version")
+    update_in, errors = parse_form(InitiativeUpdate, values)
+    if update_in is not None:
+        try:
+            initiative_store.update_initiative(
+                session, initiative_id=initiative_id, initiative_in=update_in
+            )
+        except LoadlineError as exc:
+            errors = {exc.field or "form": exc.message}
+            current = getattr(exc, "current", None)
+            context = _edit_context(session, initiative_id) | {"current": current}
+        else:
+            period = _text(form, "period_id") or initiative_store.BACKLOG
+            return _see_other(f"/teams/{team_id}/initiatives?period={period}")
+    context |= {"form": form_echo(form), "errors": errors}
+    status = 409 if context.get("current") else 422
+    return _render(templates, request, "initiative_edit.html", context, status_code=status)
+
+
+@router.post("/initiatives/{initiative_id}/delete")
+async def delete_initiative(initiative_id: int, session: SessionDep) -> Response:
+    record = initiative_store.get_initiative(session, initiative_id=initiative_id)
+    period = str(record.row.period_id) if record.row.period_id else initiative_store.BACKLOG
+    initiative_store.delete_initiative(session, initiative_id=initiative_id)
+    return _see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")

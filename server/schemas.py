@@ -1,0 +1,279 @@
+"""Input and output shapes of the JSON API and the forms, with their validation.
+
+Pages parse form fields into the same models as the API, so a value refused in one place is
+refused, with the same message, in the other.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StringConstraints,
+    field_validator,
+    model_validator,
+)
+
+from server.models import NAME_MAX, NOTES_MAX, TITLE_MAX
+
+MAX_PERIOD_DAYS = 400
+MAX_EFFORT_DAYS = 10_000.0
+MAX_VALUE = 1_000_000.0
+
+Name = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=NAME_MAX)]
+Title = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=TITLE_MAX)]
+Notes = Annotated[str, StringConstraints(max_length=NOTES_MAX)]
+Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False)]
+DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False)]
+FocusFactor = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False)]
+ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False)]
+Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False)]
+ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False)]
+EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False)]
+Weekmask = Annotated[str, StringConstraints(pattern=r"^[01]{7}$")]
+PeriodKind = Literal["sprint", "quarter"]
+InitiativeState = Literal["candidate", "pinned", "ruled_out"]
+INITIATIVE_STATES: tuple[str, ...] = ("candidate", "pinned", "ruled_out")
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+# --- teams and members -------------------------------------------------------------------
+
+
+class TeamCreate(_Strict):
+    name: Name
+    default_spread: Spread = 0.0
+
+
+class TeamUpdate(_Strict):
+    name: Name | None = None
+    default_spread: Spread | None = None
+
+
+class TeamPublic(BaseModel):
+    id: int
+    name: str
+    default_spread: float
+    created_at: dt.datetime
+
+
+class MemberCreate(_Strict):
+    team_id: int
+    name: Name
+    allocation: Share = 1.0
+
+
+class MemberUpdate(_Strict):
+    name: Name | None = None
+    allocation: Share | None = None
+
+
+class MemberPublic(BaseModel):
+    id: int
+    team_id: int
+    name: str
+    allocation: float
+
+
+# --- periods and availability --------------------------------------------------------------
+
+
+class PeriodFields(_Strict):
+    """Shared checks of a complete period (create, or an update merged with what is stored)."""
+
+    name: Name
+    kind: PeriodKind
+    start_date: dt.date
+    end_date: dt.date
+    weekmask: Weekmask = "1111100"
+    non_working_dates: list[dt.date] = Field(default_factory=list, max_length=MAX_PERIOD_DAYS)
+
+    @model_validator(mode="after")
+    def _dates_make_sense(self) -> PeriodFields:
+        if self.end_date < self.start_date:
+            raise ValueError("end_date: the period ends before it starts")
+        if (self.end_date - self.start_date).days + 1 > MAX_PERIOD_DAYS:
+            raise ValueError(f"end_date: a period may span at most {MAX_PERIOD_DAYS} days")
+        for day in self.non_working_dates:
+            if not self.start_date <= day <= self.end_date:
+                raise ValueError(f"non_working_dates: {day.isoformat()} is outside the period")
+        if "1" not in self.weekmask:
+            raise ValueError("weekmask: at least one weekday must be a working day")
+        self.non_working_dates = sorted(set(self.non_working_dates))
+        return self
+
+
+class PeriodCreate(PeriodFields):
+    pass
+
+
+class PeriodUpdate(_Strict):
+    name: Name | None = None
+    kind: PeriodKind | None = None
+    start_date: dt.date | None = None
+    end_date: dt.date | None = None
+    weekmask: Weekmask | None = None
+    non_working_dates: list[dt.date] | None = Field(default=None, max_length=MAX_PERIOD_DAYS)
+
+
+class PeriodPublic(BaseModel):
+    id: int
+    name: str
+    kind: str
+    start_date: dt.date
+    end_date: dt.date
+    weekmask: str
+    non_working_dates: list[dt.date]
+    working_days: int
+
+
+class AvailabilityCreate(_Strict):
+    member_id: int
+    period_id: int
+    days_off: DaysOff = 0.0
+    allocation: Share | None = None
+
+
+class AvailabilityUpdate(_Strict):
+    days_off: DaysOff | None = None
+    allocation: Share | None = None
+
+
+class AvailabilityPublic(BaseModel):
+    id: int
+    member_id: int
+    period_id: int
+    days_off: float
+    allocation: float | None
+
+
+class CapacitySettingsIn(_Strict):
+    focus_factor: FocusFactor = 0.7
+    reserve_pct: ReservePct = 15.0
+
+
+class MemberCapacityPublic(BaseModel):
+    member_id: int
+    name: str
+    working_days: int
+    days_off: float
+    available_days: float
+    allocation: float
+    contributed_days: float
+
+
+class CapacityPublic(BaseModel):
+    team_id: int
+    period_id: int
+    working_days: int
+    members: list[MemberCapacityPublic]
+    gross_days: float
+    focus_factor: float
+    focused_days: float
+    reserve_pct: float
+    reserve_days: float
+    capacity_days: float
+
+
+# --- initiatives ---------------------------------------------------------------------------
+
+
+class EffortIn(_Strict):
+    """One estimate (likely only) or a three-point estimate (low, likely, high), in days."""
+
+    likely: EffortDays
+    low: EffortDays | None = None
+    high: EffortDays | None = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _bare_number(cls, data: Any) -> Any:
+        if isinstance(data, int | float) and not isinstance(data, bool):
+            return {"likely": data}
+        return data
+
+    @model_validator(mode="after")
+    def _ordered(self) -> EffortIn:
+        if (self.low is None) != (self.high is None):
+            missing = "high" if self.high is None else "low"
+            raise ValueError(f"{missing}: give low and high together, or neither")
+        if self.low is not None and self.high is not None:
+            if self.low > self.likely:
+                raise ValueError("low: the low estimate is above the likely one")
+            if self.likely > self.high:
+                raise ValueError("high: the high estimate is below the likely one")
+        return self
+
+
+class TeamEffortIn(EffortIn):
+    team_id: int
+
+
+class EffortPublic(BaseModel):
+    team_id: int
+    likely: float
+    low: float | None
+    high: float | None
+
+
+class InitiativeCreate(_Strict):
+    team_id: int
+    period_id: int | None = None
+    title: Title
+    notes: Notes = ""
+    effort: EffortIn
+    other_efforts: list[TeamEffortIn] = Field(default_factory=list, max_length=20)
+    value: ValueScore
+    confidence: Share | None = None
+    state: InitiativeState = "candidate"
+    either_or: Name | None = None
+    needs: list[int] = Field(default_factory=list, max_length=50)
+
+    @field_validator("either_or", mode="before")
+    @classmethod
+    def _blank_is_none(cls, value: Any) -> Any:
+        return None if isinstance(value, str) and not value.strip() else value
+
+
+class InitiativeUpdate(_Strict):
+    version: int = Field(description="The version this change is based on (from the last read).")
+    period_id: int | None = None
+    title: Title | None = None
+    notes: Notes | None = None
+    effort: EffortIn | None = None
+    other_efforts: list[TeamEffortIn] | None = Field(default=None, max_length=20)
+    value: ValueScore | None = None
+    confidence: Share | None = None
+    state: InitiativeState | None = None
+    either_or: Name | None = None
+    needs: list[int] | None = Field(default=None, max_length=50)
+
+    @field_validator("either_or", mode="before")
+    @classmethod
+    def _blank_is_none(cls, value: Any) -> Any:
+        return None if isinstance(value, str) and not value.strip() else value
+
+
+class InitiativePublic(BaseModel):
+    id: int
+    team_id: int
+    period_id: int | None
+    title: str
+    notes: str
+    effort: EffortPublic
+    other_efforts: list[EffortPublic]
+    value: float
+    confidence: float | None
+    state: str
+    either_or: str | None
+    needs: list[int]
+    version: int
+    created_at: dt.datetime
+    updated_at: dt.datetime

@@ -1,0 +1,38 @@
+"""Jinja2 filters and globals shared by every page."""
+
+from __future__ import annotations
+
+from fastapi.templating import Jinja2Templates
+
+STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
+
+
+def days(value: float | None) -> str:
+    """Show person-days with at most one decimal: 12, 12.5."""
+    if value is None:
+        return "–"
+    rounded = round(float(value), 1)
+    return f"{rounded:g}" if abs(rounded) < 1e6 else f"{rounded:,.0f}"
+
+
+def number(value: float | None) -> str:
+    if value is None:
+        return "–"
+    rounded = round(float(value), 2)
+    return f"{rounded:g}"
+
+
+def percent(value: float | None, digits: int = 0) -> str:
+    if value is None:
+        return "–"
+    return f"{value * 100:.{digits}f} %"
+
+
+def configure_templates(templates: Jinja2Templates) -> None:
+    env = templates.env
+    env.filters["days"] = days
+    env.filters["number"] = number
+    env.filters["percent"] = percent
+    env.globals["STATE_LABELS"] = STATE_LABELS
+    env.trim_blocks = True
+    env.lstrip_blocks = True
