@@ -11,7 +11,7 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from sqlalchemy import JSON, Column, ForeignKey, Integer, UniqueConstraint
+from sqlalchemy import JSON, Column, ForeignKey, Integer, UniqueConstraint, false
 from sqlmodel import Field, SQLModel
 
 NAME_MAX = 80
@@ -138,3 +138,106 @@ class Need(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     initiative_id: int = _fk("initiative.id", "CASCADE")
     needed_id: int = _fk("initiative.id", "CASCADE")
+
+
+# --- saved plans, scenarios and published links -------------------------------------------
+
+
+class Scenario(SQLModel, table=True):
+    """A named variation of a team's live plan inputs (capacity, focus, confidence, forcing)."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(max_length=TITLE_MAX)
+    team_id: int = _fk("team.id", "CASCADE")
+    period_id: int = _fk("period.id", "CASCADE")
+    # The what-if settings, as planning.plans.PlanOptions fields (JSON-ready).
+    changes: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))
+    created_at: dt.datetime = Field(default_factory=utcnow)
+    created_by: str = Field(default="", max_length=NAME_MAX)
+
+
+class SavedPlan(SQLModel, table=True):
+    """An immutable snapshot of a plan's inputs and result; never updated after insert."""
+
+    __tablename__ = "saved_plan"
+
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(max_length=TITLE_MAX)
+    # Kept for listing; the snapshot itself holds names, so deleting a team keeps the plan.
+    period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
+    team_ids: list[int] = Field(default_factory=list, sa_column=Column(JSON, nullable=False))
+    scenario_changes: dict[str, Any] = Field(
+        default_factory=dict, sa_column=Column(JSON, nullable=False)
+    )
+    inputs: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))
+    result: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))
+    # Digest of the inputs, to tell cheaply whether live data has moved on since the save.
+    inputs_digest: str = Field(max_length=64)
+    created_at: dt.datetime = Field(default_factory=utcnow)
+    created_by: str = Field(default="", max_length=NAME_MAX)
+
+
+class Publication(SQLModel, table=True):
+    """A read-only link to a saved plan; the token is random and revocable."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    plan_id: int = _fk("saved_plan.id", "CASCADE")
+    token: str = Field(max_length=64, unique=True)
+    created_at: dt.datetime = Field(default_factory=utcnow)
+    created_by: str = Field(default="", max_length=NAME_MAX)
+    revoked_at: dt.datetime | None = Field(default=None)
+
+
+# --- accounts and the audit trail ----------------------------------------------------------
+
+
+class UserAccount(SQLModel, table=True):
+    __tablename__ = "user_account"
+
+    id: int | None = Field(default=None, primary_key=True)
+    username: str = Field(max_length=NAME_MAX, unique=True)
+    password_hash: str = Field(max_length=200)
+    role: str = Field(max_length=10)  # admin | editor | viewer
+    disabled: bool = Field(default=False, sa_column_kwargs={"server_default": false()})
+    created_at: dt.datetime = Field(default_factory=utcnow)
+
+
+class UserSession(SQLModel, table=True):
+    """A signed-in browser; only a digest of its cookie is stored."""
+
+    __tablename__ = "user_session"
+
+    id: int | None = Field(default=None, primary_key=True)
+    token_digest: str = Field(max_length=64, unique=True)
+    user_id: int = _fk("user_account.id", "CASCADE")
+    created_at: dt.datetime = Field(default_factory=utcnow)
+    expires_at: dt.datetime
+
+
+class LoginFailure(SQLModel, table=True):
+    """A failed sign-in, kept briefly to slow down guessing per account and per address."""
+
+    __tablename__ = "login_failure"
+
+    id: int | None = Field(default=None, primary_key=True)
+    username: str = Field(max_length=NAME_MAX, index=True)
+    address: str = Field(max_length=64, index=True)
+    at: dt.datetime = Field(default_factory=utcnow, index=True)
+
+
+class AuditEntry(SQLModel, table=True):
+    """Who changed what and when; `before`/`after` hold the changed fields (also for undo)."""
+
+    __tablename__ = "audit_entry"
+
+    id: int | None = Field(default=None, primary_key=True)
+    at: dt.datetime = Field(default_factory=utcnow, index=True)
+    actor: str = Field(default="", max_length=NAME_MAX)
+    action: str = Field(max_length=40)  # e.g. initiative.update, plan.save, plan.publish
+    entity: str = Field(max_length=40)
+    entity_id: int | None = Field(default=None)
+    team_id: int | None = Field(default=None, index=True)
+    summary: str = Field(default="", max_length=300)
+    before: dict[str, Any] | None = Field(default=None, sa_column=Column(JSON, nullable=True))
+    after: dict[str, Any] | None = Field(default=None, sa_column=Column(JSON, nullable=True))
+    undone_at: dt.datetime | None = Field(default=None)

@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections import defaultdict
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, col, func, select
@@ -19,6 +20,7 @@ from server.schemas import (
     InitiativeUpdate,
     TeamEffortIn,
 )
+from server.store import audit
 from server.store._common import get_or_404
 
 BACKLOG = "backlog"
@@ -188,11 +190,16 @@ def _replace_other_efforts(session: Session, db_row: Initiative, lines: list[Tea
 
 
 def _replace_needs(session: Session, db_row: Initiative, needs: list[int]) -> None:
-    for old in session.exec(select(Need).where(Need.initiative_id == db_row.id)):
-        session.delete(old)
-    session.flush()
-    for needed_id in dict.fromkeys(needs):
-        session.add(Need(initiative_id=db_row.id or 0, needed_id=needed_id))
+    wanted = list(dict.fromkeys(needs))
+    existing = {
+        n.needed_id: n for n in session.exec(select(Need).where(Need.initiative_id == db_row.id))
+    }
+    for needed_id, old in existing.items():
+        if needed_id not in wanted:
+            session.delete(old)
+    for needed_id in wanted:
+        if needed_id not in existing:
+            session.add(Need(initiative_id=db_row.id or 0, needed_id=needed_id))
 
 
 def _next_position(session: Session, team_id: int) -> int:
@@ -201,7 +208,7 @@ def _next_position(session: Session, team_id: int) -> int:
 
 
 def create_initiative(
-    session: Session, *, initiative_in: InitiativeCreate, commit: bool = True
+    session: Session, *, initiative_in: InitiativeCreate, commit: bool = True, actor: str = ""
 ) -> InitiativeRecord:
     """Store a new initiative; with commit=False the caller commits (bulk imports)."""
     _check_references(
@@ -228,15 +235,25 @@ def create_initiative(
     _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
     _replace_other_efforts(session, db_row, initiative_in.other_efforts)
     _replace_needs(session, db_row, initiative_in.needs)
+    session.flush()
+    created = get_initiative(session, initiative_id=db_row.id or 0)
+    audit.record(
+        session,
+        actor=actor,
+        action="initiative.create",
+        entity="initiative",
+        entity_id=db_row.id,
+        team_id=db_row.team_id,
+        summary=f"Added “{db_row.title}”",
+        after=created.to_public().model_dump(mode="json"),
+    )
     if commit:
         session.commit()
-    else:
-        session.flush()
-    return get_initiative(session, initiative_id=db_row.id or 0)
+    return created
 
 
 def update_initiative(
-    session: Session, *, initiative_id: int, initiative_in: InitiativeUpdate
+    session: Session, *, initiative_id: int, initiative_in: InitiativeUpdate, actor: str = ""
 ) -> InitiativeRecord:
     """Apply a change based on `initiative_in.version`; refuse it if the row moved on."""
     record = get_initiative(session, initiative_id=initiative_id)
@@ -248,6 +265,7 @@ def update_initiative(
             "compare them with the current ones and apply again.",
             current=record.to_public().model_dump(mode="json"),
         )
+    before = record.to_public().model_dump(mode="json")
     changes = initiative_in.model_fields_set - {"version"}
     needs = initiative_in.needs if "needs" in changes and initiative_in.needs is not None else None
     other = (
@@ -270,21 +288,37 @@ def update_initiative(
             raise InputError(
                 f"needs: this would make a needs cycle: {_titles(session, cycle)}.", field="needs"
             )
-    for name in ("title", "notes", "value", "state"):
-        if name in changes and getattr(initiative_in, name) is not None:
-            setattr(db_row, name, getattr(initiative_in, name))
-    for name in ("period_id", "confidence", "either_or"):  # these may be cleared with null
-        if name in changes:
-            setattr(db_row, name, getattr(initiative_in, name))
-    if "effort" in changes and initiative_in.effort is not None:
-        _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
-    if other is not None:
-        _replace_other_efforts(session, db_row, other)
-    if needs is not None:
-        _replace_needs(session, db_row, needs)
-    db_row.updated_at = utcnow()  # also makes the row dirty, so its version is bumped
-    session.add(db_row)
+    # One UPDATE of the row (one version step) however many fields change: no autoflush
+    # while the effort lines and needs are queried.
+    with session.no_autoflush:
+        for name in ("title", "notes", "value", "state"):
+            if name in changes and getattr(initiative_in, name) is not None:
+                setattr(db_row, name, getattr(initiative_in, name))
+        for name in ("period_id", "confidence", "either_or"):  # these may be cleared with null
+            if name in changes:
+                setattr(db_row, name, getattr(initiative_in, name))
+        if "effort" in changes and initiative_in.effort is not None:
+            _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
+        if other is not None:
+            _replace_other_efforts(session, db_row, other)
+        if needs is not None:
+            _replace_needs(session, db_row, needs)
+        db_row.updated_at = utcnow()  # also makes the row dirty, so its version is bumped
+        session.add(db_row)
     try:
+        session.flush()
+        after = get_initiative(session, initiative_id=initiative_id).to_public()
+        audit.record(
+            session,
+            actor=actor,
+            action="initiative.update",
+            entity="initiative",
+            entity_id=initiative_id,
+            team_id=db_row.team_id,
+            summary=_change_summary(db_row.title, before, after.model_dump(mode="json")),
+            before=_changed(before, after.model_dump(mode="json")),
+            after=_changed(after.model_dump(mode="json"), before),
+        )
         session.commit()
     except StaleDataError as exc:  # another writer got in between our read and our write
         session.rollback()
@@ -297,7 +331,30 @@ def update_initiative(
     return get_initiative(session, initiative_id=initiative_id)
 
 
-def delete_initiative(session: Session, *, initiative_id: int) -> None:
+def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:
     record = get_initiative(session, initiative_id=initiative_id)
+    audit.record(
+        session,
+        actor=actor,
+        action="initiative.delete",
+        entity="initiative",
+        entity_id=initiative_id,
+        team_id=record.row.team_id,
+        summary=f"Deleted “{record.row.title}”",
+        before=record.to_public().model_dump(mode="json"),
+    )
     session.delete(record.row)
     session.commit()
+
+
+_UNTRACKED = {"version", "updated_at", "created_at"}
+
+
+def _changed(values: dict[str, Any], other: dict[str, Any]) -> dict[str, Any]:
+    """The fields of `values` that differ from `other` (what an edit changed)."""
+    return {k: v for k, v in values.items() if k not in _UNTRACKED and other.get(k) != v}
+
+
+def _change_summary(title: str, before: dict[str, Any], after: dict[str, Any]) -> str:
+    fields = sorted(_changed(after, before))
+    return f"Changed {', '.join(fields) or 'nothing'} of “{title}”"

@@ -1,0 +1,319 @@
+"""Live plans: a team's stored initiatives in a period, turned into a selector problem and solved.
+
+The planning layer decides what the selector sees:
+- the effort of each initiative: its likely estimate, or the chosen confidence-level quantile of
+  its three-point estimate (single estimates get the team's default spread, if any);
+- pinned and ruled-out marks, plus what a person forces in or out for a what-if;
+- needs: a need on an initiative of this plan is passed through; a need on one planned in an
+  earlier period counts as met; a need on one that is later, unscheduled or elsewhere blocks
+  the initiative (it cannot be chosen yet), with a warning saying so;
+- either-or sets as stored (set names are per team).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+
+from sqlmodel import Session, col, select
+
+from server.capacity import CapacityBreakdown, MemberAvailability, team_capacity
+from server.models import Initiative, Period, Team
+from server.planning.team_capacity import TeamCapacity, capacity_of
+from server.selector import Explanation, Item, Problem, Selection, default_curve_to, solve
+from server.selector.risk import (
+    FitEstimate,
+    ThreePoint,
+    efforts_at_confidence,
+    fit_probability,
+    spread_contributors,
+)
+from server.store.initiatives import InitiativeRecord, list_initiatives
+from server.store.periods import get_period
+from server.store.teams import get_team
+
+FIT_DRAWS = 10_000
+
+
+@dataclass(frozen=True)
+class PlanOptions:
+    """What-if settings on top of the stored data; the defaults give the plain live plan."""
+
+    resolution: float = 0.5
+    confidence: float | None = None  # None: plan with likely estimates
+    capacity_days: float | None = None  # replaces the computed capacity
+    focus_factor: float | None = None
+    reserve_pct: float | None = None
+    days_off: Mapping[int, float] = field(default_factory=dict)  # member id -> days off
+    forced_in: frozenset[int] = frozenset()
+    forced_out: frozenset[int] = frozenset()
+    explain: bool = True
+    curve: bool = True
+
+
+@dataclass(frozen=True)
+class PlanRow:
+    record: InitiativeRecord
+    key: str
+    effort_days: float  # the effort the selector planned with
+    estimate: ThreePoint
+    chosen: bool
+    state: str  # stored state
+    forced: str | None  # "in" / "out" when a what-if forces it
+    blocked_by: tuple[str, ...]  # titles of needs that cannot be met in this plan
+    other_teams: tuple[str, ...]  # names of other teams that also spend effort on it
+    explanation: Explanation | None
+
+    @property
+    def id(self) -> int:
+        return self.record.row.id or 0
+
+    @property
+    def title(self) -> str:
+        return self.record.row.title
+
+    @property
+    def value(self) -> float:
+        return self.record.row.value
+
+
+@dataclass(frozen=True)
+class LivePlan:
+    team: Team
+    period: Period
+    capacity: CapacityBreakdown
+    options: PlanOptions
+    problem: Problem
+    selection: Selection
+    rows: tuple[PlanRow, ...]
+    warnings: tuple[str, ...]
+    fit: FitEstimate | None
+    spread_leaders: tuple[tuple[str, float], ...]  # (title, share of variance)
+    # With a confidence level other than P50: the value of the P50 plan, to show the price of
+    # the extra certainty.
+    p50_value: float | None = None
+
+    @property
+    def chosen_rows(self) -> list[PlanRow]:
+        return [row for row in self.rows if row.chosen]
+
+    @property
+    def left_out_rows(self) -> list[PlanRow]:
+        return [row for row in self.rows if not row.chosen]
+
+    @property
+    def pinned_effort(self) -> float:
+        return sum(row.effort_days for row in self.rows if row.chosen and row.state == "pinned")
+
+    @property
+    def utilisation(self) -> float | None:
+        cap = self.selection.capacity
+        return self.selection.effort / cap if cap > 0 else None
+
+
+def _estimate(record: InitiativeRecord, team_id: int, default_spread: float) -> ThreePoint:
+    line = record.efforts.get(team_id) or record.own_effort
+    if line.low is not None and line.high is not None:
+        return ThreePoint(line.low, line.likely, line.high)
+    return ThreePoint.from_single(line.likely, default_spread)
+
+
+def _planned_efforts(
+    estimates: list[ThreePoint],
+    records: list[InitiativeRecord],
+    team_id: int,
+    confidence: float | None,
+) -> list[float]:
+    if confidence is None:
+        return [(r.efforts.get(team_id) or r.own_effort).likely for r in records]
+    return [float(x) for x in efforts_at_confidence(estimates, confidence)]
+
+
+def _apply_capacity_overrides(
+    base: TeamCapacity, session: Session, options: PlanOptions
+) -> CapacityBreakdown:
+    breakdown = base.breakdown
+    if options.days_off or options.focus_factor is not None or options.reserve_pct is not None:
+        members = [
+            MemberAvailability(
+                name=m.name,
+                days_off=options.days_off.get(mid, m.days_off),
+                allocation=m.allocation,
+            )
+            for mid, m in zip(base.member_ids, breakdown.members, strict=True)
+        ]
+        breakdown = team_capacity(
+            breakdown.working_days,
+            members,
+            options.focus_factor if options.focus_factor is not None else breakdown.focus_factor,
+            options.reserve_pct if options.reserve_pct is not None else breakdown.reserve_pct,
+        )
+    if options.capacity_days is not None:
+        breakdown = replace(breakdown, capacity_days=options.capacity_days)
+    return breakdown
+
+
+def _need_status(
+    session: Session, records: list[InitiativeRecord], period: Period
+) -> tuple[dict[int, list[int]], dict[int, list[str]], list[str]]:
+    """Split each initiative's needs into ones inside the plan and ones that block it."""
+    inside = {r.row.id for r in records}
+    outside_ids = {n for r in records for n in r.needs if n not in inside}
+    outside: dict[int, tuple[Initiative, Period | None]] = {}
+    if outside_ids:
+        rows = session.exec(select(Initiative).where(col(Initiative.id).in_(outside_ids)))
+        for row in rows:
+            outside[row.id or 0] = (
+                row,
+                session.get(Period, row.period_id) if row.period_id else None,
+            )
+    passed: dict[int, list[int]] = {}
+    blocked: dict[int, list[str]] = {}
+    warnings: list[str] = []
+    for record in records:
+        rid = record.row.id or 0
+        for need in record.needs:
+            if need in inside:
+                passed.setdefault(rid, []).append(need)
+                continue
+            row, need_period = outside.get(need, (None, None))
+            if (
+                row is not None
+                and need_period is not None
+                and need_period.end_date < period.start_date
+            ):
+                continue  # planned in an earlier period: treated as delivered
+            title = row.title if row is not None else f"#{need}"
+            where = need_period.name if need_period is not None else "the backlog"
+            blocked.setdefault(rid, []).append(title)
+            warnings.append(
+                f"“{record.row.title}” needs “{title}”, which is in {where}, not earlier; "
+                "it cannot be chosen in this plan."
+            )
+    return passed, blocked, warnings
+
+
+def plan_for(
+    session: Session, *, team_id: int, period_id: int, options: PlanOptions | None = None
+) -> LivePlan:
+    """Solve the live plan of a team in a period, with explanations, curve and fit."""
+    options = options or PlanOptions()
+    team = get_team(session, team_id=team_id)
+    period = get_period(session, period_id=period_id)
+    breakdown = _apply_capacity_overrides(
+        capacity_of(session, team_id=team_id, period_id=period_id), session, options
+    )
+    records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
+    passed, blocked, warnings = _need_status(session, records, period)
+    estimates = [_estimate(r, team_id, team.default_spread) for r in records]
+    efforts = _planned_efforts(estimates, records, team_id, options.confidence)
+
+    items = []
+    for record, effort in zip(records, efforts, strict=True):
+        rid = record.row.id or 0
+        forced_in = rid in options.forced_in
+        forced_out = rid in options.forced_out or rid in blocked
+        state = record.row.state
+        items.append(
+            Item(
+                key=str(rid),
+                effort=effort,
+                value=record.row.value,
+                pinned=(state == "pinned" or forced_in) and not forced_out,
+                ruled_out=(state == "ruled_out" or forced_out) and not forced_in,
+                needs=tuple(str(n) for n in passed.get(rid, [])),
+                either_or=record.row.either_or,
+            )
+        )
+    problem = Problem(
+        items=tuple(items),
+        capacity=max(breakdown.capacity_days, 0.0),
+        resolution=options.resolution,
+    )
+    selection = solve(
+        problem,
+        curve_to=default_curve_to(problem.capacity)
+        if options.curve and problem.capacity > 0
+        else None,
+        explain=options.explain,
+    )
+    chosen = set(selection.chosen)
+    explanations = {e.key: e for e in selection.explanations or ()}
+    team_names = _team_names(session)
+    rows = []
+    for record, effort, estimate in zip(records, efforts, estimates, strict=True):
+        rid = record.row.id or 0
+        forced = "in" if rid in options.forced_in else "out" if rid in options.forced_out else None
+        others = tuple(team_names.get(t, "?") for t in record.efforts if t != team_id)
+        if record.row.team_id != team_id:
+            others = tuple(dict.fromkeys((team_names.get(record.row.team_id, "?"), *others)))
+        rows.append(
+            PlanRow(
+                record=record,
+                key=str(rid),
+                effort_days=effort,
+                estimate=estimate,
+                chosen=str(rid) in chosen,
+                state=record.row.state,
+                forced=forced,
+                blocked_by=tuple(blocked.get(rid, [])),
+                other_teams=others,
+                explanation=explanations.get(str(rid)),
+            )
+        )
+    cross = [row for row in rows if row.other_teams]
+    if cross:
+        warnings.append(
+            f"{len(cross)} initiative(s) also need effort from other teams; this page plans "
+            f"{team.name}'s share only. The period overview plans all teams together."
+        )
+    if selection.rounding.items_rounded_up:
+        warnings.append(
+            f"{len(selection.rounding.items_rounded_up)} effort(s) were rounded up to the "
+            f"{options.resolution:g}-day resolution; capacity was rounded down by "
+            f"{selection.rounding.capacity_days_lost:g} days."
+        )
+    if selection.forced_by_needs:
+        titles = [r.title for r in rows if r.key in selection.forced_by_needs]
+        warnings.append(
+            "Pinned work needs these, so they are in the plan too: " + ", ".join(titles) + "."
+        )
+    chosen_estimates = [row.estimate for row in rows if row.chosen]
+    fit = None
+    leaders: tuple[tuple[str, float], ...] = ()
+    if (
+        chosen_estimates
+        and problem.capacity > 0
+        and any(not e.is_certain for e in chosen_estimates)
+    ):
+        fit = fit_probability(chosen_estimates, problem.capacity, draws=FIT_DRAWS)
+        chosen_rows = [row for row in rows if row.chosen]
+        leaders = tuple(
+            spread_contributors([row.title for row in chosen_rows], chosen_estimates, top=3)
+        )
+    p50_value = None
+    if options.confidence is not None and options.confidence != 0.5:
+        p50 = plan_for(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            options=replace(options, confidence=0.5, explain=False, curve=False),
+        )
+        p50_value = p50.selection.value if p50.selection.feasible else None
+    return LivePlan(
+        p50_value=p50_value,
+        team=team,
+        period=period,
+        capacity=breakdown,
+        options=options,
+        problem=problem,
+        selection=selection,
+        rows=tuple(rows),
+        warnings=tuple(warnings),
+        fit=fit,
+        spread_leaders=leaders,
+    )
+
+
+def _team_names(session: Session) -> dict[int, str]:
+    return {t.id or 0: t.name for t in session.exec(select(Team))}
