@@ -7,6 +7,7 @@ import sys
 from collections.abc import Callable
 
 from server.config import Settings
+from server.errors import LoadlineError
 
 
 def _serve(args: argparse.Namespace) -> int:
@@ -52,6 +53,41 @@ def _demo(args: argparse.Namespace) -> int:
     return 1
 
 
+def _backup(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from server.backup import backup_sqlite
+
+    path = backup_sqlite(Settings.from_env().database_url, Path(args.destination))
+    print(f"Backed up to {path} (integrity check passed).")
+    return 0
+
+
+def _export_workspace(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from server.backup import write_export
+    from server.db import make_engine
+
+    path = write_export(make_engine(Settings.from_env()), Path(args.destination))
+    print(f"Workspace exported to {path}.")
+    return 0
+
+
+def _restore_workspace(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from server import migrate
+    from server.backup import read_export, restore_workspace
+    from server.db import make_engine
+
+    settings = Settings.from_env()
+    migrate.upgrade(settings)
+    counts = restore_workspace(make_engine(settings), read_export(Path(args.source)))
+    print(f"Restored {sum(counts.values())} rows into {len(counts)} tables.")
+    return 0
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     if argv and argv[0] == "select":  # the selector parses its own arguments
@@ -79,9 +115,27 @@ def main(argv: list[str] | None = None) -> int:
         "select", help="plan a CSV of initiatives: loadline select FILE --capacity DAYS"
     )
 
+    backup = commands.add_parser("backup", help="consistent copy of the live SQLite database")
+    backup.add_argument("destination")
+    backup.set_defaults(handler=_backup)
+
+    export = commands.add_parser("export-workspace", help="write the whole workspace as JSON")
+    export.add_argument("destination")
+    export.set_defaults(handler=_export_workspace)
+
+    restore = commands.add_parser(
+        "restore-workspace", help="load a JSON workspace export into an empty database"
+    )
+    restore.add_argument("source")
+    restore.set_defaults(handler=_restore_workspace)
+
     args = parser.parse_args(argv)
     handler: Callable[[argparse.Namespace], int] = args.handler
-    return handler(args)
+    try:
+        return handler(args)
+    except LoadlineError as exc:
+        print(f"loadline: {exc.message}", file=sys.stderr)
+        return 2
 
 
 if __name__ == "__main__":

@@ -10,7 +10,7 @@ import os
 import re
 import shutil
 import uuid
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import pytest
@@ -72,6 +72,24 @@ def database_url(database_template: str, tmp_path: Path) -> Iterator[str]:
     path = tmp_path / "loadline.db"
     shutil.copyfile(database_template, path)
     yield f"sqlite:///{path}"
+
+
+@pytest.fixture
+def empty_database_url(tmp_path: Path) -> Iterator[Callable[[], str]]:
+    """A factory of new, empty (not migrated) databases of the kind under test."""
+    made: list[str] = []
+
+    def make() -> str:
+        if POSTGRES_ADMIN_URL:
+            name = f"loadline_empty_{uuid.uuid4().hex[:10]}"
+            _postgres_admin(f'CREATE DATABASE "{name}"')
+            made.append(name)
+            return _postgres_url(name)
+        return f"sqlite:///{tmp_path / f'empty-{uuid.uuid4().hex[:8]}.db'}"
+
+    yield make
+    for name in made:
+        _postgres_admin(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)')
 
 
 @pytest.fixture
