@@ -5,8 +5,9 @@ The planning layer decides what the selector sees:
   its three-point estimate (single estimates get the team's default spread, if any);
 - pinned and ruled-out marks, plus what a person forces in or out for a what-if;
 - needs: a need on an initiative of this plan is passed through; a need on one planned in an
-  earlier period counts as met; a need on one that is later, unscheduled or elsewhere blocks
-  the initiative (it cannot be chosen yet), with a warning saying so;
+  earlier period, or pinned by another team in this period, counts as met; a need on one that
+  is later, unscheduled, or not pinned by its team blocks the initiative (it cannot be chosen
+  yet), with a warning saying so;
 - either-or sets as stored (set names are per team).
 """
 
@@ -183,13 +184,22 @@ def _need_status(
                 and need_period.end_date < period.start_date
             ):
                 continue  # planned in an earlier period: treated as delivered
+            if row is not None and row.period_id == period.id and row.state == "pinned":
+                continue  # another team has committed to it in this period
             title = row.title if row is not None else f"#{need}"
-            where = need_period.name if need_period is not None else "the backlog"
             blocked.setdefault(rid, []).append(title)
-            warnings.append(
-                f"“{record.row.title}” needs “{title}”, which is in {where}, not earlier; "
-                "it cannot be chosen in this plan."
-            )
+            if row is not None and row.period_id == period.id:
+                warnings.append(
+                    f"“{record.row.title}” needs “{title}”, which another team has not pinned in "
+                    f"{period.name}; it cannot be chosen here until that team pins it (the "
+                    "period overview plans both teams together)."
+                )
+            else:
+                where = need_period.name if need_period is not None else "the backlog"
+                warnings.append(
+                    f"“{record.row.title}” needs “{title}”, which is in {where}, not earlier; "
+                    "it cannot be chosen in this plan."
+                )
     return passed, blocked, warnings
 
 
