@@ -12,7 +12,16 @@ from sqlalchemy.exc import OperationalError
 from server.config import PROJECT_ROOT, Settings
 from server.db import make_engine
 from server.errors import LoadlineError
-from server.routes import api_initiatives, api_periods, api_select, api_teams, health, pages
+from server.routes import (
+    api_initiatives,
+    api_periods,
+    api_select,
+    api_teams,
+    audit,
+    auth_pages,
+    health,
+    pages,
+)
 from server.security import RequestGuard
 from server.templating import configure_templates
 from server.validation import api_errors
@@ -34,7 +43,16 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.templates = templates
 
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
-    for module in (health, api_teams, api_periods, api_initiatives, api_select, pages):
+    for module in (
+        health,
+        api_teams,
+        api_periods,
+        api_initiatives,
+        api_select,
+        audit,
+        auth_pages,
+        pages,
+    ):
         app.include_router(module.router)
     _add_error_handlers(app)
     app.add_middleware(

@@ -88,6 +88,42 @@ def _restore_workspace(args: argparse.Namespace) -> int:
     return 0
 
 
+def _create_user(args: argparse.Namespace) -> int:
+    import getpass
+    import os
+
+    from sqlmodel import Session
+
+    from server import migrate
+    from server.db import make_engine
+    from server.store.users import create_user
+
+    settings = Settings.from_env()
+    migrate.upgrade(settings)
+    password = os.environ.get("LOADLINE_NEW_PASSWORD") or getpass.getpass("Password: ")
+    with Session(make_engine(settings)) as session:
+        user = create_user(session, username=args.username, password=password, role=args.role)
+    print(f"Created {user.role} {user.username!r}.")
+    return 0
+
+
+def _api_token(args: argparse.Namespace) -> int:
+    from sqlmodel import Session
+
+    from server.db import make_engine
+    from server.errors import NotFoundError
+    from server.store.users import API_TOKEN_DAYS, find_user, start_session
+
+    with Session(make_engine(Settings.from_env())) as session:
+        user = find_user(session, username=args.username)
+        if user is None:
+            raise NotFoundError(f"No user named {args.username!r}.", field="username")
+        token = start_session(session, user=user, api_token=True)
+    print(f"Bearer token for {user.username!r} ({user.role}), valid {API_TOKEN_DAYS} days:")
+    print(token)
+    return 0
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     if argv and argv[0] == "select":  # the selector parses its own arguments
@@ -128,6 +164,17 @@ def main(argv: list[str] | None = None) -> int:
     )
     restore.add_argument("source")
     restore.set_defaults(handler=_restore_workspace)
+
+    user = commands.add_parser(
+        "create-user", help="create an account (password from LOADLINE_NEW_PASSWORD or a prompt)"
+    )
+    user.add_argument("username")
+    user.add_argument("--role", choices=["admin", "editor", "viewer"], default="admin")
+    user.set_defaults(handler=_create_user)
+
+    token = commands.add_parser("api-token", help="print a bearer token for an account")
+    token.add_argument("username")
+    token.set_defaults(handler=_api_token)
 
     args = parser.parse_args(argv)
     handler: Callable[[argparse.Namespace], int] = args.handler

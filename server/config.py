@@ -57,6 +57,19 @@ class Settings:
         "LOADLINE_SQLITE_BUSY_TIMEOUT_MS",
     )  # type: ignore[assignment]
 
+    proxy_user_header: str = _setting(
+        "",
+        "Name of a header carrying the signed-in user name, set by a trusted reverse proxy "
+        "(company single sign-on). Empty: off. The user must have a Loadline account.",
+        "LOADLINE_PROXY_USER_HEADER",
+    )  # type: ignore[assignment]
+    trusted_proxies: str = _setting(
+        "",
+        "Comma-separated addresses of reverse proxies whose user name header is believed; "
+        "the header from any other address is ignored.",
+        "LOADLINE_TRUSTED_PROXIES",
+    )  # type: ignore[assignment]
+
     @classmethod
     def from_env(cls, environ: dict[str, str] | None = None, **overrides: object) -> Settings:
         """Build settings from environment variables, then apply explicit overrides."""

@@ -6,13 +6,14 @@ from typing import Any
 
 from sqlmodel import Session, col, select
 
+from server.actor import current_actor
 from server.models import AuditEntry
 
 
 def record(
     session: Session,
     *,
-    actor: str,
+    actor: str = "",
     action: str,
     entity: str,
     entity_id: int | None,
@@ -21,9 +22,12 @@ def record(
     before: dict[str, Any] | None = None,
     after: dict[str, Any] | None = None,
 ) -> AuditEntry:
-    """Add an entry to the session; the caller's commit stores it with the change itself."""
+    """Add an entry to the session; the caller's commit stores it with the change itself.
+
+    The actor defaults to the signed-in user of the current request.
+    """
     entry = AuditEntry(
-        actor=actor,
+        actor=actor or current_actor.get(),
         action=action,
         entity=entity,
         entity_id=entity_id,
