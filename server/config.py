@@ -32,8 +32,8 @@ class Settings:
     )  # type: ignore[assignment]
     secret_key: str = _setting(
         "",
-        "Secret used to sign CSRF tokens and session cookies. Empty in development: a random "
-        "key per process (forms then expire on restart). Required when LOADLINE_ENV=production.",
+        "Secret used to sign CSRF tokens. Empty in development: a random key kept in "
+        "data/secret_key and shared by every worker. Required when LOADLINE_ENV=production.",
         "LOADLINE_SECRET_KEY",
     )  # type: ignore[assignment]
     environment: str = _setting(
@@ -95,13 +95,30 @@ class Settings:
                 raise ValueError(
                     "LOADLINE_SECRET_KEY must be set to a long random value in production"
                 )
-            secret = secrets.token_urlsafe(32)
+            secret = _local_secret()
         url = self.database_url or f"sqlite:///{DEFAULT_DATA_DIR / 'loadline.db'}"
         return replace(self, database_url=url, secret_key=secret)
 
     @property
     def is_sqlite(self) -> bool:
         return self.database_url.startswith("sqlite")
+
+
+def _local_secret() -> str:
+    """A development secret kept in the data folder, so every worker process shares it."""
+    path = DEFAULT_DATA_DIR / "secret_key"
+    if not path.exists():
+        path.parent.mkdir(parents=True, exist_ok=True)
+        draft = path.with_name(f"secret_key.{os.getpid()}")
+        draft.write_text(secrets.token_urlsafe(32))
+        draft.chmod(0o600)
+        try:
+            os.link(draft, path)  # atomic: the first process to get here wins
+        except FileExistsError:
+            pass
+        finally:
+            draft.unlink()
+    return path.read_text().strip()
 
 
 def _parse(kind: object, raw: str, name: str) -> object:
