@@ -11,6 +11,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import (
     BaseModel,
+    BeforeValidator,
     ConfigDict,
     Field,
     StringConstraints,
@@ -24,16 +25,26 @@ MAX_PERIOD_DAYS = 400
 MAX_EFFORT_DAYS = 10_000.0
 MAX_VALUE = 1_000_000.0
 
+
+def _not_a_boolean(value: Any) -> Any:
+    # JSON true/false would otherwise pass as 1 and 0 (days, shares, ids).
+    if isinstance(value, bool):
+        raise ValueError("Enter a number, not true or false.")
+    return value
+
+
+_NUMBER = BeforeValidator(_not_a_boolean)
+WholeNumber = Annotated[int, _NUMBER]
 Name = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=NAME_MAX)]
 Title = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=TITLE_MAX)]
 Notes = Annotated[str, StringConstraints(max_length=NOTES_MAX)]
-Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False)]
-DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False)]
-FocusFactor = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False)]
-ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False)]
-Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False)]
-ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False)]
-EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False)]
+Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), _NUMBER]
+DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False), _NUMBER]
+FocusFactor = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), _NUMBER]
+ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False), _NUMBER]
+Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False), _NUMBER]
+ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False), _NUMBER]
+EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False), _NUMBER]
 Weekmask = Annotated[str, StringConstraints(pattern=r"^[01]{7}$")]
 PeriodKind = Literal["sprint", "quarter"]
 InitiativeState = Literal["candidate", "pinned", "ruled_out"]
@@ -65,7 +76,7 @@ class TeamPublic(BaseModel):
 
 
 class MemberCreate(_Strict):
-    team_id: int
+    team_id: WholeNumber
     name: Name
     allocation: Share = 1.0
 
@@ -135,8 +146,8 @@ class PeriodPublic(BaseModel):
 
 
 class AvailabilityCreate(_Strict):
-    member_id: int
-    period_id: int
+    member_id: WholeNumber
+    period_id: WholeNumber
     days_off: DaysOff = 0.0
     allocation: Share | None = None
 
@@ -213,7 +224,7 @@ class EffortIn(_Strict):
 
 
 class TeamEffortIn(EffortIn):
-    team_id: int
+    team_id: WholeNumber
 
 
 class EffortPublic(BaseModel):
@@ -224,8 +235,8 @@ class EffortPublic(BaseModel):
 
 
 class InitiativeCreate(_Strict):
-    team_id: int
-    period_id: int | None = None
+    team_id: WholeNumber
+    period_id: WholeNumber | None = None
     title: Title
     notes: Notes = ""
     effort: EffortIn
@@ -234,7 +245,7 @@ class InitiativeCreate(_Strict):
     confidence: Share | None = None
     state: InitiativeState = "candidate"
     either_or: Name | None = None
-    needs: list[int] = Field(default_factory=list, max_length=50)
+    needs: list[WholeNumber] = Field(default_factory=list, max_length=50)
 
     @field_validator("either_or", mode="before")
     @classmethod
@@ -243,8 +254,10 @@ class InitiativeCreate(_Strict):
 
 
 class InitiativeUpdate(_Strict):
-    version: int = Field(description="The version this change is based on (from the last read).")
-    period_id: int | None = None
+    version: WholeNumber = Field(
+        description="The version this change is based on (from the last read)."
+    )
+    period_id: WholeNumber | None = None
     title: Title | None = None
     notes: Notes | None = None
     effort: EffortIn | None = None
@@ -253,7 +266,7 @@ class InitiativeUpdate(_Strict):
     confidence: Share | None = None
     state: InitiativeState | None = None
     either_or: Name | None = None
-    needs: list[int] | None = Field(default=None, max_length=50)
+    needs: list[WholeNumber] | None = Field(default=None, max_length=50)
 
     @field_validator("either_or", mode="before")
     @classmethod

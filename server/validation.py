@@ -21,6 +21,8 @@ def field_and_message(error: Mapping[str, Any]) -> tuple[str, str]:
     if match:  # model-level checks put the field name in front of their message
         return ".".join([*location, match["field"]]) or match["field"], match["message"]
     message = message.removeprefix("Value error, ")
+    if error.get("type") == "json_invalid":  # its location is a character offset, not a field
+        return "body", "The body is not valid JSON."
     field = ".".join(location) or "body"
     if error.get("type") == "missing":
         message = "This field is required."

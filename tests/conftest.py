@@ -23,9 +23,14 @@ from sqlmodel import Session
 from server import migrate
 from server.app import create_app
 from server.config import Settings
+from server.db import make_engine
+from server.store.users import ROLES, create_user, start_session
 
 POSTGRES_ADMIN_URL = os.environ.get("LOADLINE_TEST_POSTGRES_URL", "")
 TEST_SECRET = "test-secret-key-not-for-production"
+ACCOUNT_PASSWORD = "a-long-test-password"
+# role -> bearer token of the account of that role, filled when the template is made.
+ACCOUNT_TOKENS: dict[str, str] = {}
 _CSRF_META = re.compile(r'<meta name="csrf-token" content="([0-9a-f]+)">')
 
 
@@ -50,14 +55,27 @@ def database_template(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]
     if POSTGRES_ADMIN_URL:
         name = f"loadline_template_{uuid.uuid4().hex[:8]}"
         _postgres_admin(f'CREATE DATABASE "{name}"')
-        migrate.upgrade(make_settings(_postgres_url(name)))
+        settings = make_settings(_postgres_url(name))
+        migrate.upgrade(settings)
+        _add_accounts(settings)
         yield name
         _postgres_admin(f'DROP DATABASE IF EXISTS "{name}"')
         return
     path = tmp_path_factory.mktemp("template") / "template.db"
     settings = make_settings(f"sqlite:///{path}")
     migrate.upgrade(settings)
+    _add_accounts(settings)
     yield str(path)
+
+
+def _add_accounts(settings: Settings) -> None:
+    """One account per role, with API tokens, in the template (hashing once per run)."""
+    engine = make_engine(settings)
+    with Session(engine) as session:
+        for role in ROLES:
+            user = create_user(session, username=role, password=ACCOUNT_PASSWORD, role=role)
+            ACCOUNT_TOKENS[role] = start_session(session, user=user, api_token=True)
+    engine.dispose()
 
 
 @pytest.fixture
@@ -106,6 +124,17 @@ def app(settings: Settings) -> Iterator[FastAPI]:
 
 @pytest.fixture
 def client(app: FastAPI) -> Iterator[TestClient]:
+    """A client signed in as the admin account through its bearer token."""
+    with TestClient(app, headers=bearer("admin")) as test_client:
+        yield test_client
+
+
+def bearer(role: str) -> dict[str, str]:
+    return {"Authorization": f"Bearer {ACCOUNT_TOKENS[role]}"}
+
+
+@pytest.fixture
+def anonymous_client(app: FastAPI) -> Iterator[TestClient]:
     with TestClient(app) as test_client:
         yield test_client
 

@@ -295,11 +295,23 @@ def _initiatives_context(session: SessionDep, team_id: int, period: str | None) 
         "periods": periods,
         "period_key": str(period_id),
         "records": records,
-        "titles": {r.row.id: r.row.title for r in records},
+        "titles": _titles_with_needs(session, records),
         "states": INITIATIVE_STATES,
         "form": {"state": "candidate", "period_id": str(period_id)},
         "errors": {},
     }
+
+
+def _titles_with_needs(
+    session: SessionDep, records: list[initiative_store.InitiativeRecord]
+) -> dict[int | None, str]:
+    """Titles of the listed initiatives and of those they need (other periods or teams too)."""
+    titles: dict[int | None, str] = {r.row.id: r.row.title for r in records}
+    for needed_id in sorted({n for r in records for n in r.needs} - titles.keys()):
+        titles[needed_id] = initiative_store.get_initiative(
+            session, initiative_id=needed_id
+        ).row.title
+    return titles
 
 
 @router.get("/teams/{team_id}/initiatives")
@@ -345,6 +357,14 @@ def _percent_to_share(raw: str | None) -> Any:
         return raw
 
 
+def _in_percent(parsed: tuple[Any, dict[str, str]]) -> tuple[Any, dict[str, str]]:
+    """Phrase a refused confidence as the percentage the page asks for, not as a share."""
+    model, errors = parsed
+    if "confidence" in errors:
+        errors["confidence"] = "Enter a percentage above 0 and at most 100."
+    return model, errors
+
+
 def form_echo(form: FormData) -> dict[str, Any]:
     """The values as typed, to re-show a refused form unchanged."""
     echo: dict[str, Any] = {key: value for key, value in form.items() if isinstance(value, str)}
@@ -358,7 +378,7 @@ async def add_initiative(
 ) -> Response:
     form = await request.form()
     values = initiative_values(form, team_id)
-    initiative_in, errors = parse_form(InitiativeCreate, values)
+    initiative_in, errors = _in_percent(parse_form(InitiativeCreate, values))
     if initiative_in is not None:
         record, errors = _store_or_errors(
             lambda: initiative_store.create_initiative(session, initiative_in=initiative_in)
@@ -376,6 +396,13 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
     row = record.row
     effort = record.own_effort
     others = initiative_store.list_initiatives(session, team_id=row.team_id)
+    # Needs on other teams' work are offered too, or saving the form would drop them.
+    listed = {r.row.id for r in others}
+    others += [
+        initiative_store.get_initiative(session, initiative_id=needed_id)
+        for needed_id in record.needs
+        if needed_id not in listed
+    ]
     return {
         "record": record,
         "team": team_store.get_team(session, team_id=row.team_id),
@@ -424,7 +451,7 @@ async def edit_initiative(
     values = initiative_values(form, team_id)
     values.pop("team_id")
     values["version"] = _text(form, "version")
-    update_in, errors = parse_form(InitiativeUpdate, values)
+    update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
     if update_in is not None:
         try:
             initiative_store.update_initiative(

@@ -13,9 +13,10 @@ from server.capacity import (
     working_days,
 )
 from server.errors import ConflictError, InputError
-from server.models import CapacitySettings, Period
+from server.models import CapacitySettings, Period, Team
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
 from server.store._common import commit_or_conflict, get_or_404
+from server.validation import field_and_message
 
 
 def period_working_days(period: Period) -> int:
@@ -75,9 +76,10 @@ def update_period(session: Session, *, period_id: int, period_in: PeriodUpdate) 
     merged.update(period_in.model_dump(exclude_unset=True, exclude_none=True))
     try:
         fields = PeriodFields.model_validate(merged)
-    except ValidationError as exc:
-        first = exc.errors()[0]
-        raise InputError(str(first["msg"]).removeprefix("Value error, "), field="period") from exc
+    except ValidationError as exc:  # name the field the merged period fails on
+        field, message = field_and_message(exc.errors()[0])
+        field = field.split(".")[0]
+        raise InputError(f"{field}: {message}", field=field) from exc
     _check_name_free(session, fields.name, period_id)
     _apply(db_period, fields)
     session.add(db_period)
@@ -107,6 +109,9 @@ def get_capacity_settings(session: Session, *, team_id: int, period_id: int) -> 
 def set_capacity_settings(
     session: Session, *, team_id: int, period_id: int, settings_in: CapacitySettingsIn
 ) -> CapacitySettings:
+    # Unknown ids are a 404, not a foreign-key clash reported as a conflict.
+    get_or_404(session, Team, team_id, "team")
+    get_period(session, period_id=period_id)
     db_row = get_capacity_settings(session, team_id=team_id, period_id=period_id)
     db_row.focus_factor = settings_in.focus_factor
     db_row.reserve_pct = settings_in.reserve_pct

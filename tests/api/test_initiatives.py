@@ -1,0 +1,235 @@
+"""Initiatives through the JSON API: efforts, cross-team lines, needs, either-or, versions."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+import pytest
+from fastapi import FastAPI
+from fastapi.testclient import TestClient
+from sqlmodel import Session
+
+from server.errors import StaleVersionError
+from server.schemas import InitiativeUpdate
+from server.store.initiatives import get_initiative, update_initiative
+from tests.api.conftest import Snapshot, Workspace
+from tests.api.support import error_fields, error_text
+
+
+def _create(client: TestClient, **fields: Any) -> dict[str, Any]:
+    response = client.post("/api/v1/initiatives", json=fields)
+    assert response.status_code == 201, response.text
+    return response.json()
+
+
+def test_initiative_round_trip(client: TestClient, workspace: Workspace) -> None:
+    created = _create(
+        client,
+        team_id=workspace.team,
+        period_id=workspace.period,
+        title="Harbour crane upgrade",
+        notes="Replace the control cabin.",
+        effort={"low": 3, "likely": 5, "high": 9},
+        other_efforts=[{"team_id": workspace.other_team, "likely": 2, "low": 1, "high": 4}],
+        value=40,
+        confidence=0.8,
+        state="pinned",
+        either_or="Crane work",
+        needs=[workspace.initiative],
+    )
+    assert created["effort"] == {"team_id": workspace.team, "low": 3, "likely": 5, "high": 9}
+    assert created["other_efforts"] == [
+        {"team_id": workspace.other_team, "low": 1, "likely": 2, "high": 4}
+    ]
+    assert created["needs"] == [workspace.initiative]
+    assert (created["value"], created["confidence"], created["state"]) == (40, 0.8, "pinned")
+    assert created["either_or"] == "Crane work"
+    assert created["version"] == 1
+    assert client.get(f"/api/v1/initiatives/{created['id']}").json() == created
+
+    patched = client.patch(
+        f"/api/v1/initiatives/{created['id']}",
+        json={
+            "version": 1,
+            "title": "Crane upgrade",
+            "effort": 6,
+            "other_efforts": [],
+            "either_or": None,
+            "period_id": None,
+            "needs": [],
+            "state": "candidate",
+        },
+    )
+    assert patched.status_code == 200
+    after = patched.json()
+    assert after["version"] == 2
+    assert after["title"] == "Crane upgrade"
+    assert after["effort"] == {"team_id": workspace.team, "low": None, "likely": 6, "high": None}
+    assert after["other_efforts"] == []
+    assert (after["either_or"], after["period_id"], after["needs"]) == (None, None, [])
+    assert after["notes"] == "Replace the control cabin."  # untouched fields stay
+    assert after["confidence"] == 0.8
+
+    in_period = client.get(
+        f"/api/v1/initiatives?team_id={workspace.team}&period_id={workspace.period}"
+    ).json()
+    assert [i["title"] for i in in_period] == ["Quay wall", "Crane rail"]
+    backlog = client.get(f"/api/v1/initiatives?team_id={workspace.team}&backlog=true").json()
+    assert [i["id"] for i in backlog] == [created["id"]]
+    assert len(client.get("/api/v1/initiatives").json()) == 3
+
+    assert client.delete(f"/api/v1/initiatives/{created['id']}").status_code == 204
+    assert client.get(f"/api/v1/initiatives/{created['id']}").status_code == 404
+
+
+def test_a_bare_number_is_a_single_estimate(client: TestClient, workspace: Workspace) -> None:
+    created = _create(client, team_id=workspace.team, title="Bollards", effort=2.5, value=3)
+    assert created["effort"] == {
+        "team_id": workspace.team,
+        "low": None,
+        "likely": 2.5,
+        "high": None,
+    }
+    assert created["period_id"] is None  # no period: the backlog
+    assert (created["state"], created["confidence"], created["either_or"]) == (
+        "candidate",
+        None,
+        None,
+    )
+
+
+def test_cross_team_work_is_listed_for_the_team_it_involves(
+    client: TestClient, workspace: Workspace
+) -> None:
+    shared = _create(
+        client,
+        team_id=workspace.team,
+        period_id=workspace.period,
+        title="Shared signal mast",
+        effort=3,
+        other_efforts=[{"team_id": workspace.other_team, "likely": 5}],
+        value=20,
+    )
+    owned = client.get(f"/api/v1/initiatives?team_id={workspace.other_team}").json()
+    assert owned == []
+    involving = client.get(
+        f"/api/v1/initiatives?team_id={workspace.other_team}&scope=involving"
+    ).json()
+    assert [i["id"] for i in involving] == [shared["id"]]
+    assert involving[0]["other_efforts"][0]["likely"] == 5
+
+
+def test_either_or_set_is_shared_by_name(client: TestClient, workspace: Workspace) -> None:
+    build = _create(
+        client, team_id=workspace.team, title="Build", effort=8, value=9, either_or="Gate"
+    )
+    buy = _create(client, team_id=workspace.team, title="Buy", effort=2, value=6, either_or="Gate")
+    listed = client.get(f"/api/v1/initiatives?team_id={workspace.team}&backlog=true").json()
+    assert {i["id"]: i["either_or"] for i in listed} == {build["id"]: "Gate", buy["id"]: "Gate"}
+    # A blank set name means no set.
+    none = _create(client, team_id=workspace.team, title="Solo", effort=1, value=1, either_or=" ")
+    assert none["either_or"] is None
+
+
+@pytest.mark.parametrize("method", ["GET", "PATCH", "DELETE"])
+def test_unknown_initiative_is_404(client: TestClient, method: str) -> None:
+    body = {"version": 1, "title": "x"} if method == "PATCH" else None
+    assert client.request(method, "/api/v1/initiatives/4711", json=body).status_code == 404
+
+
+def test_a_stale_version_is_409_with_the_current_values(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    url = f"/api/v1/initiatives/{workspace.initiative}"
+    first = client.patch(url, json={"version": 1, "title": "Quay wall, north"})
+    assert first.status_code == 200
+    before = snapshot()
+
+    second = client.patch(url, json={"version": 1, "title": "Quay wall, south", "value": 99})
+    assert second.status_code == 409
+    detail = second.json()["detail"]
+    assert detail["field"] == "version"
+    assert detail["current"]["title"] == "Quay wall, north"
+    assert detail["current"]["version"] == 2
+    assert detail["current"] == client.get(url).json()
+    assert snapshot() == before
+
+
+def test_a_change_that_raced_past_the_check_is_still_refused(
+    app: FastAPI, workspace: Workspace
+) -> None:
+    # Two writers read version 1; the second one's check passes on its stale copy, and the
+    # versioned UPDATE ... WHERE version = 1 is what refuses it.
+    with Session(app.state.engine, expire_on_commit=False) as slow:
+        stale = get_initiative(slow, initiative_id=workspace.initiative)
+        assert stale.row.version == 1
+        with Session(app.state.engine, expire_on_commit=False) as fast:
+            update_initiative(
+                fast,
+                initiative_id=workspace.initiative,
+                initiative_in=InitiativeUpdate(version=1, title="Fast"),
+            )
+        with pytest.raises(StaleVersionError) as refused:
+            update_initiative(
+                slow,
+                initiative_id=workspace.initiative,
+                initiative_in=InitiativeUpdate(version=1, title="Slow"),
+            )
+        assert "while you saved" in refused.value.message  # the UPDATE refused it, not the check
+        assert refused.value.current["title"] == "Fast"
+    with Session(app.state.engine) as check:
+        assert get_initiative(check, initiative_id=workspace.initiative).row.title == "Fast"
+
+
+def test_a_needs_cycle_is_refused_naming_needs(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # "Crane rail" needs "Quay wall"; making "Quay wall" need "Crane rail" closes a cycle.
+    before = snapshot()
+    response = client.patch(
+        f"/api/v1/initiatives/{workspace.initiative}",
+        json={"version": 1, "needs": [workspace.dependant]},
+    )
+    assert response.status_code == 422
+    assert error_fields(response) == ["needs"]
+    assert "Quay wall" in error_text(response)
+    assert "Crane rail" in error_text(response)
+    assert snapshot() == before
+
+
+def test_a_longer_needs_cycle_is_refused(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Crane rail -> Quay wall; Signals -> Crane rail; now Quay wall -> Signals would loop.
+    signals = _create(
+        client,
+        team_id=workspace.team,
+        title="Signals",
+        effort=1,
+        value=2,
+        needs=[workspace.dependant],
+    )
+    before = snapshot()
+    response = client.patch(
+        f"/api/v1/initiatives/{workspace.initiative}",
+        json={"version": 1, "needs": [signals["id"]]},
+    )
+    assert response.status_code == 422
+    assert error_fields(response) == ["needs"]
+    assert "Signals" in error_text(response)
+    assert snapshot() == before
+    # Needs that do not loop back are fine: Signals may also need Quay wall directly.
+    fine = client.patch(
+        f"/api/v1/initiatives/{signals['id']}",
+        json={"version": 1, "needs": [workspace.dependant, workspace.initiative]},
+    )
+    assert fine.status_code == 200
+    assert fine.json()["needs"] == sorted([workspace.dependant, workspace.initiative])
+
+
+def test_deleting_a_needed_initiative_drops_the_need(
+    client: TestClient, workspace: Workspace
+) -> None:
+    assert client.delete(f"/api/v1/initiatives/{workspace.initiative}").status_code == 204
+    assert client.get(f"/api/v1/initiatives/{workspace.dependant}").json()["needs"] == []

@@ -1,0 +1,167 @@
+"""The home page: teams and periods, and the forms that add them."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pytest
+from fastapi import FastAPI
+from fastapi.testclient import TestClient
+from sqlmodel import Session, select
+
+from server import demo
+from server.models import Period, Team
+from tests.factories import make_period, make_team
+from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
+
+PERIOD_FORM = {
+    "name": "Sprint 2",
+    "kind": "sprint",
+    "start_date": "2027-03-15",
+    "end_date": "2027-03-26",
+    "non_working_dates": "2027-03-19",
+    "weekmask": "1111100",
+}
+
+
+def _teams(session: Session) -> list[str]:
+    session.expire_all()
+    return [team.name for team in session.exec(select(Team))]
+
+
+def _periods(session: Session) -> list[str]:
+    session.expire_all()
+    return [period.name for period in session.exec(select(Period))]
+
+
+def test_home_lists_the_demo_teams_and_periods(client: TestClient, app: FastAPI) -> None:
+    demo.load_if_empty(app.state.engine)
+    page = parse(client.get("/").text)
+    links = {a.text(): a.attrs["href"] for a in page.find_all("a")}
+    for name in demo.TEAMS:
+        assert links[name].startswith("/teams/")
+    rows = {
+        row.find("td").text(): [cell.text() for cell in row.find_all("td")]
+        for row in page.find("table").find_all("tr")[1:]
+    }
+    assert set(rows) == {demo.QUARTER} | {f"Sprint 27.{n}" for n in range(1, 7)}
+    # The quarter: 13 weeks of 5 weekdays minus two company days off (counted on a calendar).
+    assert rows[demo.QUARTER][1] == "quarter"
+    assert rows[demo.QUARTER][-1] == "63"
+    # Sprint 27.1 is 4-15 January 2027: two weeks, no days off.
+    assert rows["Sprint 27.1"][-1] == "10"
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_empty_home_says_so(client: TestClient) -> None:
+    text = parse(client.get("/").text).text()
+    assert "No teams yet." in text
+    assert "No periods yet." in text
+
+
+def test_adding_a_team_redirects_to_its_page(form_client: TestClient, session: Session) -> None:
+    response = form_client.post(
+        "/teams", data={"name": "Harbour", "csrf_token": form_client.csrf}, follow_redirects=False
+    )
+    assert response.status_code == 303
+    team = session.exec(select(Team)).one()
+    assert response.headers["location"] == f"/teams/{team.id}"
+    assert "Harbour" in form_client.get(response.headers["location"]).text
+
+
+def test_a_form_without_its_token_is_refused_and_stores_nothing(
+    form_client: TestClient, session: Session
+) -> None:
+    response = form_client.post("/teams", data={"name": "Harbour"}, follow_redirects=False)
+    assert response.status_code == 403
+    response = form_client.post(
+        "/teams", data={"name": "Harbour", "csrf_token": "0" * 64}, follow_redirects=False
+    )
+    assert response.status_code == 403
+    response = form_client.post("/periods", data=PERIOD_FORM, follow_redirects=False)
+    assert response.status_code == 403
+    assert _teams(session) == []
+    assert _periods(session) == []
+
+
+@pytest.mark.parametrize(
+    ("typed", "message"),
+    [("", "at least 1 character"), ("   ", "at least 1 character"), ("t" * 81, "at most 80")],
+)
+def test_a_bad_team_name_is_shown_again_with_the_message(
+    form_client: TestClient, session: Session, typed: str, message: str
+) -> None:
+    response = form_client.post("/teams", data={"name": typed, "csrf_token": form_client.csrf})
+    assert response.status_code == 422
+    form = Form(parse(response.text), "/teams")
+    assert form.value("name") == typed.strip()
+    assert message in form.error("name")
+    assert _teams(session) == []
+
+
+def test_a_duplicate_team_name_is_shown_again(form_client: TestClient, session: Session) -> None:
+    make_team(session, "Harbour")
+    response = form_client.post("/teams", data={"name": "HARBOUR", "csrf_token": form_client.csrf})
+    assert response.status_code == 422
+    page = parse(response.text)
+    form = Form(page, "/teams")
+    assert form.value("name") == "HARBOUR"
+    assert "already exists" in form.error("name")
+    assert _teams(session) == ["Harbour"]
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_adding_a_period(form_client: TestClient, session: Session) -> None:
+    response = form_client.post(
+        "/periods", data=PERIOD_FORM | {"csrf_token": form_client.csrf}, follow_redirects=False
+    )
+    assert response.status_code == 303
+    period = session.exec(select(Period)).one()
+    assert (period.start_date, period.end_date) == (dt.date(2027, 3, 15), dt.date(2027, 3, 26))
+    assert period.non_working_dates == ["2027-03-19"]
+    rows = parse(form_client.get("/").text).find("table").find_all("tr")
+    assert [cell.text() for cell in rows[1].find_all("td")][-1] == "9"  # 10 weekdays - 1
+
+
+@pytest.mark.parametrize(
+    ("change", "field", "message"),
+    [
+        ({"end_date": "2027-03-12"}, "end_date", "ends before it starts"),
+        ({"end_date": "2028-06-30"}, "end_date", "at most 400 days"),
+        ({"start_date": ""}, "start_date", "date"),
+        ({"non_working_dates": "2027-04-01"}, "non_working_dates", "outside the period"),
+        ({"non_working_dates": "2027-03-40"}, "non_working_dates", "date"),
+        ({"weekmask": "11111"}, "weekmask", "pattern"),
+        ({"kind": "month"}, "kind", "sprint"),
+        ({"name": "p" * 81}, "name", "at most 80"),
+    ],
+)
+def test_a_bad_period_is_shown_again_with_the_values_kept(
+    form_client: TestClient,
+    session: Session,
+    change: dict[str, str],
+    field: str,
+    message: str,
+) -> None:
+    typed = PERIOD_FORM | change
+    response = form_client.post("/periods", data=typed | {"csrf_token": form_client.csrf})
+    assert response.status_code == 422
+    form = Form(parse(response.text), "/periods")
+    for name in ("name", "start_date", "end_date", "non_working_dates", "weekmask"):
+        assert form.value(name) == typed[name], name
+    if field != "kind":
+        assert form.value("kind") == "sprint"
+    assert message in form.error(field)
+    assert _periods(session) == []
+
+
+def test_a_duplicate_period_name_is_shown_again(form_client: TestClient, session: Session) -> None:
+    make_period(session, "Sprint 2")
+    response = form_client.post(
+        "/periods", data=PERIOD_FORM | {"name": "sprint 2", "csrf_token": form_client.csrf}
+    )
+    assert response.status_code == 422
+    form = Form(parse(response.text), "/periods")
+    assert form.value("name") == "sprint 2"
+    assert "already exists" in form.error("name")
+    assert _periods(session) == ["Sprint 2"]

@@ -1,0 +1,361 @@
+"""Initiative pages: the list per team and period, and adding, editing and deleting by form."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import pytest
+from fastapi.testclient import TestClient
+from sqlmodel import Session, select
+
+from server.models import Initiative, Team
+from server.schemas import EffortIn, InitiativeUpdate
+from server.store.initiatives import InitiativeRecord, get_initiative, update_initiative
+from tests.factories import make_initiative, make_period, make_team
+from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
+
+
+@dataclass(frozen=True)
+class Stored:
+    team: int
+    period: int
+    quay: int  # "Quay wall": 3 days, value 10, in Sprint 1
+    crane: int  # "Crane rail": 2 / 4 / 7 days, value 8, pinned, 80 % sure, needs Quay wall
+
+
+@pytest.fixture
+def stored(session: Session) -> Stored:
+    harbour = make_team(session, "Harbour")
+    make_team(session, "Lighthouse")
+    sprint = make_period(session, "Sprint 1")
+    quay = make_initiative(session, harbour, sprint, "Quay wall", effort=3, value=10)
+    crane = make_initiative(session, harbour, sprint, "Crane rail", value=8, effort=4)
+    update_initiative(
+        session,
+        initiative_id=crane.row.id or 0,
+        initiative_in=InitiativeUpdate(
+            version=1,
+            effort=EffortIn(low=2, likely=4, high=7),
+            state="pinned",
+            confidence=0.8,
+            either_or="Lifting",
+            needs=[quay.row.id or 0],
+        ),
+    )
+    return Stored(harbour.id or 0, sprint.id or 0, quay.row.id or 0, crane.row.id or 0)
+
+
+ADD = {
+    "title": "Fender replacement",
+    "effort.likely": "5",
+    "effort.low": "3",
+    "effort.high": "9",
+    "value": "40",
+    "confidence": "75",
+    "state": "candidate",
+    "either_or": "",
+    "notes": "Both berths.",
+}
+
+
+def _post(client: TestClient, url: str, data: dict[str, Any]) -> Any:
+    token = client.csrf  # type: ignore[attr-defined]
+    return client.post(url, data=data | {"csrf_token": token}, follow_redirects=False)
+
+
+def _record(session: Session, initiative_id: int) -> InitiativeRecord:
+    session.expire_all()
+    return get_initiative(session, initiative_id=initiative_id)
+
+
+def _titles(session: Session) -> list[str]:
+    session.expire_all()
+    return sorted(row.title for row in session.exec(select(Initiative)))
+
+
+def test_list_shows_efforts_states_needs_and_sets(client: TestClient, stored: Stored) -> None:
+    page = parse(client.get(f"/teams/{stored.team}/initiatives").text)  # first period by default
+    rows = {
+        row.find("th").text(): [cell.text() for cell in row.find_all("td")]
+        for row in page.find("table", cls="initiatives").find_all("tr")[1:]
+    }
+    assert list(rows) == ["Quay wall", "Crane rail"]
+    assert rows["Quay wall"][:2] == ["3", "10"]
+    effort, value, confidence, state, either_or, needs = rows["Crane rail"][:6]
+    assert (effort, value, confidence) == ("2 / 4 / 7", "8", "80 %")
+    assert (state, either_or, needs) == ("pinned", "Lifting", "Quay wall")
+    edit = page.find("a", href=f"/initiatives/{stored.crane}/edit")
+    assert "Edit" in edit.text()
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_backlog_list_is_separate(client: TestClient, session: Session, stored: Stored) -> None:
+    team = make_team(session, "Tugs")
+    make_initiative(session, team, None, "Someday dredging")
+    page = parse(client.get(f"/teams/{team.id}/initiatives?period=backlog").text)
+    assert [r.find("th").text() for r in page.find("table").find_all("tr")[1:]] == [
+        "Someday dredging"
+    ]
+    in_sprint = client.get(f"/teams/{team.id}/initiatives?period={stored.period}").text
+    assert "No initiatives here yet." in in_sprint
+
+
+def test_adding_an_initiative_through_the_form(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    data = ADD | {
+        "period_id": str(stored.period),
+        "either_or": "Berths",
+        "state": "pinned",
+        "needs": [str(stored.quay), str(stored.crane)],
+    }
+    response = _post(form_client, f"/teams/{stored.team}/initiatives", data)
+    assert response.status_code == 303
+    assert (
+        response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
+    )
+    row = session.exec(select(Initiative).where(Initiative.title == "Fender replacement")).one()
+    record = _record(session, row.id or 0)
+    effort = record.own_effort
+    assert (effort.low, effort.likely, effort.high) == (3, 5, 9)
+    assert (row.value, row.confidence, row.state, row.either_or) == (40, 0.75, "pinned", "Berths")
+    assert row.notes == "Both berths."
+    assert sorted(record.needs) == sorted([stored.quay, stored.crane])
+    assert "Fender replacement" in form_client.get(response.headers["location"]).text
+
+
+def test_adding_to_the_backlog_with_a_single_estimate(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    data = ADD | {"effort.low": "", "effort.high": "", "confidence": "", "period_id": "backlog"}
+    response = _post(form_client, f"/teams/{stored.team}/initiatives", data)
+    assert response.status_code == 303
+    assert response.headers["location"].endswith("?period=backlog")
+    row = session.exec(select(Initiative).where(Initiative.title == "Fender replacement")).one()
+    effort = _record(session, row.id or 0).own_effort
+    assert (effort.low, effort.likely, effort.high) == (None, 5, None)
+    assert (row.period_id, row.confidence) == (None, None)
+
+
+@pytest.mark.parametrize(
+    ("change", "field", "message"),
+    [
+        ({"title": ""}, "title", "at least 1 character"),
+        ({"title": "i" * 201}, "title", "at most 200"),
+        (
+            {"effort.likely": "abc", "effort.low": "", "effort.high": ""},
+            "effort.likely",
+            "Enter a number",
+        ),
+        (
+            {"effort.likely": "-3", "effort.low": "", "effort.high": ""},
+            "effort.likely",
+            "greater than 0",
+        ),
+        ({"effort.likely": "", "effort.low": "", "effort.high": ""}, "effort.likely", "number"),
+        ({"effort.low": "6"}, "effort.low", "above the likely"),
+        ({"effort.high": "4"}, "effort.high", "below the likely"),
+        ({"effort.high": ""}, "effort.high", "low and high together"),
+        ({"value": "abc"}, "value", "Enter a number"),
+        ({"value": "0"}, "value", "greater than 0"),
+        ({"confidence": "150"}, "confidence", "at most 100"),
+        ({"confidence": "sure"}, "confidence", "percentage"),
+        ({"either_or": "e" * 81}, "either_or", "at most 80"),
+    ],
+)
+def test_a_bad_initiative_form_is_shown_again(
+    form_client: TestClient,
+    session: Session,
+    stored: Stored,
+    change: dict[str, str],
+    field: str,
+    message: str,
+) -> None:
+    typed = ADD | {"period_id": str(stored.period)} | change
+    response = _post(form_client, f"/teams/{stored.team}/initiatives", typed)
+    assert response.status_code == 422
+    page = parse(response.text)
+    form = Form(page, f"/teams/{stored.team}/initiatives")
+    for name in ("title", "effort.likely", "effort.low", "effort.high", "value", "confidence"):
+        assert form.value(name) == typed[name], name
+    assert form.value("notes") == typed["notes"]
+    assert form.value("period_id") == str(stored.period)
+    assert message in form.error(field)
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_adding_without_the_token_is_refused(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    url = f"/teams/{stored.team}/initiatives"
+    response = form_client.post(url, data=ADD | {"period_id": str(stored.period)})
+    assert response.status_code == 403
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+
+
+def test_edit_page_shows_the_stored_values(client: TestClient, stored: Stored) -> None:
+    page = parse(client.get(f"/initiatives/{stored.crane}/edit").text)
+    form = Form(page, f"/initiatives/{stored.crane}")
+    assert form.value("title") == "Crane rail"
+    assert (form.value("effort.low"), form.value("effort.likely"), form.value("effort.high")) == (
+        "2",
+        "4",
+        "7",
+    )
+    assert (form.value("value"), form.value("confidence"), form.value("state")) == (
+        "8",
+        "80",
+        "pinned",
+    )
+    assert form.value("needs") == str(stored.quay)
+    assert form.value("version") == "2"
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_editing_through_the_form(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    data = ADD | {"title": "Quay wall, north", "version": "1", "period_id": "backlog"}
+    response = _post(form_client, f"/initiatives/{stored.quay}", data)
+    assert response.status_code == 303
+    record = _record(session, stored.quay)
+    assert record.row.title == "Quay wall, north"
+    assert (record.own_effort.low, record.own_effort.likely, record.own_effort.high) == (3, 5, 9)
+    assert (record.row.version, record.row.period_id) == (2, None)
+
+
+def test_a_stale_edit_shows_both_versions(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    # Someone else saves version 2 after this person opened the form at version 1.
+    form_client.patch(
+        f"/api/v1/initiatives/{stored.quay}", json={"version": 1, "title": "Quay wall (theirs)"}
+    )
+    mine = ADD | {"title": "Quay wall (mine)", "version": "1", "period_id": str(stored.period)}
+    response = _post(form_client, f"/initiatives/{stored.quay}", mine)
+    assert response.status_code == 409
+    page = parse(response.text)
+    form = Form(page, f"/initiatives/{stored.quay}")
+    assert form.value("title") == "Quay wall (mine)"  # the person's values are kept
+    assert form.value("effort.likely") == "5"
+    assert form.value("version") == "2"  # saving again applies on top of the current version
+    conflict = page.find("section", cls="conflict").text()
+    assert "Quay wall (theirs)" in conflict
+    assert "Someone else changed this initiative" in conflict
+    assert _record(session, stored.quay).row.title == "Quay wall (theirs)"
+
+    again = _post(form_client, f"/initiatives/{stored.quay}", mine | {"version": "2"})
+    assert again.status_code == 303
+    assert _record(session, stored.quay).row.title == "Quay wall (mine)"
+
+
+@pytest.mark.parametrize(
+    ("change", "field", "message"),
+    [
+        ({"effort.likely": "-3", "effort.low": "", "effort.high": ""}, "effort.likely", "greater"),
+        ({"effort.low": "6"}, "effort.low", "above the likely"),
+        ({"title": " "}, "title", "at least 1 character"),
+    ],
+)
+def test_a_bad_edit_is_shown_again_and_changes_nothing(
+    form_client: TestClient,
+    session: Session,
+    stored: Stored,
+    change: dict[str, str],
+    field: str,
+    message: str,
+) -> None:
+    typed = ADD | {"version": "1", "period_id": str(stored.period)} | change
+    response = _post(form_client, f"/initiatives/{stored.quay}", typed)
+    assert response.status_code == 422
+    form = Form(parse(response.text), f"/initiatives/{stored.quay}")
+    assert form.value("effort.likely") == typed["effort.likely"]
+    assert form.value("title") == typed["title"]
+    assert message in form.error(field)
+    record = _record(session, stored.quay)
+    assert (record.row.title, record.row.version, record.own_effort.likely) == ("Quay wall", 1, 3)
+
+
+def test_a_needs_cycle_in_the_edit_form_is_refused(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    # Crane rail needs Quay wall; making Quay wall need Crane rail would loop.
+    typed = ADD | {"version": "1", "period_id": str(stored.period), "needs": [str(stored.crane)]}
+    response = _post(form_client, f"/initiatives/{stored.quay}", typed)
+    assert response.status_code == 422
+    form = Form(parse(response.text), f"/initiatives/{stored.quay}")
+    assert "needs cycle" in form.error("needs")
+    assert form.value("needs") == str(stored.crane)
+    assert _record(session, stored.quay).needs == []
+
+
+def test_deleting_through_the_form(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    without_token = form_client.post(f"/initiatives/{stored.quay}/delete")
+    assert without_token.status_code == 403
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+
+    response = _post(form_client, f"/initiatives/{stored.quay}/delete", {})
+    assert response.status_code == 303
+    assert (
+        response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
+    )
+    assert _titles(session) == ["Crane rail"]
+    assert _record(session, stored.crane).needs == []
+
+
+def test_unknown_initiative_pages_are_404(form_client: TestClient) -> None:
+    assert form_client.get("/initiatives/4711/edit").status_code == 404
+    assert _post(form_client, "/initiatives/4711", ADD | {"version": "1"}).status_code == 404
+    assert _post(form_client, "/initiatives/4711/delete", {}).status_code == 404
+
+
+def test_editing_keeps_cross_team_needs_and_effort_lines(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    # A Lighthouse initiative that needs Harbour's "Quay wall" and carries Harbour effort.
+    lighthouse = make_team(session, "Beacons")
+    beacon = make_initiative(
+        session,
+        lighthouse,
+        None,
+        "Beacon on the quay",
+        effort=4,
+        needs=[stored.quay],
+        other_efforts=[{"team_id": stored.team, "likely": 1.5}],
+    )
+    page = parse(form_client.get(f"/initiatives/{beacon.row.id}/edit").text)
+    form = Form(page, f"/initiatives/{beacon.row.id}")
+    assert form.value("needs") == str(stored.quay)  # offered, and selected
+    # The browser sends back what the form shows, with a new title.
+    data = {
+        name: form.value(name)
+        for name in ("title", "effort.likely", "effort.low", "effort.high", "value")
+    }
+    data |= {
+        "title": "Beacon on the north quay",
+        "state": "candidate",
+        "period_id": "backlog",
+        "version": "1",
+        "needs": [str(stored.quay)],
+    }
+    assert _post(form_client, f"/initiatives/{beacon.row.id}", data).status_code == 303
+    record = _record(session, beacon.row.id or 0)
+    assert record.row.title == "Beacon on the north quay"
+    assert record.needs == [stored.quay]
+    assert record.efforts[stored.team].likely == 1.5
+
+
+def test_list_names_needs_in_other_periods(
+    client: TestClient, session: Session, stored: Stored
+) -> None:
+    harbour = session.get(Team, stored.team)
+    assert harbour is not None
+    later = make_initiative(session, harbour, None, "Crane cab", needs=[stored.crane])
+    page = parse(client.get(f"/teams/{stored.team}/initiatives?period=backlog").text)
+    row = page.find("table", cls="initiatives").find_all("tr")[1]
+    assert row.find("th").text() == later.row.title
+    assert row.find_all("td")[5].text() == "Crane rail"  # by title, not by number

@@ -1,0 +1,262 @@
+"""The team page: members, availability per period and the capacity breakdown."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import pytest
+from fastapi.testclient import TestClient
+from sqlmodel import Session, select
+
+from server.models import Availability, CapacitySettings, Member
+from tests.factories import make_member, make_period, make_team, set_days_off
+from tests.pages.parsed_page import (
+    Element,
+    Form,
+    ids_are_unique_and_labels_point_at_fields,
+    parse,
+)
+
+
+@dataclass(frozen=True)
+class Team:
+    id: int
+    period: int
+    ola: int
+    kari: int
+    other_team_member: int
+
+
+@pytest.fixture
+def team(session: Session) -> Team:
+    """Harbour: Ola full time with 2 days off, Kari half time; Sprint 1 has 10 working days."""
+    harbour = make_team(session, "Harbour")
+    ola = make_member(session, harbour, "Ola", 1.0)
+    kari = make_member(session, harbour, "Kari", 0.5)
+    sprint = make_period(session, "Sprint 1")
+    set_days_off(session, ola, sprint, 2)
+    stranger = make_member(session, make_team(session, "Lighthouse"), "Sol")
+    return Team(harbour.id or 0, sprint.id or 0, ola.id or 0, kari.id or 0, stranger.id or 0)
+
+
+def _breakdown(page: Element) -> dict[str, str]:
+    table = page.find("table", cls="breakdown")
+    return {row.find("th").text(): row.find("td").text() for row in table.find_all("tr")}
+
+
+def _post(client: TestClient, url: str, data: dict[str, str]) -> object:
+    return client.post(url, data=data | {"csrf_token": client.csrf}, follow_redirects=False)  # type: ignore[attr-defined]
+
+
+def _days_off(session: Session, member_id: int) -> list[float]:
+    session.expire_all()
+    query = select(Availability.days_off).where(Availability.member_id == member_id)
+    return list(session.exec(query))
+
+
+def test_team_page_shows_members_availability_and_capacity(client: TestClient, team: Team) -> None:
+    page = parse(client.get(f"/teams/{team.id}").text)
+    assert page.find("h1").text() == "Harbour"
+    members = page.find("table", cls="availability")
+    rows = {row.find("th").text(): row for row in members.find_all("tr")[1:]}
+    assert set(rows) == {"Ola", "Kari"}  # not Sol, who is on another team
+    assert rows["Kari"].find("td").text() == "50 %"
+    ola_form = Form(page, f"/teams/{team.id}/availability", member_id=str(team.ola))
+    assert ola_form.value("days_off") == "2"
+    assert ola_form.value("period_id") == str(team.period)
+    assert (
+        Form(page, f"/teams/{team.id}/availability", member_id=str(team.kari)).value("days_off")
+        == "0"
+    )
+
+    # Worked by hand: (10 - 2) x 1 = 8 and (10 - 0) x 0.5 = 5; 13 x 0.7 = 9.1;
+    # reserve 15 % = 1.365 (shown 1.4); capacity 7.735 (shown 7.7).
+    breakdown = _breakdown(page)
+    assert breakdown["Working days in the period"] == "10"
+    assert breakdown["Ola: (10 − 2 days off) × 1"] == "8"
+    assert breakdown["Kari: (10 − 0 days off) × 0.5"] == "5"
+    assert breakdown["Available person-days"] == "13"
+    assert breakdown["× focus factor 0.7"] == "9.1"
+    assert breakdown["− reserve 15 %"] == "1.4"
+    assert breakdown["Capacity for planned work"] == "7.7 days"
+    settings = Form(page, f"/teams/{team.id}/capacity")
+    assert (settings.value("focus_factor"), settings.value("reserve_pct")) == ("0.7", "15")
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
+def test_team_page_without_periods_points_to_the_home_page(
+    client: TestClient, session: Session
+) -> None:
+    harbour = make_team(session, "Harbour")
+    page = parse(client.get(f"/teams/{harbour.id}").text)
+    assert "Add a period" in page.text()
+    assert page.find_all("table", cls="breakdown") == []
+
+
+def test_unknown_team_page_is_404(client: TestClient) -> None:
+    response = client.get("/teams/4711")
+    assert response.status_code == 404
+    assert "No team with id 4711" in response.text
+
+
+def test_setting_days_off_through_the_form(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/availability"
+    data = {"member_id": str(team.ola), "period_id": str(team.period), "days_off": "3"}
+    response = _post(form_client, url, data)
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    assert _days_off(session, team.ola) == [3]
+    # (7 + 5) x 0.7 = 8.4; reserve 15 % = 1.26; capacity 7.14 (shown 7.1).
+    page = parse(form_client.get(response.headers["location"]).text)  # type: ignore[attr-defined]
+    assert _breakdown(page)["Capacity for planned work"] == "7.1 days"
+
+
+@pytest.mark.parametrize(
+    ("days_off", "allocation", "field", "message"),
+    [
+        ("11", "", "days_off", "more than the 10 working days"),
+        ("-1", "", "days_off", "greater than or equal to 0"),
+        ("abc", "", "days_off", "Enter a number"),
+        ("nan", "", "days_off", "finite number"),
+        ("1", "1.5", "allocation", "less than or equal to 1"),
+    ],
+)
+def test_bad_days_off_are_shown_again_in_the_member_row(
+    form_client: TestClient,
+    session: Session,
+    team: Team,
+    days_off: str,
+    allocation: str,
+    field: str,
+    message: str,
+) -> None:
+    url = f"/teams/{team.id}/availability"
+    data = {
+        "member_id": str(team.ola),
+        "period_id": str(team.period),
+        "days_off": days_off,
+        "allocation": allocation,
+    }
+    response = _post(form_client, url, data)
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    page = parse(response.text)  # type: ignore[attr-defined]
+    row = Form(page, url, member_id=str(team.ola))
+    assert row.value("days_off") == days_off
+    assert row.value("allocation") == allocation
+    assert message in " ".join(row.errors())
+    assert field.replace("_", " ") in " ".join(row.errors())
+    # Kari's row is untouched and shows no message.
+    assert Form(page, url, member_id=str(team.kari)).errors() == []
+    assert _days_off(session, team.ola) == [2]
+
+
+def test_availability_for_a_member_of_another_team_is_refused(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    data = {
+        "member_id": str(team.other_team_member),
+        "period_id": str(team.period),
+        "days_off": "1",
+    }
+    response = _post(form_client, f"/teams/{team.id}/availability", data)
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    assert _days_off(session, team.other_team_member) == []
+
+
+def test_days_off_form_without_token_is_refused(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    data = {"member_id": str(team.ola), "period_id": str(team.period), "days_off": "5"}
+    response = form_client.post(f"/teams/{team.id}/availability", data=data)
+    assert response.status_code == 403
+    assert _days_off(session, team.ola) == [2]
+
+
+def test_adding_a_member_through_the_form(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    data = {"name": "Eli", "allocation": "0.6", "period_id": str(team.period)}
+    response = _post(form_client, f"/teams/{team.id}/members", data)
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    assert response.headers["location"] == f"/teams/{team.id}?period_id={team.period}"  # type: ignore[attr-defined]
+    eli = session.exec(select(Member).where(Member.name == "Eli")).one()
+    assert eli.allocation == 0.6
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    # Eli adds 10 x 0.6 = 6 person-days: (13 + 6) x 0.7 x 0.85 = 11.305 (shown 11.3).
+    assert _breakdown(page)["Capacity for planned work"] == "11.3 days"
+
+
+@pytest.mark.parametrize(
+    ("name", "allocation", "field", "message"),
+    [
+        ("", "1", "name", "at least 1 character"),
+        ("Ola", "1", "name", "already has a member"),
+        ("Eli", "2", "allocation", "less than or equal to 1"),
+        ("Eli", "0", "allocation", "greater than 0"),
+        ("Eli", "full", "allocation", "Enter a number"),
+    ],
+)
+def test_a_bad_member_is_shown_again(
+    form_client: TestClient,
+    session: Session,
+    team: Team,
+    name: str,
+    allocation: str,
+    field: str,
+    message: str,
+) -> None:
+    data = {"name": name, "allocation": allocation, "period_id": str(team.period)}
+    response = _post(form_client, f"/teams/{team.id}/members", data)
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    form = Form(parse(response.text), f"/teams/{team.id}/members")  # type: ignore[attr-defined]
+    assert (form.value("name"), form.value("allocation")) == (name, allocation)
+    assert message in form.error(field)
+    session.expire_all()
+    assert len(list(session.exec(select(Member)))) == 3
+
+
+def test_setting_focus_factor_and_reserve(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    data = {"focus_factor": "0.8", "reserve_pct": "10", "period_id": str(team.period)}
+    response = _post(form_client, f"/teams/{team.id}/capacity", data)
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
+    # 13 x 0.8 = 10.4; reserve 10 % = 1.04; capacity 9.36 (shown 9.4).
+    breakdown = _breakdown(page)
+    assert breakdown["× focus factor 0.8"] == "10.4"
+    assert breakdown["Capacity for planned work"] == "9.4 days"
+
+
+@pytest.mark.parametrize(
+    ("focus", "reserve", "field"),
+    [
+        ("0", "15", "focus_factor"),
+        ("1.5", "15", "focus_factor"),
+        ("-1", "15", "focus_factor"),
+        ("inf", "15", "focus_factor"),
+        ("0.7", "100", "reserve_pct"),
+        ("0.7", "-5", "reserve_pct"),
+        ("0.7", "lots", "reserve_pct"),
+    ],
+)
+def test_bad_focus_or_reserve_is_shown_again(
+    form_client: TestClient,
+    session: Session,
+    team: Team,
+    focus: str,
+    reserve: str,
+    field: str,
+) -> None:
+    data = {"focus_factor": focus, "reserve_pct": reserve, "period_id": str(team.period)}
+    response = _post(form_client, f"/teams/{team.id}/capacity", data)
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    page = parse(response.text)  # type: ignore[attr-defined]
+    form = Form(page, f"/teams/{team.id}/capacity")
+    assert (form.value("focus_factor"), form.value("reserve_pct")) == (focus, reserve)
+    assert form.error(field)
+    other = "reserve_pct" if field == "focus_factor" else "focus_factor"
+    assert form.error(other) == ""
+    assert list(session.exec(select(CapacitySettings))) == []
+    ids_are_unique_and_labels_point_at_fields(page)
