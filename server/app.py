@@ -76,6 +76,16 @@ def _add_error_handlers(app: FastAPI) -> None:
 
     @app.exception_handler(LoadlineError)
     async def _domain(request: Request, exc: LoadlineError) -> Response:
+        if _wants_json(request) and exc.status_code == 422:
+            # The same shape as request validation errors: a list naming each field.
+            field = exc.field or "body"
+            error = {
+                "loc": ["body", field],
+                "msg": exc.message,
+                "type": "value_error",
+                "field": field,
+            }
+            return JSONResponse({"detail": [error]}, status_code=422)
         if _wants_json(request):
             return JSONResponse({"detail": exc.detail()}, status_code=exc.status_code)
         return request.app.state.templates.TemplateResponse(

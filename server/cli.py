@@ -46,7 +46,11 @@ def _demo(args: argparse.Namespace) -> int:
     settings = Settings.from_env()
     migrate.upgrade(settings)
     engine = make_engine(settings)
-    if demo.load_if_empty(engine):
+    try:
+        loaded = demo.load_if_empty(engine)
+    finally:
+        engine.dispose()
+    if loaded:
         print("Loaded the demo workspace.")
         return 0
     print("The database already has teams or periods; the demo loads only into an empty one.")

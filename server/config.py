@@ -13,6 +13,7 @@ from pathlib import Path
 
 PROJECT_ROOT = Path(__file__).resolve().parent.parent
 DEFAULT_DATA_DIR = PROJECT_ROOT / "data"
+MIN_SECRET_LENGTH = 32
 _PLACEHOLDER_SECRETS = {"", "change-me", "changeme", "secret", "dev"}
 
 
@@ -90,6 +91,11 @@ class Settings:
         if not 0 < self.resolution_days <= 10:
             raise ValueError("LOADLINE_RESOLUTION must be between 0 and 10 days")
         secret = self.secret_key
+        if self.environment == "production" and len(secret) < MIN_SECRET_LENGTH:
+            raise ValueError(
+                f"LOADLINE_SECRET_KEY must be at least {MIN_SECRET_LENGTH} random characters "
+                "in production"
+            )
         if secret in _PLACEHOLDER_SECRETS:
             if self.environment == "production":
                 raise ValueError(

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from sqlalchemy import event
@@ -50,3 +51,26 @@ def session_scope(engine: Engine) -> Iterator[Session]:
     """Yield one session; used by the request dependency and by the command line."""
     with Session(engine, expire_on_commit=False) as session:
         yield session
+
+
+class _DeferredCommitSession(Session):
+    """A session whose commit only flushes, so callers' commits join one transaction."""
+
+    def commit(self) -> None:
+        self.flush()
+
+
+@contextmanager
+def one_transaction(engine: Engine) -> Iterator[Session]:
+    """Run several persistence calls as one transaction: all their changes, or none.
+
+    Persistence functions commit as they go; inside this block their commits only flush, and
+    the one real commit happens when the block ends (a rollback when it raises).
+    """
+    with _DeferredCommitSession(engine, expire_on_commit=False) as session:
+        try:
+            yield session
+        except BaseException:
+            session.rollback()
+            raise
+        Session.commit(session)

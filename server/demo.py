@@ -11,6 +11,7 @@ import datetime as dt
 from sqlalchemy.engine import Engine
 from sqlmodel import Session, func, select
 
+from server.db import one_transaction
 from server.models import Need, Period, Team
 from server.schemas import (
     AvailabilityCreate,
@@ -243,8 +244,8 @@ def load(session: Session) -> None:
 
 
 def load_if_empty(engine: Engine) -> bool:
-    """Load the demo into an empty database; return whether it was loaded."""
-    with Session(engine) as session:
+    """Load the demo into an empty database, all or nothing; return whether it was loaded."""
+    with one_transaction(engine) as session:
         if not is_empty(session):
             return False
         load(session)

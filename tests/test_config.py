@@ -48,6 +48,12 @@ def test_production_refuses_a_placeholder_secret(placeholder: str) -> None:
         Settings.from_env(env)
 
 
+def test_production_refuses_a_short_secret() -> None:
+    env = {"LOADLINE_ENV": "production", "LOADLINE_SECRET_KEY": "x" * 31}
+    with pytest.raises(ValueError, match="at least 32"):
+        Settings.from_env(env)
+
+
 def test_production_accepts_a_real_secret_and_keeps_it() -> None:
     settings = Settings.from_env(
         {"LOADLINE_ENV": "production", "LOADLINE_SECRET_KEY": STRONG_SECRET}
