@@ -13,6 +13,7 @@ from server.config import PROJECT_ROOT, Settings
 from server.db import make_engine
 from server.errors import LoadlineError
 from server.routes import (
+    api_docs,
     api_initiatives,
     api_periods,
     api_select,
@@ -35,7 +36,13 @@ promises; Loadline plans work and never rates people. Availability is stored as 
 def create_app(settings: Settings | None = None) -> FastAPI:
     """Build a Loadline application; each call has its own engine (tests build many)."""
     settings = settings or Settings.from_env()
-    app = FastAPI(title="Loadline", version="0.1.0", description=API_DESCRIPTION)
+    app = FastAPI(
+        title="Loadline",
+        version="0.1.0",
+        description=API_DESCRIPTION,
+        docs_url=None,  # served by routes/api_docs.py from vendored files
+        redoc_url=None,
+    )
     app.state.settings = settings
     app.state.engine = make_engine(settings)
     templates = Jinja2Templates(directory=str(PROJECT_ROOT / "templates"))
@@ -45,6 +52,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.mount("/static", StaticFiles(directory=str(PROJECT_ROOT / "static")), name="static")
     for module in (
         health,
+        api_docs,
         api_teams,
         api_periods,
         api_initiatives,
@@ -52,7 +60,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         audit,
         auth_pages,
         pages,
-    ):
+                        ):
         app.include_router(module.router)
     _add_error_handlers(app)
     app.add_middleware(
