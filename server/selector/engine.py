@@ -1,0 +1,307 @@
+"""Pick the exact method for a decided problem and run it."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from . import dp
+from .constraints import Decided
+from .errors import SelectorInputError
+from .milp import BinaryProgram, solve_binary_program
+from .model import Problem
+from .needs_forest import solve_forest
+from .reduction import keep_by_effort, least_units_bound, reduce_by_bounds
+from .rounding import scale_values
+from .validation import CheckedProblem, check_problem
+
+DEFAULT_MEMORY_BUDGET_BYTES = 256 * 2**20
+# A few seconds of DP work on a small machine (more with the low-memory method); larger grids
+# are refused with a message, not attempted.
+MAX_CELLS = 4 * 10**9
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """A checked problem with its DP values (whole numbers scaled by factor, or floats)."""
+
+    checked: CheckedProblem
+    scaled: np.ndarray
+    factor: float
+    integral: bool  # DP values are whole numbers with exact sums (see rounding.ScaledValues)
+
+    def total(self, indices: list[int] | tuple[int, ...]) -> float:
+        """Plan value of the given items, exact for integer-scaled values."""
+        if self.integral:
+            return int(self.scaled[list(indices)].sum(dtype=np.float64)) / self.factor
+        return math.fsum(self.checked.values[i] for i in indices)
+
+    def as_value(self, scaled_amount: float) -> float:
+        """Turn a DP amount back into value-score units."""
+        return float(scaled_amount) / self.factor
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """One solve of the decided problem: what is chosen and how it was found."""
+
+    feasible: bool
+    chosen: tuple[int, ...]  # input order, includes in_plan
+    method: str
+    note: str
+    cells: int
+    in_units: int
+    free_capacity: int
+    row: np.ndarray | None  # last DP row over free capacity units 0..len-1
+    decided: Decided
+    layout: list[list[int]] | None = None  # DP steps (item indices) when the row DP ran whole
+
+
+def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
+    """Validate problem and scale its values for the DP."""
+    checked = check_problem(problem, allow_zero_capacity=allow_zero_capacity)
+    scaled = scale_values(checked.values)
+    return Prepared(checked, scaled.values, scaled.factor, scaled.exact)
+
+
+def run(
+    prepared: Prepared,
+    decided: Decided,
+    *,
+    width: int = 0,
+    budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+    allow_reduction: bool = True,
+) -> Outcome:
+    """Solve the free part of decided with the first exact method that applies.
+
+    width asks for a last row over that many capacities (the capacity curve).
+    allow_reduction lets the plain DP use the bound-based shortcuts; they keep the plan
+    exact but leave no valid curve row, so callers asking for a curve or explanations pass
+    False.
+    """
+    checked = prepared.checked
+    units = checked.units
+    in_units = sum(units[i] for i in decided.in_plan)
+    free_capacity = checked.capacity_units - in_units
+    if free_capacity < 0:
+        note = "no method ran: pinned work exceeds the capacity"
+        return Outcome(
+            False, decided.in_plan, "none", note, 0, in_units, free_capacity, None, decided
+        )
+    width = max(width, free_capacity + 1)
+    free = _fitting(decided, units, width)
+    needs: dict[int, tuple[int, ...]] = {}
+    sets: list[list[int]] = []
+    if decided.free_needs or checked.groups:
+        free_set = set(free)
+        needs = {i: decided.free_needs[i] for i in free if decided.free_needs.get(i)}
+        sets = [[i for i in members if i in free_set] for members in checked.groups.values()]
+        sets = [members for members in sets if len(members) > 1]
+    base = Outcome(True, (), "", "", 0, in_units, free_capacity, None, decided)
+    many_needs = [i for i in needs if len(needs[i]) > 1]
+    if many_needs or (needs and sets):
+        why = (
+            f"{checked.keys[many_needs[0]]!r} needs more than one other initiative"
+            if many_needs
+            else "needs are combined with either-or sets"
+        )
+        return _run_milp(prepared, base, free, needs, sets, why)
+    if needs:
+        return _run_forest(prepared, base, free, needs, width, budget_bytes)
+    return _run_rows(prepared, base, free, sets, width, budget_bytes, allow_reduction)
+
+
+def _run_forest(
+    prepared: Prepared,
+    base: Outcome,
+    free: list[int],
+    needs: dict[int, tuple[int, ...]],
+    width: int,
+    budget_bytes: int,
+) -> Outcome:
+    _check_cells(len(free), width)
+    parent_of = {i: (needs[i][0] if i in needs else None) for i in free}
+    forest = solve_forest(
+        free,
+        parent_of,
+        prepared.checked.units,
+        prepared.scaled,
+        base.free_capacity,
+        width,
+        budget_bytes,
+    )
+    if forest is None:
+        why = (
+            f"the needs-forest DP would exceed the memory budget of {budget_bytes / 2**20:,.1f} MiB"
+        )
+        return _run_milp(prepared, base, free, needs, [], why)
+    chosen = tuple(sorted([*base.decided.in_plan, *forest.taken]))
+    return replace(
+        base,
+        chosen=chosen,
+        method="dp-needs-forest",
+        note=forest.note,
+        cells=forest.cells,
+        row=forest.row,
+    )
+
+
+def _run_rows(
+    prepared: Prepared,
+    base: Outcome,
+    free: list[int],
+    sets: list[list[int]],
+    width: int,
+    budget_bytes: int,
+    allow_reduction: bool,
+) -> Outcome:
+    """The plain or multiple-choice DP over rows of capacities, after exact reductions."""
+    units = prepared.checked.units
+    fixed_in: list[int] = []
+    reduction_note = ""
+    capacity = base.free_capacity
+    low = 0
+    if allow_reduction and not sets and width == capacity + 1 and free:
+        fixed_in, free, capacity, reduction_note = _reduce(prepared, free, capacity)
+        width = capacity + 1
+    layout = step_groups(free, sets)
+    steps = dp.make_steps(layout, list(units), prepared.scaled)
+    _check_cells(steps.members, width)
+    if allow_reduction and not sets:
+        low = least_units_bound(list(steps.units), steps.values, capacity)
+    result = dp.solve_steps(steps, capacity, width, budget_bytes, low=low)
+    chosen = tuple(
+        sorted([*base.decided.in_plan, *fixed_in, *(steps.ids[m] for m in result.taken)])
+    )
+    if result.low_memory:
+        method = "dp-divide-and-conquer"
+    elif sets:
+        method = "dp-multiple-choice"
+    else:
+        method = "dp"
+    note = result.note + reduction_note
+    if sets:
+        note = f"{len(sets)} either-or sets as multiple-choice steps; " + note
+    whole = not reduction_note and low == 0  # else the row is exact only in part
+    return replace(
+        base,
+        chosen=chosen,
+        method=method,
+        note=note,
+        cells=result.cells,
+        row=result.row if whole else None,
+        layout=layout if whole else None,
+    )
+
+
+def _reduce(
+    prepared: Prepared, free: list[int], capacity: int
+) -> tuple[list[int], list[int], int, str]:
+    """Apply the exact reductions; return fixed-in items, the rest, capacity left, a note."""
+    units = prepared.checked.units
+    fixed_in: list[int] = []
+    note = ""
+    reduced = reduce_by_bounds(
+        [units[i] for i in free], prepared.scaled[free], capacity, prepared.integral
+    )
+    if reduced.fixed:
+        fixed_in = [free[k] for k in reduced.fixed_in]
+        capacity -= sum(units[i] for i in fixed_in)
+        free = [free[k] for k in reduced.free if units[free[k]] <= capacity]
+        note = (
+            f"; bound-based reduction fixed {reduced.fixed} of "
+            f"{reduced.fixed + len(reduced.free)} initiatives first"
+        )
+    kept = keep_by_effort([units[i] for i in free], prepared.scaled[free], capacity)
+    if len(kept) < len(free):
+        note += (
+            f"; {len(free) - len(kept)} more left out: more initiatives of the same "
+            "effort than the capacity holds, and better or earlier ones of it exist"
+        )
+        free = [free[k] for k in kept]
+    return fixed_in, free, capacity, note
+
+
+def _fitting(decided: Decided, units: tuple[int, ...], width: int) -> list[int]:
+    """Free items that fit in width - 1 units and need nothing that does not fit."""
+    if not decided.free_needs:
+        return [i for i in decided.free if units[i] < width]
+    dependents: dict[int, list[int]] = {}
+    for child in decided.free:
+        for parent in decided.free_needs.get(child, ()):
+            dependents.setdefault(parent, []).append(child)
+    dropped = {i for i in decided.free if units[i] >= width}
+    stack = list(dropped)
+    while stack:
+        for child in dependents.get(stack.pop(), ()):
+            if child not in dropped:
+                dropped.add(child)
+                stack.append(child)
+    return [i for i in decided.free if i not in dropped]
+
+
+def step_groups(free: list[int], sets: list[list[int]]) -> list[list[int]]:
+    """One step per free initiative, or per either-or set at the place of its first member."""
+    set_of = {}
+    for members in sets:
+        for i in members:
+            set_of[i] = members
+    if not sets:
+        return [[i] for i in free]
+    groups: list[list[int]] = []
+    placed: set[int] = set()
+    for i in free:
+        members = set_of.get(i)
+        if members is None:
+            groups.append([i])
+        elif members[0] not in placed:
+            placed.add(members[0])
+            groups.append(members)
+    return groups
+
+
+def _run_milp(
+    prepared: Prepared,
+    base: Outcome,
+    free: list[int],
+    needs: dict[int, tuple[int, ...]],
+    sets: list[list[int]],
+    why: str,
+) -> Outcome:
+    units = prepared.checked.units
+    capacity = base.free_capacity
+    fitting = [i for i in free if units[i] <= capacity]
+    position = {item: k for k, item in enumerate(fitting)}
+    program_needs = []
+    blocked: set[int] = set()  # an initiative whose need cannot fit cannot be chosen either
+    for i in fitting:
+        for parent in needs.get(i, ()):
+            if parent in position:
+                program_needs.append((position[i], position[parent]))
+            else:
+                blocked.add(i)
+    program_sets = [[position[i] for i in members if i in position] for members in sets]
+    program = BinaryProgram(
+        values=prepared.scaled[fitting].astype(np.float64) if fitting else np.zeros(0),
+        capacities=[(np.array([units[i] for i in fitting], dtype=np.float64), capacity)],
+        needs=program_needs,
+        sets=[members for members in program_sets if len(members) > 1],
+        integral=prepared.integral,
+        upper=np.array([0.0 if i in blocked else 1.0 for i in fitting]),
+    )
+    picked = solve_binary_program(program)
+    chosen = tuple(sorted([*base.decided.in_plan, *(fitting[k] for k in picked)]))
+    note = f"{why}: exact binary program over {len(fitting)} initiatives solved by HiGHS"
+    return replace(base, chosen=chosen, method="milp-highs", note=note)
+
+
+def _check_cells(members: int, width: int) -> None:
+    if members * width > MAX_CELLS:
+        raise SelectorInputError.for_problem(
+            "resolution",
+            f"gives {members:,} initiatives x {width:,} capacity units = "
+            f"{members * width:,} DP cells, more than the {MAX_CELLS:,} the selector "
+            "evaluates: use a coarser resolution",
+        )

@@ -1,0 +1,130 @@
+"""Exact variable fixing from an LP bound, run before the plain DP when only the plan is asked.
+
+For any ratio r >= 0 and any plan x within capacity C,
+
+    value(x) <= r * C + sum_j max(0, d_j) - sum_{j : x_j != [d_j > 0]} |d_j|,   d_j = v_j - r * w_j
+
+(weak LP duality). With r the critical ratio of the greedy order and L the value of a plan
+actually found greedily, every initiative whose flipped bound falls below L is decided the
+same way in every optimal plan. Fixing it keeps the set of optimal plans, and with it the tie
+rule, unchanged, while the DP shrinks to the undecided core.
+
+A second exact cut: at most floor(C / w) initiatives of w units fit, so within each effort
+only the floor(C / w) best by value (earlier first among equals) can be in the winning plan.
+Any other one could be swapped for an unused better or equal, earlier one of the same effort,
+which the tie rule prefers.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+# Room left for float error in the bound before an initiative may be fixed.
+_TOLERANCE = 1e-7
+
+
+@dataclass(frozen=True)
+class Reduction:
+    """Positions (into the input lists) fixed in, and those still free, input order."""
+
+    fixed_in: list[int]
+    free: list[int]
+    fixed: int
+
+
+def reduce_by_bounds(
+    units: Sequence[int], values: np.ndarray, capacity: int, integral: bool
+) -> Reduction:
+    """Fix what the LP bound decides; the free rest goes to the DP with the capacity left."""
+    count = len(units)
+    w = np.asarray(units, dtype=np.float64)
+    v = np.asarray(values, dtype=np.float64)
+    if count == 0 or float(w.sum()) <= capacity:
+        return Reduction(list(range(count)), [], count)
+    order = np.lexsort((np.arange(count), -(v / w)))
+    cumulative = np.cumsum(w[order])
+    critical = int(np.searchsorted(cumulative, capacity, side="right"))
+    ratio = float(v[order[critical]] / w[order[critical]])
+    lower = _greedy_value(w[order], v[order], capacity)
+    d = v - ratio * w
+    upper = ratio * capacity + float(np.maximum(d, 0.0).sum())
+    slack = _TOLERANCE * max(1.0, abs(upper))
+    flipped = upper - np.abs(d) + slack
+    if integral:
+        flipped = np.floor(flipped)
+    decided = flipped < lower
+    fixed_in = np.flatnonzero(decided & (d > 0))
+    if float(w[fixed_in].sum()) > capacity:
+        return Reduction([], list(range(count)), 0)
+    free = np.flatnonzero(~decided)
+    return Reduction(fixed_in.tolist(), free.tolist(), count - len(free))
+
+
+def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> list[int]:
+    """Positions to keep: per effort w, the best floor(capacity / w) (earlier first on ties)."""
+    count = len(units)
+    if count == 0:
+        return []
+    w = np.asarray(units, dtype=np.int64)
+    order = np.lexsort((np.arange(count), -np.asarray(values, dtype=np.float64), w))
+    sorted_w = w[order]
+    starts = np.flatnonzero(np.r_[True, sorted_w[1:] != sorted_w[:-1]])
+    group = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, count]))
+    rank = np.arange(count) - starts[group]
+    keep = np.zeros(count, dtype=np.bool_)
+    keep[order] = rank < capacity // np.maximum(sorted_w, 1)
+    return np.flatnonzero(keep).tolist()
+
+
+def _greedy_value(w: np.ndarray, v: np.ndarray, capacity: int) -> float:
+    """Value of the plan that takes initiatives in ratio order whenever they still fit."""
+    left = float(capacity)
+    total = 0.0
+    # Take the leading run that fits in one vectorised step, then finish item by item.
+    cumulative = np.cumsum(w)
+    run = int(np.searchsorted(cumulative, left, side="right"))
+    if run:
+        left -= float(cumulative[run - 1])
+        total += math.fsum(v[:run].tolist())
+    for weight, value in zip(w[run:].tolist(), v[run:].tolist(), strict=True):
+        if weight <= left:
+            left -= weight
+            total += value
+            if left < 1:
+                break
+    return total
+
+
+def least_units_bound(units: Sequence[int], values: np.ndarray, capacity: int) -> int:
+    """Units below which no best plan within capacity can lie (a safe, possibly low, bound).
+
+    A plan of u units is worth at most U(u), the fractional (LP) optimum at capacity u, and a
+    best plan is worth at least L, the greedy plan's value; so it needs u with U(u) >= L.
+    """
+    count = len(units)
+    if count == 0:
+        return 0
+    w = np.asarray(units, dtype=np.float64)
+    v = np.asarray(values, dtype=np.float64)
+    fitting = w <= capacity
+    w, v = w[fitting], v[fitting]
+    if w.size == 0:
+        return 0
+    if float(w.sum()) <= capacity:
+        return int(w.sum())  # everything fits: the only best plan takes everything
+    order = np.lexsort((np.arange(w.size), -(v / w)))
+    w, v = w[order], v[order]
+    lower = _greedy_value(w, v, capacity)
+    cumulative_v = np.cumsum(v)
+    cumulative_w = np.cumsum(w)
+    k = int(np.searchsorted(cumulative_v, lower * (1 - _TOLERANCE), side="left"))
+    if k >= w.size:
+        return 0
+    before_w = float(cumulative_w[k - 1]) if k else 0.0
+    before_v = float(cumulative_v[k - 1]) if k else 0.0
+    needed = before_w + max(0.0, lower * (1 - _TOLERANCE) - before_v) * float(w[k] / v[k])
+    return max(0, min(capacity, math.floor(needed) - 1))

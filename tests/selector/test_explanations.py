@@ -1,0 +1,174 @@
+"""Explanations checked against re-solving with each initiative forced in or out."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+from hypothesis import given, settings
+from selector_oracles import brute_force, highs_reference, indices, satisfies, value_of
+from selector_strategies import problems
+
+from server.selector import Item, Problem, solve
+from server.selector.constraints import decide
+from server.selector.engine import prepare, run
+from server.selector.prefix_suffix import forced_plans
+
+CHECKS = settings(max_examples=250, deadline=None, derandomize=True)
+
+
+def _close(a: float | None, b: float | None) -> bool:
+    if a is None or b is None:
+        return a is b
+    return math.isclose(a, b, rel_tol=1e-12, abs_tol=1e-9)
+
+
+def _released(problem: Problem, i: int) -> Problem:
+    items = list(problem.items)
+    items[i] = replace(items[i], pinned=False, ruled_out=False)
+    return replace(problem, items=tuple(items))
+
+
+def _check_explanations(problem: Problem) -> None:
+    selection = solve(problem, explain=True)
+    if not selection.feasible:
+        assert selection.explanations is None
+        return
+    assert selection.explanations is not None
+    chosen = set(indices(problem, selection.chosen))
+    best = selection.value
+    for i, (item, why) in enumerate(zip(problem.items, selection.explanations, strict=True)):
+        assert why.key == item.key
+        assert why.chosen == (i in chosen)
+        # Pinned / ruled-out items are explained with the mark removed (a what-if).
+        base = _released(problem, i) if (item.pinned or item.ruled_out) else problem
+        forced_in = brute_force(base, force_in=[i]).value
+        forced_out = brute_force(base, force_out=[i]).value
+        assert _close(why.value_if_in, forced_in), (item, why, forced_in)
+        assert _close(why.value_if_out, forced_out), (item, why, forced_out)
+        opposite = forced_out if why.chosen else forced_in
+        expected_regret = 0.0 if opposite is None else max(0.0, best - opposite)
+        assert math.isclose(why.regret, expected_regret, abs_tol=1e-9)
+        assert why.reason
+        if why.threshold_value is not None:
+            if why.chosen:
+                assert math.isclose(why.threshold_value, item.value - why.regret, abs_tol=1e-9)
+            else:
+                assert math.isclose(why.threshold_value, item.value + why.regret, abs_tol=1e-9)
+        displaced = set(indices(problem, why.displaces))
+        if why.chosen:
+            assert not displaced & chosen
+        else:
+            assert displaced <= chosen
+
+
+@CHECKS
+@given(problems(max_n=10))
+def test_plain_explanations_match_forced_brute_force(problem: Problem) -> None:
+    _check_explanations(problem)
+
+
+@CHECKS
+@given(problems(max_n=10, either_or=True))
+def test_either_or_explanations_match_forced_brute_force(problem: Problem) -> None:
+    _check_explanations(problem)
+
+
+@settings(max_examples=120, deadline=None, derandomize=True)
+@given(problems(max_n=9, needs="forest"))
+def test_needs_forest_explanations_match_forced_brute_force(problem: Problem) -> None:
+    _check_explanations(problem)
+
+
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(problems(max_n=8, needs="general", either_or=True))
+def test_general_needs_explanations_match_forced_brute_force(problem: Problem) -> None:
+    _check_explanations(problem)
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(problems(min_n=15, max_n=80, max_units=40, either_or=True))
+def test_prefix_suffix_plans_are_real_plans(problem: Problem) -> None:
+    # The forced plans read back from the decision tables are feasible, force the item the
+    # right way, and are worth exactly the value reported.
+    prepared = prepare(problem)
+    decided = decide(prepared.checked)
+    outcome = run(prepared, decided, allow_reduction=False)
+    if not outcome.feasible:
+        return
+    plans, _ = forced_plans(prepared, outcome, 256 * 2**20)
+    chosen = set(outcome.chosen)
+    keys = prepared.checked.keys
+    for i, (inside, outside) in plans.items():
+        for plan, wanted in ((inside, True), (outside, False)):
+            assert plan.value is not None
+            members = (chosen - plan.removed) | plan.added
+            assert (i in members) == wanted
+            assert satisfies(problem, members)
+            assert math.isclose(value_of(problem, [keys[j] for j in members]), plan.value)
+
+
+@settings(max_examples=25, deadline=None, derandomize=True)
+@given(problems(min_n=20, max_n=60, max_units=30))
+def test_large_explanations_match_highs_with_forcing(problem: Problem) -> None:
+    selection = solve(problem, explain=True)
+    if not selection.feasible:
+        return
+    assert selection.explanations is not None
+    for i, why in enumerate(selection.explanations[:8]):
+        item = problem.items[i]
+        forced = list(problem.items)
+        forced[i] = replace(item, pinned=not why.chosen, ruled_out=why.chosen)
+        reference = highs_reference(replace(problem, items=tuple(forced)))
+        opposite = why.value_if_out if why.chosen else why.value_if_in
+        if item.pinned or item.ruled_out:
+            continue
+        assert _close(opposite, reference.value)
+
+
+def test_worked_example_explanations() -> None:
+    # Cormen et al., 3rd ed., section 16.2 instance (from memory): optimum 220 with items 2, 3.
+    items = (Item("1", 10, 60), Item("2", 20, 100), Item("3", 30, 120))
+    selection = solve(Problem(items, 50, resolution=1), explain=True)
+    assert selection.explanations is not None
+    one, two, three = selection.explanations
+    assert (one.chosen, one.value_if_in, one.regret, one.displaces) == (False, 180, 40, ("2",))
+    assert one.threshold_value == 100
+    assert one.reason == "Left out: forcing it in costs 40 value; it would displace 2."
+    assert (two.value_if_out, two.regret, two.threshold_value, two.displaces) == (
+        180,
+        40,
+        60,
+        ("1",),
+    )
+    assert (three.value_if_out, three.regret, three.threshold_value) == (160, 60, 60)
+
+
+def test_pinned_and_ruled_out_explanations_report_the_cost_of_the_mark() -> None:
+    items = (Item("pin", 5, 1, pinned=True), Item("b", 5, 50), Item("c", 5, 10))
+    pin = solve(Problem(items, 10), explain=True).explanations[0]  # type: ignore[index]
+    # Without the pin the best plan is b + c = 60 instead of pin + b = 51.
+    assert (pin.value_if_in, pin.value_if_out, pin.regret) == (51, 60, 0)
+    assert pin.constraint_cost == 9
+    assert pin.threshold_value is None
+    assert pin.reason.startswith("Pinned")
+    assert "60" in pin.reason
+    items = (Item("out", 5, 50, ruled_out=True), Item("c", 5, 10), Item("d", 5, 8))
+    out = solve(Problem(items, 10), explain=True).explanations[0]  # type: ignore[index]
+    assert (out.value_if_in, out.value_if_out, out.constraint_cost) == (60, 18, 42)
+    assert out.displaces == ("d",)
+    assert out.reason.startswith("Ruled out")
+
+
+def test_too_many_re_solves_leave_explanations_out_and_say_so() -> None:
+    # A needs chain is explained by re-solving each initiative; past the limit it says so.
+    from server.selector.explain import MAX_RESOLVES
+
+    count = MAX_RESOLVES + 1
+    items = tuple(
+        Item(f"c{k}", 1, 1 + k % 3, needs=(f"c{k - 1}",) if k else ()) for k in range(count)
+    )
+    selection = solve(Problem(items, 20, resolution=1), explain=True)
+    assert selection.method == "dp-needs-forest"
+    assert selection.explanations is None
+    assert "no explanations" in selection.method_note
