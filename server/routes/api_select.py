@@ -6,7 +6,7 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Query
 from fastapi.responses import JSONResponse
-from pydantic import BaseModel, ConfigDict, Field, StringConstraints
+from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
 from server.deps import SessionDep
 from server.planning.plans import PlanOptions, plan_for
@@ -24,6 +24,9 @@ from server.selector import (
 router = APIRouter(prefix="/api/v1", tags=["selector"], responses=ERRORS)
 
 MAX_ITEMS = 5000
+# One request may ask for at most this many DP cells (items x capacity units): well under a
+# second of work, so one caller cannot tie up a worker.
+MAX_CELLS = 200_000_000
 Key = Annotated[str, StringConstraints(min_length=1, max_length=120)]
 
 
@@ -50,6 +53,16 @@ class SelectRequest(BaseModel):
         None, gt=0, le=1_000_000, allow_inf_nan=False, description="Curve end, in days."
     )
     explain: bool = Field(False, description="Add one explanation per item.")
+
+    @model_validator(mode="after")
+    def _bounded_work(self) -> SelectRequest:
+        units = max(self.capacity, self.curve_to or 0) / self.resolution
+        if units * max(len(self.items), 1) > MAX_CELLS:
+            raise ValueError(
+                f"capacity: {len(self.items)} items at {units:,.0f} capacity units is more work "
+                f"than one request may ask ({MAX_CELLS:,} cells); use a coarser resolution"
+            )
+        return self
 
 
 class CurveOut(BaseModel):

@@ -127,6 +127,14 @@ def test_pinned_overrun_is_an_answer_not_an_error(client: TestClient) -> None:
             "either_or",
         ),
         ({"capacity": 10, "items": [], "colour": "red"}, "colour"),
+        (
+            {
+                "capacity": 900_000,
+                "resolution": 0.5,
+                "items": [{"key": str(i), "effort": 1, "value": 1} for i in range(200)],
+            },
+            "capacity",
+        ),
     ],
 )
 def test_bad_input_names_the_field(client: TestClient, body: dict, field: str) -> None:
