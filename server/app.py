@@ -21,7 +21,9 @@ from server.routes import (
     audit,
     auth_pages,
     health,
+    overview,
     pages,
+    plan_pages,
 )
 from server.security import RequestGuard
 from server.templating import configure_templates
@@ -60,7 +62,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         audit,
         auth_pages,
         pages,
-                        ):
+        plan_pages,
+        overview,
+                ):
         app.include_router(module.router)
     _add_error_handlers(app)
     app.add_middleware(

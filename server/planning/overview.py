@@ -1,0 +1,148 @@
+"""One period, all teams: each team's own plan in brief, and the joint plan of shared work."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from sqlmodel import Session
+
+from server.models import Period, Team
+from server.planning.joint import JointPlan, joint_plan_for
+from server.planning.plans import PlanOptions, plan_for
+from server.selector import SelectorInputError
+from server.store.periods import get_period
+from server.store.teams import list_teams
+
+
+@dataclass(frozen=True)
+class TeamSummary:
+    team: Team
+    initiatives: int
+    feasible: bool | None  # None: no plan (no capacity, or inputs that cannot be planned)
+    value: float | None
+    effort: float | None
+    capacity: float
+    headroom: float | None
+    fit_label: str | None
+    chosen_ids: frozenset[int]
+    message: str | None
+
+
+@dataclass(frozen=True)
+class PeriodOverview:
+    period: Period
+    teams: tuple[TeamSummary, ...]
+    joint: JointPlan
+
+    @property
+    def chosen_alone(self) -> dict[int, dict[str, bool]]:
+        """For each shared initiative: did each team's own plan choose its share?"""
+        out: dict[int, dict[str, bool]] = {}
+        for shared in self.joint.shared:
+            out[shared.id] = {
+                summary.team.name: shared.id in summary.chosen_ids
+                for summary in self.teams
+                if any(name == summary.team.name for name, _ in shared.efforts)
+            }
+        return out
+
+
+def _summary(session: Session, team: Team, period_id: int, resolution: float) -> TeamSummary:
+    options = PlanOptions(resolution=resolution, explain=False, curve=False)
+    try:
+        plan = plan_for(session, team_id=team.id or 0, period_id=period_id, options=options)
+    except SelectorInputError as exc:
+        no_capacity = exc.field == "capacity"
+        return TeamSummary(
+            team=team,
+            initiatives=0,
+            feasible=None,
+            value=None,
+            effort=None,
+            capacity=0.0,
+            headroom=None,
+            fit_label=None,
+            chosen_ids=frozenset(),
+            message="No capacity in this period yet." if no_capacity else exc.message,
+        )
+    selection = plan.selection
+    return TeamSummary(
+        team=team,
+        initiatives=len(plan.rows),
+        feasible=selection.feasible,
+        value=selection.value,
+        effort=selection.effort,
+        capacity=selection.capacity,
+        headroom=selection.headroom,
+        fit_label=plan.fit.label() if plan.fit is not None else None,
+        chosen_ids=frozenset(row.id for row in plan.rows if row.chosen),
+        message=selection.infeasibility,
+    )
+
+
+def overview_for(session: Session, *, period_id: int, resolution: float = 0.5) -> PeriodOverview:
+    period = get_period(session, period_id=period_id)
+    teams = tuple(_summary(session, team, period_id, resolution) for team in list_teams(session))
+    return PeriodOverview(
+        period=period,
+        teams=teams,
+        joint=joint_plan_for(session, period_id=period_id, resolution=resolution),
+    )
+
+
+def overview_json(overview: PeriodOverview) -> dict[str, Any]:
+    joint = overview.joint
+    selection = joint.selection
+    alone = overview.chosen_alone
+    return {
+        "period": {"id": overview.period.id, "name": overview.period.name},
+        "teams": [
+            {
+                "id": s.team.id,
+                "name": s.team.name,
+                "initiatives": s.initiatives,
+                "feasible": s.feasible,
+                "value": s.value,
+                "effort_days": s.effort,
+                "capacity_days": s.capacity,
+                "headroom_days": s.headroom,
+                "fit_label": s.fit_label,
+                "message": s.message,
+            }
+            for s in overview.teams
+        ],
+        "joint": {
+            "solved": selection is not None,
+            "message": joint.message,
+            "method": selection.method if selection else None,
+            "method_note": selection.method_note if selection else None,
+            "feasible": selection.feasible if selection else None,
+            "value": selection.value if selection else None,
+            "chosen": [int(k) for k in selection.chosen] if selection else [],
+            "teams": [
+                {
+                    "id": load.team_id,
+                    "name": load.name,
+                    "capacity_days": load.capacity,
+                    "effort_days": load.effort,
+                    "headroom_days": load.headroom,
+                }
+                for load in joint.loads
+            ],
+            "shared": [
+                {
+                    "id": s.id,
+                    "title": s.title,
+                    "owner": s.owner,
+                    "value": s.value,
+                    "efforts": [{"team": name, "days": days} for name, days in s.efforts],
+                    "chosen_jointly": s.chosen,
+                    "chosen_in_own_plans": alone.get(s.id, {}),
+                }
+                for s in joint.shared
+            ],
+            "left_out_no_capacity": list(joint.unplannable),
+            "left_out_blocked": list(joint.blocked),
+        },
+    }

@@ -1,0 +1,291 @@
+"""Undo a team's last change to its initiatives, from the audit trail.
+
+Each press reverts the newest change that has not been undone yet, so pressing it again steps
+further back:
+- an update is reverted to its `before` values, as a new version (so open forms see it);
+- a creation is reverted by deleting the initiative;
+- a deletion is reverted by creating the initiative again (it gets a new id; later undos
+  follow the new id);
+- a paste is reverted as a whole (all its rows are deleted).
+
+The undo itself is recorded as an `initiative.undo` entry naming the entry it reverted and the
+entries its own changes wrote, and the reverted entry gets `undone_at`. Changes an undo makes
+are never offered for undoing themselves (that would be redo, which this does not offer).
+The reverted entry's mark and the undo entry are committed in the same transaction as the
+last change the undo makes.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from typing import Any
+
+from sqlmodel import Session, col, select
+
+from server.errors import InputError, NotFoundError
+from server.models import AuditEntry, Initiative, Period, utcnow
+from server.schemas import InitiativeCreate, InitiativeUpdate
+from server.store import audit
+from server.store.initiatives import (
+    create_initiative,
+    delete_initiative,
+    get_initiative,
+    update_initiative,
+)
+from server.validation import parse_form
+
+UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
+UNDO_ACTION = "initiative.undo"
+HISTORY_DEPTH = 300  # entries read: undo steps back through recent changes, not all time
+_UPDATABLE = (
+    "period_id",
+    "title",
+    "notes",
+    "effort",
+    "other_efforts",
+    "value",
+    "confidence",
+    "state",
+    "either_or",
+    "needs",
+)
+
+
+@dataclass(frozen=True)
+class UndoOutcome:
+    entry: AuditEntry  # the change that was reverted
+    summary: str  # what the undo did, in plain words
+
+
+@dataclass(frozen=True)
+class _History:
+    produced: set[int]  # ids of entries written by undos
+    renamed: dict[int, int]  # initiative id -> id it was re-created as
+    pasted: set[int]  # initiatives created by a paste (undone with the paste, not alone)
+
+
+def _history(session: Session, team_id: int) -> _History:
+    """What earlier undos and pastes said; read from their (few) entries only."""
+    query = (
+        select(AuditEntry)
+        .where(
+            AuditEntry.team_id == team_id,
+            AuditEntry.entity == "initiative",
+            col(AuditEntry.action).in_((UNDO_ACTION, "initiative.paste")),
+        )
+        .order_by(col(AuditEntry.id).desc())
+        .limit(HISTORY_DEPTH)
+    )
+    produced: set[int] = set()
+    renamed: dict[int, int] = {}
+    pasted: set[int] = set()
+    for entry in session.exec(query):
+        after = entry.after or {}
+        if entry.action == UNDO_ACTION:
+            produced.update(int(i) for i in after.get("produced", []))
+            renamed.update({int(k): int(v) for k, v in after.get("recreated", {}).items()})
+        elif entry.undone_at is None:
+            pasted.update(int(i) for i in after.get("initiative_ids", []))
+    return _History(produced, renamed, pasted)
+
+
+def _current_id(history: _History, initiative_id: int) -> int:
+    seen = set()
+    while initiative_id in history.renamed and initiative_id not in seen:
+        seen.add(initiative_id)
+        initiative_id = history.renamed[initiative_id]
+    return initiative_id
+
+
+def _exists(session: Session, initiative_id: int) -> bool:
+    return session.get(Initiative, initiative_id) is not None
+
+
+def _still_undoable(session: Session, history: _History, entry: AuditEntry) -> bool:
+    if entry.action == "initiative.delete":
+        return True
+    if entry.action == "initiative.paste":
+        ids = (entry.after or {}).get("initiative_ids", [])
+        return any(_exists(session, _current_id(history, int(i))) for i in ids)
+    # An update or creation of an initiative that is gone has nothing left to revert.
+    return entry.entity_id is not None and _exists(session, _current_id(history, entry.entity_id))
+
+
+def last_change(session: Session, *, team_id: int) -> AuditEntry | None:
+    """The change the next undo would revert, or None."""
+    history = _history(session, team_id)
+    query = (
+        select(AuditEntry.id, AuditEntry.action, AuditEntry.entity_id)
+        .where(
+            AuditEntry.team_id == team_id,
+            AuditEntry.entity == "initiative",
+            col(AuditEntry.action).in_(UNDOABLE),
+            col(AuditEntry.undone_at).is_(None),
+        )
+        .order_by(col(AuditEntry.id).desc())
+        .limit(HISTORY_DEPTH)
+    )
+    for entry_id, action, entity_id in session.exec(query):
+        if entry_id in history.produced:
+            continue
+        if action == "initiative.create" and entity_id in history.pasted:
+            continue
+        entry = session.get(AuditEntry, entry_id)
+        if entry is not None and _still_undoable(session, history, entry):
+            return entry
+    return None
+
+
+def undo_last_change(session: Session, *, team_id: int, actor: str = "") -> UndoOutcome:
+    """Revert the team's last change; raise NotFoundError when there is nothing to undo."""
+    # Deletes cascade in the database, so rows loaded earlier in this session may be gone;
+    # SQLite can hand their ids to the rows an undo creates. Start from an empty identity map.
+    session.expunge_all()
+    entry = last_change(session, team_id=team_id)
+    if entry is None:
+        raise NotFoundError("There is no change of this team left to undo.", field="undo")
+    history = _history(session, team_id)
+    before_id = _max_entry_id(session)
+    try:
+        marker, done = _revert(session, history, entry, team_id, actor)
+    except Exception:  # nothing of a failed undo stays half-done in the session
+        session.rollback()
+        raise
+    produced = [
+        e.id or 0
+        for e in session.exec(
+            select(AuditEntry).where(
+                col(AuditEntry.id) > before_id,
+                AuditEntry.action != UNDO_ACTION,
+                AuditEntry.team_id == team_id,
+            )
+        )
+    ]
+    marker.after = (marker.after or {}) | {"produced": produced}
+    session.add(marker)
+    session.commit()
+    return UndoOutcome(entry=entry, summary=done)
+
+
+def _revert(
+    session: Session, history: _History, entry: AuditEntry, team_id: int, actor: str
+) -> tuple[AuditEntry, str]:
+    """Make the reverting change; the undo's marks are committed with its last write."""
+    if entry.action == "initiative.paste":
+        ids = [_current_id(history, int(i)) for i in (entry.after or {}).get("initiative_ids", [])]
+        present = [i for i in ids if _exists(session, i)]
+        # Each delete commits on its own; the marks go with the last one, so an interrupted
+        # undo leaves the paste on offer to finish removing it.
+        for initiative_id in present[:-1]:
+            delete_initiative(session, initiative_id=initiative_id, actor=actor)
+        marker = _mark(session, entry, team_id, actor, None)
+        delete_initiative(session, initiative_id=present[-1], actor=actor)
+        return marker, f"Removed the {len(present)} pasted initiative(s) again."
+    if entry.action == "initiative.update":
+        initiative_id = _current_id(history, entry.entity_id or 0)
+        marker = _mark(session, entry, team_id, actor, initiative_id)
+        _revert_update(session, initiative_id, entry.before or {}, actor)
+        return marker, f"Put back the earlier {_changed_fields(entry)} of {_quoted_title(entry)}."
+    if entry.action == "initiative.create":
+        initiative_id = _current_id(history, entry.entity_id or 0)
+        marker = _mark(session, entry, team_id, actor, initiative_id)
+        delete_initiative(session, initiative_id=initiative_id, actor=actor)
+        return marker, f"Removed {_quoted_title(entry)} again."
+    marker = _mark(session, entry, team_id, actor, None)
+    new_id = _recreate(session, entry.before or {}, actor)
+    marker.entity_id = new_id
+    marker.after = {"undid": entry.id, "recreated": {str(entry.entity_id): new_id}}
+    session.add(marker)
+    session.commit()
+    return marker, f"Brought back {_quoted_title(entry)}."
+
+
+def _mark(
+    session: Session, entry: AuditEntry, team_id: int, actor: str, entity_id: int | None
+) -> AuditEntry:
+    """Add the undo's own entry and mark the reverted one; the next commit stores both."""
+    entry.undone_at = utcnow()
+    session.add(entry)
+    return audit.record(
+        session,
+        actor=actor,
+        action=UNDO_ACTION,
+        entity="initiative",
+        entity_id=entity_id,
+        team_id=team_id,
+        summary=f"Undid: {entry.summary}",
+        after={"undid": entry.id},
+    )
+
+
+def _changed_fields(entry: AuditEntry) -> str:
+    names = sorted((entry.before or {}).keys())
+    return ", ".join(name.replace("_", " ") for name in names) or "values"
+
+
+def _max_entry_id(session: Session) -> int:
+    last = session.exec(select(AuditEntry).order_by(col(AuditEntry.id).desc()).limit(1)).first()
+    return last.id or 0 if last is not None else 0
+
+
+def _quoted_title(entry: AuditEntry) -> str:
+    # Summaries written by the store end with the title in curly quotes.
+    match = re.search(r"“(.+)”", entry.summary)
+    return f"“{match[1]}”" if match else "the initiative"
+
+
+def _effort_in(effort: dict[str, Any]) -> dict[str, Any]:
+    return {k: effort.get(k) for k in ("likely", "low", "high")}
+
+
+def _revert_update(
+    session: Session, initiative_id: int, before: dict[str, Any], actor: str
+) -> None:
+    record = get_initiative(session, initiative_id=initiative_id)
+    values: dict[str, Any] = {"version": record.row.version}
+    for name in _UPDATABLE:
+        if name not in before:
+            continue
+        value = before[name]
+        if name == "effort" and isinstance(value, dict):
+            value = _effort_in(value)
+        elif name == "other_efforts" and isinstance(value, list):
+            value = [_effort_in(line) | {"team_id": line.get("team_id")} for line in value]
+        elif name == "period_id" and value is not None and session.get(Period, value) is None:
+            value = None  # the period was deleted since; the initiative goes to the backlog
+        values[name] = value
+    update_in, errors = parse_form(InitiativeUpdate, values)
+    if update_in is None:
+        field, message = next(iter(errors.items()))
+        raise InputError(f"{field}: the earlier value cannot be restored ({message}).", field=field)
+    update_initiative(session, initiative_id=initiative_id, initiative_in=update_in, actor=actor)
+
+
+def _recreate(session: Session, before: dict[str, Any], actor: str) -> int:
+    period_id = before.get("period_id")
+    if period_id is not None and session.get(Period, period_id) is None:
+        period_id = None
+    needs = [n for n in before.get("needs", []) if _exists(session, int(n))]
+    values = {
+        "team_id": before.get("team_id"),
+        "period_id": period_id,
+        "title": before.get("title"),
+        "notes": before.get("notes", ""),
+        "effort": _effort_in(before.get("effort") or {}),
+        "other_efforts": [
+            _effort_in(line) | {"team_id": line.get("team_id")}
+            for line in before.get("other_efforts", [])
+        ],
+        "value": before.get("value"),
+        "confidence": before.get("confidence"),
+        "state": before.get("state", "candidate"),
+        "either_or": before.get("either_or"),
+        "needs": needs,
+    }
+    create_in, errors = parse_form(InitiativeCreate, values)
+    if create_in is None:
+        field, message = next(iter(errors.items()))
+        raise InputError(f"{field}: the deleted initiative cannot be restored ({message}).")
+    record = create_initiative(session, initiative_in=create_in, commit=False, actor=actor)
+    return record.row.id or 0

@@ -1,0 +1,517 @@
+"""The live plan page of a team in a period, and the changes made from it.
+
+Every change posts a form that also carries the page's what-if settings, so the answer can be
+the same view again. htmx requests get the plan fragment back (200 on success, 422 for a
+refused value, 409 for an edit based on an old version); plain form posts are redirected
+back to the page on success and get the whole page with the message beside the field when
+refused. `Accept: application/json` gives the same figures as JSON.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Hashable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from fastapi import APIRouter, Request
+from fastapi.responses import JSONResponse, RedirectResponse, Response
+from markupsafe import Markup
+from starlette.datastructures import FormData, ImmutableMultiDict
+
+from server.deps import SessionDep, SettingsDep, TemplatesDep
+from server.errors import LoadlineError, NotFoundError, StaleVersionError
+from server.planning.paste import PasteResult, commit_paste, effort_fields, parse_paste
+from server.planning.plan_view import (
+    PlanView,
+    RowEdit,
+    RowView,
+    WhatIf,
+    build_plan_view,
+    parse_whatif,
+    plan_json,
+)
+from server.planning.undo import undo_last_change
+from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
+from server.store import initiatives as initiative_store
+from server.store.periods import list_periods
+from server.validation import parse_form
+
+router = APIRouter(include_in_schema=False)
+
+ROW_FIELDS = ("effort", "value", "state")
+QUICK_FIELDS = ("title", "effort", "value")
+
+
+def _multi(data: ImmutableMultiDict[str, Any] | FormData) -> dict[str, list[str]]:
+    return {key: [v for v in data.getlist(key) if isinstance(v, str)] for key in data}
+
+
+def _text(form: FormData, name: str) -> str:
+    value = form.get(name, "")
+    return value.strip() if isinstance(value, str) else ""
+
+
+def _is_htmx(request: Request) -> bool:
+    return (
+        request.headers.get("hx-request") == "true"
+        and request.headers.get("hx-history-restore-request") != "true"
+    )
+
+
+def _wants_json(request: Request) -> bool:
+    return "application/json" in request.headers.get("accept", "")
+
+
+def plan_url(team_id: int, whatif: WhatIf, anchor: str = "") -> str:
+    query = whatif.query()
+    return f"/teams/{team_id}/plan" + (f"?{query}" if query else "") + anchor
+
+
+# Rendered rows, reused while nothing they show has changed: an edit re-solves the plan, but
+# most rows of a large plan come out the same, and rendering them again was most of the cost.
+_ROW_CACHE: OrderedDict[Hashable, Markup] = OrderedDict()
+_ROW_CACHE_SIZE = 5000
+_ROW_CACHE_LOCK = threading.Lock()
+
+
+@dataclass(frozen=True)
+class RowCache:
+    """Rendered rows of one page; `shared` holds everything outside the row that they show."""
+
+    shared: tuple[Hashable, ...]
+    focus: str | None
+
+    def _key(self, row: RowView) -> Hashable | None:
+        if row.errors or row.current or row.change:
+            return None  # one-off states: render them fresh
+        if self.focus is not None and self.focus.endswith(f"-{row.id}"):
+            return None
+        return (
+            self.shared,
+            row.id,
+            row.version,
+            row.title,
+            row.decision,
+            row.forced,
+            row.state,
+            row.effort_text,
+            row.value_text,
+            row.planned_effort,
+            row.pert,
+            row.blocked_by,
+            row.other_teams,
+            row.editable,
+            row.explanation,
+        )
+
+    def get(self, row: RowView) -> Markup | None:
+        key = self._key(row)
+        if key is None:
+            return None
+        with _ROW_CACHE_LOCK:
+            html = _ROW_CACHE.get(key)
+            if html is not None:
+                _ROW_CACHE.move_to_end(key)
+            return html
+
+    def put(self, row: RowView, html: str) -> Markup:
+        markup = Markup(html)
+        key = self._key(row)
+        if key is not None:
+            with _ROW_CACHE_LOCK:
+                _ROW_CACHE[key] = markup
+                while len(_ROW_CACHE) > _ROW_CACHE_SIZE:
+                    _ROW_CACHE.popitem(last=False)
+        return markup
+
+
+def _row_cache(request: Request, view: PlanView, focus: str | None) -> RowCache:
+    shared = (
+        request.state.csrf_token,
+        view.team.id,
+        view.whatif.query(),
+        view.whatif.confidence_label,
+        view.explained,
+    )
+    return RowCache(shared=shared, focus=focus)
+
+
+def _render(
+    request: Request,
+    templates: TemplatesDep,
+    view: PlanView,
+    *,
+    status_code: int = 200,
+    extra: Mapping[str, Any] | None = None,
+) -> Response:
+    if _wants_json(request):
+        return JSONResponse(plan_json(view), status_code=status_code)
+    context = {
+        "view": view,
+        "states": INITIATIVE_STATES,
+        "plan_url": plan_url,
+        "quick": {"form": {}, "errors": {}},
+        "paste": None,
+        "paste_text": "",
+        "notice": None,
+        "focus": None,
+    } | dict(extra or {})
+    context["row_cache"] = _row_cache(request, view, context["focus"])
+    show_fragment = _is_htmx(request)
+    name = "_plan_body.html" if show_fragment else "plan.html"
+    response = templates.TemplateResponse(request, name, context, status_code=status_code)
+    response.headers["Vary"] = "HX-Request, Accept"
+    if request.method == "POST" and show_fragment:
+        # A boosted form would put its action in the address bar; the page is still the plan.
+        response.headers["HX-Push-Url"] = plan_url(view.team.id or 0, view.whatif)
+    return response
+
+
+def _view(
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    team_id: int,
+    params: Mapping[str, Sequence[str]],
+    **kwargs: Any,
+) -> PlanView:
+    whatif, errors = parse_whatif(params)
+    return build_plan_view(
+        session,
+        team_id=team_id,
+        whatif=whatif,
+        whatif_errors=errors,
+        resolution=settings.resolution_days,
+        **kwargs,
+    )
+
+
+def _previous(form: FormData) -> frozenset[int] | None:
+    """Ids the page showed as chosen before this change (to mark what entered or left)."""
+    raw = form.get("was_in")
+    if not isinstance(raw, str):
+        return None
+    return frozenset(int(p) for p in raw.split(",") if p.isdigit())
+
+
+def _back(team_id: int, whatif: WhatIf, anchor: str = "") -> Response:
+    return RedirectResponse(plan_url(team_id, whatif, anchor), status_code=303)
+
+
+# --- reading -----------------------------------------------------------------------------------
+
+
+@router.get("/teams/{team_id}/plan")
+def plan_page(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    params = _multi(request.query_params)
+    if not (params.get("period_id") or [""])[0].isdigit():
+        periods = list_periods(session)
+        if periods:  # the plan of the first period: a link that names its period
+            whatif, _ = parse_whatif(params | {"period_id": [str(periods[0].id)]})
+            return RedirectResponse(plan_url(team_id, whatif), status_code=307)
+    view = _view(request, session, settings, team_id, params)
+    status = 422 if view.whatif_errors else 200
+    return _render(request, templates, view, status_code=status)
+
+
+@router.get("/teams/{team_id}/plan/initiatives/{initiative_id}/explain")
+def explain_fragment(
+    team_id: int,
+    initiative_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    view = _view(request, session, settings, team_id, _multi(request.query_params), explain=True)
+    row = next((r for r in view.rows if r.id == initiative_id), None)
+    if row is None:
+        raise NotFoundError(
+            f"No initiative with id {initiative_id} in this plan.", field="initiative_id"
+        )
+    if _wants_json(request):
+        body = plan_json(view)
+        return JSONResponse(next(r for r in body["rows"] if r["id"] == initiative_id))
+    return templates.TemplateResponse(
+        request,
+        "_plan_explain_fragment.html" if _is_htmx(request) else "plan_explain.html",
+        {
+            "view": view,
+            "row": row,
+            "plan_url": plan_url,
+            "states": INITIATIVE_STATES,
+            # Fetched into its row, the row's form is there for "Pin it" and the like.
+            "standalone": not _is_htmx(request),
+        },
+    )
+
+
+# --- inline edit of one row ---------------------------------------------------------------------
+
+
+def _row_values(form: FormData) -> dict[str, str]:
+    values = {name: _text(form, name) for name in (*ROW_FIELDS, "version")}
+    # "Pin it" and the like are buttons of the row's form that name the state to set.
+    return values | ({"state": _text(form, "set_state")} if _text(form, "set_state") else {})
+
+
+def _required(values: dict[str, Any]) -> dict[str, Any]:
+    """Leave blank fields out, so they are reported as required rather than as bad numbers."""
+    return {key: value for key, value in values.items() if value not in ("", {})}
+
+
+def _update_values(values: Mapping[str, str]) -> dict[str, Any]:
+    # Every field is sent: a cleared field is refused, never read as "leave unchanged".
+    return {
+        "version": values["version"],
+        "effort": effort_fields(values["effort"]) or {"likely": ""},
+        "value": values["value"],
+        "state": values["state"] or "candidate",
+    }
+
+
+def _unchanged(record: initiative_store.InitiativeRecord, update_in: InitiativeUpdate) -> bool:
+    line = record.own_effort
+    effort = update_in.effort
+    return (
+        effort is not None
+        and (effort.likely, effort.low, effort.high) == (line.likely, line.low, line.high)
+        and update_in.value == record.row.value
+        and update_in.state == record.row.state
+    )
+
+
+def _field(name: str) -> str:
+    head = name.split(".")[0]
+    return head if head in (*ROW_FIELDS, "version") else "form"
+
+
+@router.post("/teams/{team_id}/plan/initiatives/{initiative_id}")
+async def edit_row(
+    team_id: int,
+    initiative_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    form = await request.form()
+    params = _multi(form)
+    whatif, _ = parse_whatif(params)
+    record = initiative_store.get_initiative(session, initiative_id=initiative_id)
+    if record.row.team_id != team_id:
+        raise NotFoundError(
+            f"Initiative {initiative_id} belongs to another team; edit it on that team's plan.",
+            field="initiative_id",
+        )
+    values = _row_values(form)
+    update_in, refused = parse_form(InitiativeUpdate, _update_values(values))
+    errors = {_field(name): message for name, message in refused.items()}
+    current = None
+    # Nothing changed (e.g. a field left without editing): no store call, no new version.
+    if update_in is not None and not _unchanged(record, update_in):
+        try:
+            initiative_store.update_initiative(
+                session, initiative_id=initiative_id, initiative_in=update_in
+            )
+        except StaleVersionError as exc:
+            errors = {"version": exc.message}
+            current = exc.current
+        except LoadlineError as exc:
+            errors = {_field(exc.field or "form"): exc.message}
+        else:
+            if not _is_htmx(request) and not _wants_json(request):
+                return _back(team_id, whatif, f"#row-{initiative_id}")
+            view = _view(
+                request, session, settings, team_id, params, previous_chosen=_previous(form)
+            )
+            return _render(request, templates, view)
+    if not errors:
+        if not _is_htmx(request) and not _wants_json(request):
+            return _back(team_id, whatif, f"#row-{initiative_id}")
+        return _render(request, templates, _view(request, session, settings, team_id, params))
+    if current is not None:
+        # Saving again applies the person's values on top of the stored version.
+        values = values | {"version": str(current["version"])}
+    edit = RowEdit(values=values, errors=errors, current=current)
+    view = _view(request, session, settings, team_id, params, edits={initiative_id: edit})
+    status = 409 if current is not None else 422
+    first = next((name for name in ROW_FIELDS if name in errors), ROW_FIELDS[0])
+    return _render(
+        request,
+        templates,
+        view,
+        status_code=status,
+        extra={"focus": f"{first}-{initiative_id}"},
+    )
+
+
+# --- quick add ---------------------------------------------------------------------------------
+
+
+@router.post("/teams/{team_id}/plan/initiatives")
+async def quick_add(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    form = await request.form()
+    params = _multi(form)
+    whatif, _ = parse_whatif(params)
+    values = {name: _text(form, name) for name in QUICK_FIELDS}
+    create_in, refused = parse_form(
+        InitiativeCreate,
+        _required(
+            {
+                "team_id": team_id,
+                "period_id": whatif.period_id,
+                "title": values["title"],
+                "effort": effort_fields(values["effort"]),
+                "value": values["value"],
+            }
+        ),
+    )
+    errors = {
+        (name.split(".")[0] if name.split(".")[0] in QUICK_FIELDS else "form"): message
+        for name, message in refused.items()
+    }
+    if create_in is not None:
+        try:
+            record = initiative_store.create_initiative(session, initiative_in=create_in)
+        except LoadlineError as exc:
+            errors = {exc.field or "form": exc.message}
+        else:
+            if not _is_htmx(request) and not _wants_json(request):
+                return _back(team_id, whatif, "#quick-add")
+            view = _view(
+                request, session, settings, team_id, params, previous_chosen=_previous(form)
+            )
+            notice = f"Added “{record.row.title}”."
+            return _render(
+                request, templates, view, extra={"notice": notice, "focus": "quick-title"}
+            )
+    view = _view(request, session, settings, team_id, params)
+    first = next((name for name in QUICK_FIELDS if name in errors), "title")
+    return _render(
+        request,
+        templates,
+        view,
+        status_code=422,
+        extra={"quick": {"form": values, "errors": errors}, "focus": f"quick-{first}"},
+    )
+
+
+# --- paste -------------------------------------------------------------------------------------
+
+
+def _parse(session: SessionDep, team_id: int, view: PlanView, text: str) -> PasteResult:
+    existing = frozenset(row.title.strip().lower() for row in view.rows)
+    return parse_paste(
+        text, team_id=team_id, period_id=view.whatif.period_id, existing_titles=existing
+    )
+
+
+@router.post("/teams/{team_id}/plan/paste/preview")
+async def paste_preview(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    form = await request.form()
+    text = form.get("text", "")
+    text = text if isinstance(text, str) else ""
+    view = _view(request, session, settings, team_id, _multi(form))
+    try:
+        result = _parse(session, team_id, view, text)
+    except LoadlineError as exc:
+        return _render(
+            request,
+            templates,
+            view,
+            status_code=422,
+            extra={"paste_text": text, "paste_error": exc.message, "focus": "paste-text"},
+        )
+    status = 200 if result.ok else 422
+    return _render(
+        request,
+        templates,
+        view,
+        status_code=status,
+        extra={"paste": result, "paste_text": text, "focus": "paste-preview"},
+    )
+
+
+@router.post("/teams/{team_id}/plan/paste")
+async def paste_commit(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    form = await request.form()
+    text = form.get("text", "")
+    text = text if isinstance(text, str) else ""
+    params = _multi(form)
+    whatif, _ = parse_whatif(params)
+    view = _view(request, session, settings, team_id, params)
+    try:
+        result = _parse(session, team_id, view, text)
+        ids = commit_paste(session, result)
+    except LoadlineError as exc:
+        extra: dict[str, Any] = {"paste_text": text, "focus": "paste-preview"}
+        try:
+            extra["paste"] = _parse(session, team_id, view, text)
+        except LoadlineError:
+            extra["paste_error"] = exc.message
+        view = _view(request, session, settings, team_id, params)
+        return _render(request, templates, view, status_code=422, extra=extra)
+    if not _is_htmx(request) and not _wants_json(request):
+        return _back(team_id, whatif)
+    view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
+    notice = f"Added {len(ids)} initiative(s) from the pasted rows."
+    return _render(request, templates, view, extra={"notice": notice, "focus": "notice"})
+
+
+# --- undo --------------------------------------------------------------------------------------
+
+
+@router.post("/teams/{team_id}/plan/undo")
+async def undo(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    form = await request.form()
+    params = _multi(form)
+    whatif, _ = parse_whatif(params)
+    try:
+        outcome = undo_last_change(session, team_id=team_id)
+    except LoadlineError as exc:
+        view = _view(request, session, settings, team_id, params)
+        status = 404 if isinstance(exc, NotFoundError) else exc.status_code
+        return _render(
+            request,
+            templates,
+            view,
+            status_code=status,
+            extra={"notice": exc.message, "focus": "notice"},
+        )
+    if not _is_htmx(request) and not _wants_json(request):
+        return _back(team_id, whatif)
+    view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
+    return _render(request, templates, view, extra={"notice": outcome.summary, "focus": "notice"})

@@ -1,0 +1,212 @@
+"""A planning meeting in the browser: set up, type rows, paste rows, force, fix a bad effort."""
+
+from __future__ import annotations
+
+import re
+from typing import Any
+
+import pytest
+from playwright.sync_api import Browser, Page, expect
+
+from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
+from tests.browser.flows import decision, quick_add, row_id, screenshot, set_up_team
+
+pytestmark = pytest.mark.browser
+
+PASTED = "\n".join(
+    [
+        "Title\tEffort\tValue\tState",
+        "Pier lights\t2\t14\t",
+        "Quay survey\t3/5/9\t22\t",
+        "Harbour app login\t4\t30\tpinned",
+        "Crane audit\t6\t18\t",
+        "Berth booking\t2/4/6\t26\t",
+        "Tide table import\t1\t6\truled out",
+    ]
+)
+
+
+def _number(page: Page, element_id: str) -> float:
+    return float(page.locator(f"#{element_id}").get_attribute("value") or "nan")
+
+
+@pytest.mark.browser
+def test_type_paste_and_watch_the_plan(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    team_id, _, _ = set_up_team(page, live_server.url)
+    screenshot(page, "plan-empty")
+    for title, effort, value in [
+        ("Gangway repair", "5", "30"),
+        ("Buoy sensors", "8", "42"),
+        ("Fuel dock permits", "3", "12"),
+        ("Crew rota tool", "9", "35"),
+        ("Ferry timetable feed", "4", "25"),
+        ("Storm shutters", "7", "20"),
+    ]:
+        quick_add(page, title, effort, value)
+    value_typed = _number(page, "total-value")
+    curve_typed = page.locator("#curve-desc").text_content()
+
+    page.locator("#paste-text").fill(PASTED)
+    page.get_by_role("button", name="Preview").click()
+    expect(page.locator("#paste-preview")).to_contain_text("6 row(s) ready")
+    screenshot(page, "paste-preview")
+    page.get_by_role("button", name="Add these 6 initiatives").click()
+    expect(page.locator("#notice")).to_have_text("Added 6 initiative(s) from the pasted rows.")
+    assert _number(page, "total-value") != value_typed
+    assert page.locator("#curve-desc").text_content() != curve_typed
+    pinned = row_id(page, "Harbour app login")
+    assert decision(page, pinned) == "in"
+    assert page.locator(f"#state-{pinned}").input_value() == "pinned"
+    assert decision(page, row_id(page, "Tide table import")) == "out"
+    expect(page.locator("#readout-plus")).to_contain_text("more days would")
+    screenshot(page, "plan-after-paste")
+    assert page.url.startswith(f"{live_server.url}/teams/{team_id}/plan")
+
+
+@pytest.mark.browser
+def test_force_in_from_the_explanation(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    rows = [("Big rebuild", "14", "30"), ("Small fix", "2", "10"), ("Medium job", "8", "40")]
+    for title, effort, value in rows:
+        quick_add(page, title, effort, value)
+    big = row_id(page, "Big rebuild")
+    assert decision(page, big) == "out"
+    page.locator(f"#why-{big} summary").click()
+    figure = page.locator(f"#explain-{big} data.value-if-in")
+    expected = float(figure.get_attribute("value") or "nan")
+    page.locator(f"#explain-{big}").get_by_role("link", name="Force in").click()
+    expect(page).to_have_url(re.compile(rf"force_in={big}"))
+    expect(page.locator(f"#row-{big} td.decision .mark")).to_have_text("In")
+    assert _number(page, "total-value") == pytest.approx(expected)
+    expect(page.locator(".whatif")).to_contain_text("Forced in: “Big rebuild”")
+    screenshot(page, "plan-what-if")
+    page.get_by_role("link", name="Clear the what-if").click()
+    expect(page.locator(f"#row-{big} td.decision .mark")).to_have_text("Out")
+
+
+@pytest.mark.browser
+def test_bad_effort_is_refused_beside_the_field(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    quick_add(page, "Buoy sensors", "8", "42")
+    gangway = row_id(page, "Gangway repair")
+    effort = page.locator(f"#effort-{gangway}")
+    for bad, message in (("abc", "Enter a number."), ("-2", "greater than 0")):
+        effort = page.locator(f"#effort-{gangway}")
+        effort.fill(bad)
+        effort.press("Tab")
+        error = page.locator(f"#effort-{gangway}-error")
+        expect(error).to_contain_text(message)
+        expect(page.locator(f"#effort-{gangway}")).to_have_value(bad)
+        expect(page.locator(f"#effort-{gangway}")).to_have_attribute("aria-invalid", "true")
+        expect(page.locator(f"#effort-{gangway}")).to_be_focused()
+    screenshot(page, "plan-bad-effort")
+    # A good value: stored, re-solved, and the keyboard moves on to the next field as usual.
+    effort = page.locator(f"#effort-{gangway}")
+    effort.fill("6")
+    effort.press("Tab")
+    expect(page.locator(f"#effort-{gangway}-error")).to_have_count(0)
+    expect(page.locator(f"#effort-{gangway}")).to_have_value("6")
+    expect(page.locator(f"#value-{gangway}")).to_be_focused()
+    assert float(page.locator("#total-effort").get_attribute("value") or 0) == pytest.approx(14)
+
+
+@pytest.mark.browser
+def test_quick_add_refuses_bad_effort(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    page.locator("#quick-title").fill("Harbour wall")
+    page.locator("#quick-effort").fill("-2")
+    page.locator("#quick-value").fill("10")
+    page.locator("#quick-value").press("Enter")
+    expect(page.locator("#quick-effort-error")).to_contain_text("greater than 0")
+    expect(page.locator("#quick-title")).to_have_value("Harbour wall")
+    expect(page.locator("#quick-effort")).to_be_focused()
+
+
+@pytest.mark.browser
+def test_reading_and_editing_without_javascript(
+    browser: Browser, live_server: LiveServer, watch: Any
+) -> None:
+    context = browser.new_context(java_script_enabled=False)
+    sign_in(context, live_server)
+    page = context.new_page()
+    watch(page)
+    page.set_default_timeout(WAIT_MS)
+    set_up_team(page, live_server.url)
+    page.locator("#quick-title").fill("Slipway")
+    page.locator("#quick-effort").fill("3")
+    page.locator("#quick-value").fill("9")
+    page.get_by_role("button", name="Add", exact=True).click()
+    expect(page.locator(".title-text", has_text="Slipway")).to_be_visible()
+    slipway = row_id(page, "Slipway")
+    page.locator(f"#value-{slipway}").fill("12")
+    page.locator(f"#save-{slipway}").click()
+    expect(page.locator(f"#value-{slipway}")).to_have_value("12")
+    page.locator(f"#why-{slipway} summary").click()  # <details> opens without scripts
+    expect(page.locator(f"#explain-{slipway} .reason")).to_be_visible()
+    screenshot(page, "plan-no-javascript")
+    context.close()
+
+
+@pytest.mark.browser
+def test_main_pages_of_the_demo(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    page.goto(live_server.url + "/")
+    screenshot(page, "home")
+    page.get_by_role("link", name="Journey Planner", exact=True).click()
+    screenshot(page, "team")
+    page.get_by_role("link", name=re.compile(r"^Plan for ")).click()
+    expect(page.locator("#total-value")).to_be_visible()
+    screenshot(page, "plan-demo")
+    page.get_by_label("Efforts planned at").select_option("80")
+    expect(page.locator("#confidence-cost")).to_contain_text("Planning at P80 gives up")
+    expect(page).to_have_url(re.compile(r"confidence=80"))
+    screenshot(page, "plan-demo-p80")
+    page.get_by_role("link", name=re.compile(r"overview$")).click()
+    expect(page.get_by_role("heading", name=re.compile("Work that spans teams"))).to_be_visible()
+    expect(page.locator("#joint-value")).to_be_visible()
+    screenshot(page, "overview")
+
+
+@pytest.mark.browser
+def test_enter_saves_a_row_once(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    gangway = row_id(page, "Gangway repair")
+    responses: list[int] = []
+    page.on(
+        "response",
+        lambda r: responses.append(r.status) if f"/plan/initiatives/{gangway}" in r.url else None,
+    )
+    value = page.locator(f"#value-{gangway}")
+    value.fill("31")
+    value.press("Enter")
+    expect(page.locator("#total-value")).to_have_attribute("value", "31.0")
+    expect(page.locator(f"#value-{gangway}")).to_be_focused()
+    page.locator(f"#value-{gangway}").fill("32")
+    page.locator(f"#value-{gangway}").press("Enter")
+    expect(page.locator("#total-value")).to_have_attribute("value", "32.0")
+    expect(page.locator(".conflict")).to_have_count(0)
+    assert responses == [200, 200]  # one request per Enter, never a clash with itself
+
+
+@pytest.mark.browser
+def test_large_plan_explains_a_row_when_opened(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    rows = "\n".join(f"Task {k}\t{k % 5 + 1}\t{k % 9 + 2}" for k in range(65))
+    page.locator("#paste-text").fill(rows)
+    page.get_by_role("button", name="Preview").click()
+    page.get_by_role("button", name="Add these 65 initiatives").click()
+    expect(page.locator("#notice")).to_contain_text("Added 65 initiative(s)")
+    task = row_id(page, "Task 7")
+    expect(page.locator(f"#why-{task} .explain-link")).to_have_count(1)
+    page.locator(f"#why-{task} summary").click()
+    expect(page.locator(f"#explain-{task} .reason")).to_be_visible()
+    expect(page.locator(f"#explain-{task} data.value-if-in")).to_have_count(1)
+    screenshot(page, "plan-large-explained")

@@ -1,0 +1,203 @@
+"""The period overview: team summaries, and the joint plan checked against scipy's milp."""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+from fastapi.testclient import TestClient
+from scipy.optimize import Bounds, LinearConstraint, milp
+from sqlmodel import Session, select
+
+from server import demo
+from server.models import Period, Team
+from server.planning.joint import joint_plan_for
+from server.planning.plans import PlanOptions, plan_for
+from server.schemas import CapacitySettingsIn, EffortIn, InitiativeCreate, TeamEffortIn
+from server.store.initiatives import create_initiative
+from server.store.periods import set_capacity_settings
+from tests.factories import make_initiative, make_member, make_period, make_team
+from tests.pages.html_tree import duplicate_ids, parse_html, unlabelled_controls
+
+# Two teams of one full-time member each (10 days). Efforts and values per initiative, the
+# cross-team one "Shared gateway" spending both teams' days.
+HARBOUR = [("Quay wall", 6.0, 30.0), ("Dock crane", 5.0, 24.0), ("Dock lights", 3.0, 12.0)]
+LIGHTHOUSE = [("Lamp", 7.0, 28.0), ("Fog horn", 4.0, 20.0)]
+SHARED = ("Shared gateway", {"Harbour": 4.0, "Lighthouse": 3.0}, 35.0)
+
+
+def _team(session: Session, name: str, period: Period) -> Team:
+    team = make_team(session, name)
+    make_member(session, team, f"{name} member")
+    set_capacity_settings(
+        session,
+        team_id=team.id or 0,
+        period_id=period.id or 0,
+        settings_in=CapacitySettingsIn(focus_factor=1.0, reserve_pct=0.0),
+    )
+    return team
+
+
+def build(session: Session) -> tuple[Period, Team, Team, dict[str, int]]:
+    period = make_period(session)
+    harbour = _team(session, "Harbour", period)
+    lighthouse = _team(session, "Lighthouse", period)
+    ids: dict[str, int] = {}
+    for title, effort, value in HARBOUR:
+        either = "Dock" if title.startswith("Dock") else None
+        ids[title] = (
+            make_initiative(session, harbour, period, title, effort, value, either_or=either).row.id
+            or 0
+        )
+    title, efforts, value = SHARED
+    ids[title] = (
+        create_initiative(
+            session,
+            initiative_in=InitiativeCreate(
+                team_id=harbour.id or 0,
+                period_id=period.id,
+                title=title,
+                effort=EffortIn(likely=efforts["Harbour"]),
+                other_efforts=[
+                    TeamEffortIn(team_id=lighthouse.id or 0, likely=efforts["Lighthouse"])
+                ],
+                value=value,
+            ),
+        ).row.id
+        or 0
+    )
+    for title, effort, value in LIGHTHOUSE:
+        needs = [ids[SHARED[0]]] if title == "Fog horn" else []
+        ids[title] = (
+            make_initiative(session, lighthouse, period, title, effort, value, needs=needs).row.id
+            or 0
+        )
+    return period, harbour, lighthouse, ids
+
+
+def _reference_milp() -> tuple[float, set[str]]:
+    """The same plan written out directly for scipy.optimize.milp (HiGHS)."""
+    titles = [t for t, _, _ in HARBOUR] + [SHARED[0]] + [t for t, _, _ in LIGHTHOUSE]
+    values = np.array([v for _, _, v in HARBOUR] + [SHARED[2]] + [v for _, _, v in LIGHTHOUSE])
+    harbour_days = [e for _, e, _ in HARBOUR] + [SHARED[1]["Harbour"], 0, 0]
+    lighthouse_days = [0, 0, 0, SHARED[1]["Lighthouse"]] + [e for _, e, _ in LIGHTHOUSE]
+    fog, shared = titles.index("Fog horn"), titles.index(SHARED[0])
+    needs_row = np.zeros(len(titles))
+    needs_row[fog], needs_row[shared] = 1, -1  # Fog horn only with the shared gateway
+    either_row = np.array([0, 1, 1, 0, 0, 0])  # Dock crane or Dock lights
+    constraints = [
+        LinearConstraint(np.array([harbour_days, lighthouse_days]), -np.inf, [10, 10]),
+        LinearConstraint(needs_row.reshape(1, -1), -np.inf, 0),
+        LinearConstraint(either_row.reshape(1, -1), -np.inf, 1),
+    ]
+    result = milp(
+        -values, integrality=np.ones(len(titles)), bounds=Bounds(0, 1), constraints=constraints
+    )
+    assert result.success
+    x = np.rint(result.x)
+    return float(values @ x), {t for t, on in zip(titles, x, strict=True) if on > 0.5}
+
+
+def _brute_force_winners() -> list[set[str]]:
+    items = [(t, {"Harbour": e}, v) for t, e, v in HARBOUR] + [SHARED]
+    items += [(t, {"Lighthouse": e}, v) for t, e, v in LIGHTHOUSE]
+    best, winners = -1.0, []
+    for size in range(len(items) + 1):
+        for subset in itertools.combinations(items, size):
+            names = {t for t, _, _ in subset}
+            if "Fog horn" in names and SHARED[0] not in names:
+                continue
+            if {"Dock crane", "Dock lights"} <= names:
+                continue
+            if any(sum(e.get(team, 0) for _, e, _ in subset) > 10 for team in SHARED[1]):
+                continue
+            total = sum(v for _, _, v in subset)
+            if total > best:
+                best, winners = total, [names]
+            elif total == best:
+                winners.append(names)
+    return winners
+
+
+def test_joint_plan_agrees_with_scipy_milp(session: Session) -> None:
+    period, _, _, ids = build(session)
+    value, chosen = _reference_milp()
+    winners = _brute_force_winners()
+    assert winners == [chosen], "the example must have one best joint plan"
+    joint = joint_plan_for(session, period_id=period.id or 0)
+    assert joint.selection is not None
+    assert joint.selection.method == "milp-highs"
+    assert joint.selection.value == pytest.approx(value)
+    titles = {str(i): t for t, i in ids.items()}
+    assert {titles[k] for k in joint.selection.chosen} == chosen
+    (shared,) = joint.shared
+    assert shared.title == SHARED[0]
+    assert shared.chosen == (SHARED[0] in chosen)
+    assert dict(shared.efforts) == SHARED[1]
+
+
+def test_overview_page_shows_teams_and_joint_plan(
+    form_client: TestClient, session: Session
+) -> None:
+    period, harbour, lighthouse, _ = build(session)
+    value, chosen = _reference_milp()
+    response = form_client.get(f"/periods/{period.id}/overview")
+    assert response.status_code == 200
+    root = parse_html(response.text)
+    assert duplicate_ids(root) == []
+    assert unlabelled_controls(root) == []
+    for team in (harbour, lighthouse):
+        plan = plan_for(
+            session,
+            team_id=team.id or 0,
+            period_id=period.id or 0,
+            options=PlanOptions(explain=False, curve=False),
+        )
+        cells = [td.text() for td in root.by_id(f"team-{team.id}").find_all("td")]
+        assert cells[1] == f"{plan.selection.value:g}"
+        assert cells[3] == "10"  # capacity in days
+    assert float(root.by_id("joint-value").get("value") or 0) == pytest.approx(value)
+    shared_row = root.find("tr", where=lambda n: (n.get("id") or "").startswith("shared-"))
+    assert shared_row is not None
+    mark = shared_row.find("td", cls="joint-decision")
+    assert mark is not None
+    assert mark.text() == ("In" if SHARED[0] in chosen else "Out")
+    assert "Harbour: 4" in shared_row.text()
+    assert "Lighthouse: 3" in shared_row.text()
+    body = form_client.get(
+        f"/periods/{period.id}/overview", headers={"Accept": "application/json"}
+    ).json()
+    assert body["joint"]["value"] == pytest.approx(value)
+    assert body["joint"]["shared"][0]["chosen_jointly"] == (SHARED[0] in chosen)
+
+
+def test_no_shared_work_means_no_joint_solve(form_client: TestClient, session: Session) -> None:
+    period = make_period(session)
+    team = _team(session, "Harbour", period)
+    make_initiative(session, team, period, "Quay wall", 3, 10)
+    assert joint_plan_for(session, period_id=period.id or 0).selection is None
+    text = parse_html(form_client.get(f"/periods/{period.id}/overview").text).text()
+    assert "each team's own plan is the whole story" in text
+
+
+def test_team_without_capacity_is_named(form_client: TestClient, session: Session) -> None:
+    period = make_period(session)
+    make_team(session, "Harbour")
+    text = parse_html(form_client.get(f"/periods/{period.id}/overview").text).text()
+    assert "No capacity in this period yet" in text
+
+
+def test_demo_overview_solves_the_shared_initiative(
+    form_client: TestClient, session: Session
+) -> None:
+    demo.load(session)
+    quarter = session.exec(select(Period).where(Period.name == demo.QUARTER)).one()
+    body = form_client.get(
+        f"/periods/{quarter.id}/overview", headers={"Accept": "application/json"}
+    ).json()
+    assert body["joint"]["solved"]
+    assert body["joint"]["method"] == "milp-highs"
+    assert [s["title"] for s in body["joint"]["shared"]] == [demo.CROSS_TEAM_TITLE]
+    for team in body["joint"]["teams"]:
+        assert team["effort_days"] <= team["capacity_days"] + 1e-9

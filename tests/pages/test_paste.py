@@ -1,0 +1,200 @@
+"""Pasting rows from a spreadsheet: parsing, per-row errors, all-or-nothing commit."""
+
+from __future__ import annotations
+
+import pytest
+from fastapi.testclient import TestClient
+from sqlmodel import Session, func, select
+
+from server.errors import InputError
+from server.models import AuditEntry, EffortLine, Initiative
+from server.planning import paste as paste_module
+from server.planning.paste import commit_paste, parse_paste
+from tests.pages.html_tree import parse_html
+from tests.pages.test_plan_pages import HX, build, post_form
+
+
+def _count(session: Session) -> int:
+    return int(session.exec(select(func.count()).select_from(Initiative)).one())
+
+
+def _parse(text: str):
+    return parse_paste(text, team_id=1, period_id=None)
+
+
+# --- parsing -----------------------------------------------------------------------------------
+
+
+def test_tab_separated_with_header_and_three_point_cells() -> None:
+    text = "Title\tEffort\tValue\tState\nQuay wall\t3/5/8\t40\tpinned\nGate\t2,5\t10\truled out\n"
+    result = _parse(text)
+    assert result.ok
+    assert result.header
+    assert result.delimiter == "tab"
+    quay, gate = result.rows
+    assert quay.line == 2
+    assert gate.line == 3
+    assert quay.initiative_in is not None
+    assert gate.initiative_in is not None
+    effort = quay.initiative_in.effort
+    assert (effort.low, effort.likely, effort.high) == (3, 5, 8)
+    assert quay.initiative_in.state == "pinned"
+    assert gate.initiative_in.effort.likely == 2.5  # decimal comma in tab-separated text
+    assert gate.initiative_in.state == "ruled_out"
+
+
+def test_comma_separated_without_header_and_separate_columns() -> None:
+    result = _parse("Quay wall,5,40\nGate,2,10,candidate\n")
+    assert result.ok
+    assert not result.header
+    assert result.delimiter == "comma"
+    assert [r.initiative_in.value for r in result.rows if r.initiative_in] == [40, 10]
+    three = _parse("Quay wall\t3\t5\t8\t40\nGate\t\t2\t\t10\n")
+    assert three.ok
+    first, second = (r.initiative_in for r in three.rows)
+    assert first is not None
+    assert (first.effort.low, first.effort.high) == (3, 8)
+    assert second is not None
+    assert second.effort.low is None
+    assert second.effort.likely == 2
+
+
+def test_quoted_cells_keep_their_commas() -> None:
+    result = _parse('"Quay wall, north side",5,40\n')
+    assert result.ok
+    assert result.rows[0].title == "Quay wall, north side"
+
+
+def test_errors_name_the_line_and_the_field() -> None:
+    text = "\n".join(
+        [
+            "Quay wall\t5\t40",  # line 1: fine
+            "Gate\tabc\t10",  # line 2: effort not a number
+            "Crane\t-2\t10",  # line 3: negative effort
+            "Buoy\t2\t",  # line 4: value missing
+            "Lock\t2\t10\tmaybe",  # line 5: unknown state
+            "=SUM(A1:A3)\t2\t10",  # line 6: a formula, not a title
+            "Pier\t8/3/9\t10",  # line 7: low above likely
+            "quay wall\t1\t1",  # line 8: same title as line 1
+        ]
+    )
+    result = _parse(text)
+    assert not result.ok
+    assert result.error_count == 7
+    errors = {row.line: row.errors for row in result.rows}
+    assert errors[1] == {}
+    assert errors[2] == {"effort": "Enter a number."}
+    assert "greater than 0" in errors[3]["effort"]
+    assert errors[4] == {"value": "This field is required."}
+    assert "not a state" in errors[5]["state"]
+    assert "formula" in errors[6]["title"]
+    assert "low estimate is above the likely one" in errors[7]["effort"]
+    assert errors[8] == {"title": "The same title as line 1."}
+
+
+def test_block_level_problems() -> None:
+    assert _parse("").problems == ("There are no rows to add.",)
+    too_wide = _parse("a,1,2,3,4,5,6\n")
+    assert "7 columns" in too_wide.problems[0]
+    header = _parse("Title,Effort,Colour\nQuay,3,red\n")
+    assert any("Colour" in p for p in header.problems)
+    assert any("no value column" in p for p in header.problems)
+    many = _parse("\n".join(f"Row {k},1,1" for k in range(paste_module.MAX_ROWS + 1)))
+    assert any("more than the" in p for p in many.problems)
+    with pytest.raises(InputError):
+        _parse('"unclosed,1,2\nnext,1,2')
+
+
+# --- commit ----------------------------------------------------------------------------------
+
+
+def test_commit_is_all_or_nothing(session: Session, monkeypatch: pytest.MonkeyPatch) -> None:
+    setup = build(session)
+    good = parse_paste(
+        "Tide gauge\t2\t10\nBuoy\t1/2/3\t5\nLock\t4\t20\n",
+        team_id=setup.team.id or 0,
+        period_id=setup.period.id,
+    )
+    before = _count(session)
+    lines_before = int(session.exec(select(func.count()).select_from(EffortLine)).one())
+    calls = {"n": 0}
+    real = paste_module.create_initiative
+
+    def failing_third(*args: object, **kwargs: object):
+        calls["n"] += 1
+        if calls["n"] == 3:
+            raise InputError("period_id: no period with id 99.", field="period_id")
+        return real(*args, **kwargs)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(paste_module, "create_initiative", failing_third)
+    with pytest.raises(InputError):
+        commit_paste(session, good)
+    assert _count(session) == before  # the first two rows were not kept either
+    assert int(session.exec(select(func.count()).select_from(EffortLine)).one()) == lines_before
+    monkeypatch.setattr(paste_module, "create_initiative", real)
+    ids = commit_paste(session, good)
+    assert len(ids) == 3
+    assert _count(session) == before + 3
+    grouping = session.exec(select(AuditEntry).where(AuditEntry.action == "initiative.paste")).one()
+    assert grouping.after == {"initiative_ids": ids}
+
+
+def test_preview_shows_errors_per_row_and_commit_refuses_bad_blocks(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    base = f"/teams/{setup.team.id}/plan/paste"
+    text = "Title\tEffort\tValue\nTide gauge\t2\t10\nBuoy\tabc\t5\nLock\t4\t20\n"
+    fields = {"text": text, "period_id": str(setup.period.id)}
+    preview = post_form(form_client, f"{base}/preview", fields, **HX)
+    assert preview.status_code == 422
+    root = parse_html(preview.text)
+    bad = root.by_id("paste-line-3")
+    assert "Line 3, effort: Enter a number." in bad.text()
+    assert "ready" in root.by_id("paste-line-2").text()
+    assert "1 of 3 row(s) have errors" in root.by_id("paste-preview").text()
+    assert root.find(id="paste-add") is None  # no add button while a row is wrong
+    assert root.by_id("paste-text").text() == " ".join(text.split())  # kept to correct
+    before = _count(session)
+    refused = post_form(form_client, base, fields, **HX)
+    assert refused.status_code == 422
+    assert _count(session) == before
+    assert "Line 3, effort" in refused.text
+
+
+def test_preview_then_add_then_undo(form_client: TestClient, session: Session) -> None:
+    setup = build(session)
+    base = f"/teams/{setup.team.id}/plan/paste"
+    rows = [f"Pasted {k}\t{k % 4 + 1}\t{k * 3 + 1}" for k in range(30)]
+    fields = {"text": "\n".join(rows), "period_id": str(setup.period.id)}
+    preview = post_form(form_client, f"{base}/preview", fields, **HX)
+    assert preview.status_code == 200
+    root = parse_html(preview.text)
+    assert root.by_id("paste-add").text() == "Add these 30 initiatives"
+    assert root.by_id("paste-add").get("formaction") == base
+    assert "autofocus" in root.by_id("paste-preview").attrs
+    before = _count(session)
+    added = post_form(form_client, base, fields, **HX)
+    assert added.status_code == 200
+    assert _count(session) == before + 30
+    page = parse_html(added.text)
+    assert "Added 30 initiative(s)" in page.by_id("notice").text()
+    assert "Pasted 29" in page.text()
+    undone = post_form(
+        form_client,
+        f"/teams/{setup.team.id}/plan/undo",
+        {"period_id": str(setup.period.id)},
+        **HX,
+    )
+    assert undone.status_code == 200
+    assert _count(session) == before  # one undo removes the whole paste
+    assert "Removed the 30 pasted initiative(s) again" in undone.text
+
+
+def test_plain_form_add_redirects(form_client: TestClient, session: Session) -> None:
+    setup = build(session)
+    fields = {"text": "Tide gauge,2,10", "period_id": str(setup.period.id)}
+    response = post_form(form_client, f"/teams/{setup.team.id}/plan/paste", fields)
+    assert response.status_code == 303
+    assert response.headers["location"] == setup.url
+    assert session.exec(select(Initiative).where(Initiative.title == "Tide gauge")).one()
