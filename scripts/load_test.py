@@ -62,7 +62,7 @@ def prepare(database_url: str) -> str:
 def start_server(database_url: str, port: int, workers: int) -> subprocess.Popen[bytes]:
     env = {**os.environ, "DATABASE_URL": database_url, "LOADLINE_SECRET_KEY": "load-test-secret"}
     command = [
-        PYTHON, "-m", "uvicorn", "server.app:create_app", "--factory",
+        PYTHON, "-m", "uvicorn", "server.serving:app_for_workers", "--factory",
         "--host", "127.0.0.1", "--port", str(port), "--workers", str(workers),
         "--log-level", "warning", "--no-access-log",
     ]  # fmt: skip

@@ -12,9 +12,12 @@ from server.errors import LoadlineError
 
 def _serve(args: argparse.Namespace) -> int:
     import uvicorn
+    from sqlmodel import Session
 
     from server import demo, migrate
     from server.app import create_app
+    from server.serving import tune_garbage_collection
+    from server.store.users import count_users
 
     settings = Settings.from_env()
     migrate.upgrade(settings)
@@ -22,6 +25,11 @@ def _serve(args: argparse.Namespace) -> int:
     if not args.no_demo:
         loaded = demo.load_if_empty(app.state.engine)
         print("Loaded the demo workspace." if loaded else "Database has data; demo not loaded.")
+    with Session(app.state.engine) as session:
+        if count_users(session) == 0:
+            print("No accounts yet: open the address below on this machine to create the first")
+            print("administrator (or run: loadline create-user NAME --role admin).")
+    tune_garbage_collection()
     print(f"Loadline is running on http://{args.host}:{args.port}  (Ctrl+C stops it)", flush=True)
     uvicorn.run(app, host=args.host, port=args.port, log_level="warning")
     return 0
