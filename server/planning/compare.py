@@ -1,0 +1,373 @@
+"""Side-by-side comparison of two to four saved plans, and their capacity curves on one chart.
+
+Plans are compared on their stored snapshots only. Initiatives are matched by key (the
+initiative's id), so the differences are plain set arithmetic on the chosen sets: for every
+pair of plans, what is in one and not the other; what every plan has; what only one has.
+"""
+
+from __future__ import annotations
+
+import bisect
+import datetime as dt
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from pydantic import BaseModel
+
+from server.errors import InputError
+from server.models import SavedPlan
+from server.planning.snapshots import PlanView, view_of
+
+MIN_PLANS = 2
+MAX_ID = 2**31 - 1  # ids are INTEGER columns
+MAX_PLANS = 4
+LABELS = "ABCD"
+
+
+class ComparedPlan(BaseModel):
+    id: int
+    label: str  # A, B, C, D in the order asked for
+    name: str
+    team_names: str
+    period_name: str
+    created_at: dt.datetime
+    created_by: str
+    scenario_name: str | None
+    changed_inputs: list[str]
+    feasible: bool
+    value: float
+    effort: float
+    capacity: float
+    headroom: float
+    utilisation: float | None
+    confidence: float | None
+    fit_probability: float | None
+    fit_label: str | None
+    method: str
+    chosen: list[str]  # keys
+
+
+class ComparedInitiative(BaseModel):
+    key: str
+    title: str
+    # Per plan in order: "in", "out", or None when it was not a candidate of that plan.
+    cells: list[str | None]
+
+
+class PairDifference(BaseModel):
+    a: str
+    b: str
+    only_in_a: list[str]  # keys in A's chosen set and not in B's
+    only_in_b: list[str]
+
+
+class CurveData(BaseModel):
+    label: str
+    capacity: float
+    capacity_days: list[float]
+    values: list[float]
+
+
+class Comparison(BaseModel):
+    plan_ids: list[int]
+    plans: list[ComparedPlan]
+    initiatives: list[ComparedInitiative]
+    titles: dict[str, str]
+    pairs: list[PairDifference]
+    in_all: list[str]
+    in_any: list[str]
+    only_in: dict[str, list[str]]  # label -> keys chosen by that plan alone
+    curves: list[CurveData]
+
+
+def parse_plan_ids(raw: Sequence[str]) -> list[int]:
+    """Read plan ids from `plans=1,2,3` (or repeated `plans=`); enforce two to four, no repeats."""
+    parts = [p.strip() for chunk in raw for p in chunk.split(",") if p.strip()]
+    ids: list[int] = []
+    for part in parts:
+        if not part.isdigit() or not 1 <= int(part) <= MAX_ID:
+            raise InputError(f"plans: {part!r} is not a plan id.", field="plans")
+        ids.append(int(part))
+    if len(set(ids)) != len(ids):
+        raise InputError("plans: each plan may appear only once.", field="plans")
+    if not MIN_PLANS <= len(ids) <= MAX_PLANS:
+        raise InputError(
+            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(ids)}).", field="plans"
+        )
+    return ids
+
+
+def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
+    r = view.result
+    return ComparedPlan(
+        id=db_plan.id or 0,
+        label=label,
+        name=db_plan.name,
+        team_names=view.team_names,
+        period_name=view.inputs.period.name,
+        created_at=db_plan.created_at,
+        created_by=db_plan.created_by,
+        scenario_name=r.scenario_name,
+        changed_inputs=r.changed_inputs,
+        feasible=r.feasible,
+        value=r.value,
+        effort=r.effort,
+        capacity=r.capacity,
+        headroom=r.headroom,
+        utilisation=r.utilisation,
+        confidence=r.confidence,
+        fit_probability=r.fit.probability if r.fit is not None else None,
+        fit_label=r.fit.label if r.fit is not None else None,
+        method=r.method,
+        chosen=list(r.chosen),
+    )
+
+
+def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
+    """Compare saved plans (two to four, in the order given)."""
+    if not MIN_PLANS <= len(db_plans) <= MAX_PLANS:
+        raise InputError(
+            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(db_plans)}).",
+            field="plans",
+        )
+    views = [view_of(p.inputs, p.result) for p in db_plans]
+    plans = [
+        _compared(LABELS[i], p, v) for i, (p, v) in enumerate(zip(db_plans, views, strict=True))
+    ]
+    # Newest title wins when an initiative was renamed between saves.
+    by_age = sorted(range(len(db_plans)), key=lambda i: (db_plans[i].created_at, i))
+    titles: dict[str, str] = {}
+    for i in by_age:
+        titles.update(views[i].titles)
+    order: list[str] = []
+    for view in views:
+        order.extend(k for k in view.titles if k not in order)
+    chosen_sets = [set(p.chosen) for p in plans]
+    candidate_sets = [set(v.titles) for v in views]
+    initiatives = [
+        ComparedInitiative(
+            key=key,
+            title=titles[key],
+            cells=[
+                ("in" if key in chosen else "out") if key in candidates else None
+                for chosen, candidates in zip(chosen_sets, candidate_sets, strict=True)
+            ],
+        )
+        for key in order
+    ]
+    pairs = []
+    for i in range(len(plans)):
+        for j in range(i + 1, len(plans)):
+            pairs.append(
+                PairDifference(
+                    a=plans[i].label,
+                    b=plans[j].label,
+                    only_in_a=[k for k in order if k in chosen_sets[i] - chosen_sets[j]],
+                    only_in_b=[k for k in order if k in chosen_sets[j] - chosen_sets[i]],
+                )
+            )
+    in_all = set.intersection(*chosen_sets)
+    in_any = set.union(*chosen_sets)
+    only_in = {
+        plans[i].label: [
+            k
+            for k in order
+            if k in chosen_sets[i] - set().union(*(s for j, s in enumerate(chosen_sets) if j != i))
+        ]
+        for i in range(len(plans))
+    }
+    curves = [
+        CurveData(
+            label=p.label,
+            capacity=p.capacity,
+            capacity_days=list(v.result.curve.capacity_days),
+            values=list(v.result.curve.values),
+        )
+        for p, v in zip(plans, views, strict=True)
+        if v.result.curve is not None and v.result.curve.capacity_days
+    ]
+    return Comparison(
+        plan_ids=[p.id for p in plans],
+        plans=plans,
+        initiatives=initiatives,
+        titles=titles,
+        pairs=pairs,
+        in_all=[k for k in order if k in in_all],
+        in_any=[k for k in order if k in in_any],
+        only_in=only_in,
+        curves=curves,
+    )
+
+
+# --- the capacity curves chart -------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Tick:
+    at: float  # pixels along the axis
+    label: str
+
+
+@dataclass(frozen=True)
+class SeriesLine:
+    label: str
+    name: str
+    css_class: str
+    points: str  # SVG polyline points, a step line
+    capacity: float
+    value_at_capacity: float | None
+    marker_x: float
+    marker_y: float | None
+
+
+@dataclass(frozen=True)
+class TableRow:
+    capacity: float
+    values: list[float | None]  # per series; None where no plan fits (pinned work)
+
+
+@dataclass(frozen=True)
+class CurvesChart:
+    width: int
+    height: int
+    left: float
+    top: float
+    right: float
+    bottom: float
+    x_ticks: list[Tick]
+    y_ticks: list[Tick]
+    series: list[SeriesLine]
+    rows: list[TableRow]
+    title: str
+    description: str
+    missing: list[str]  # labels of plans that have no curve
+
+
+def nice_step(span: float, target_ticks: int = 5) -> float:
+    """A round step (1, 2 or 5 times a power of ten) giving about target_ticks intervals."""
+    if span <= 0:
+        return 1.0
+    raw = span / target_ticks
+    power = 10 ** math.floor(math.log10(raw))
+    for factor in (1, 2, 5, 10):
+        if raw <= factor * power:
+            return factor * power
+    return 10 * power  # pragma: no cover - the loop always returns
+
+
+def value_at(curve: CurveData, capacity: float) -> float | None:
+    """Best value reachable with `capacity` days: the last curve point at or below it."""
+    i = bisect.bisect_right(curve.capacity_days, capacity + 1e-9) - 1
+    return curve.values[i] if i >= 0 else None
+
+
+def _fmt(value: float) -> str:
+    return f"{round(value, 1):g}"
+
+
+def curves_chart(
+    comparison_curves: Sequence[CurveData],
+    names: dict[str, str],
+    *,
+    width: int = 720,
+    height: int = 340,
+) -> CurvesChart:
+    """Geometry of one SVG with up to four step curves, their capacity marks and a table."""
+    left, top, right, bottom = 64.0, 16.0, width - 16.0, height - 44.0
+    x_max = max((c.capacity_days[-1] for c in comparison_curves), default=0.0)
+    x_max = max(x_max, *(c.capacity for c in comparison_curves), 1.0) if comparison_curves else 1.0
+    y_top = max((max(c.values) for c in comparison_curves if c.values), default=0.0)
+    # The axes end just past the data (no empty band up to the next round number); ticks sit
+    # on round steps inside them.
+    y_step = nice_step(y_top or 1.0)
+    y_max = (y_top or 1.0) * 1.05
+    x_step = nice_step(x_max)
+    x_end = x_max * 1.02
+
+    def sx(days: float) -> float:
+        return round(left + (right - left) * days / x_end, 2)
+
+    def sy(value: float) -> float:
+        return round(bottom - (bottom - top) * value / y_max, 2)
+
+    series = []
+    for index, curve in enumerate(comparison_curves):
+        points: list[tuple[float, float]] = []
+        previous: float | None = None
+        for x, y in zip(curve.capacity_days, curve.values, strict=True):
+            if previous is None:
+                points.append((sx(x), sy(y)))
+            elif y != previous:  # a step: run along at the old value, then up
+                points.append((sx(x), sy(previous)))
+                points.append((sx(x), sy(y)))
+            previous = y
+        end = sx(curve.capacity_days[-1])
+        if points[-1][0] != end:
+            points.append((end, sy(curve.values[-1])))
+        at_capacity = value_at(curve, curve.capacity)
+        series.append(
+            SeriesLine(
+                label=curve.label,
+                name=names.get(curve.label, curve.label),
+                css_class=f"cmp-series-{index}",
+                points=" ".join(f"{x:g},{y:g}" for x, y in points),
+                capacity=curve.capacity,
+                value_at_capacity=at_capacity,
+                marker_x=sx(curve.capacity),
+                marker_y=sy(at_capacity) if at_capacity is not None else None,
+            )
+        )
+    x_count = math.floor(x_end / x_step + 1e-9)
+    y_count = math.floor(y_max / y_step + 1e-9)
+    x_ticks = [Tick(sx(k * x_step), _fmt(k * x_step)) for k in range(x_count + 1)]
+    y_ticks = [Tick(sy(k * y_step), _fmt(k * y_step)) for k in range(y_count + 1)]
+    grid = sorted(
+        {round(k * x_step, 6) for k in range(x_count + 1)}
+        | {round(c.capacity, 6) for c in comparison_curves}
+        | {round(x_max, 6)}
+    )
+    rows = [TableRow(capacity=g, values=[value_at(c, g) for c in comparison_curves]) for g in grid]
+    labels = [c.label for c in comparison_curves]
+    missing = [label for label in names if label not in labels]
+    parts = []
+    for s in series:
+        at = _fmt(s.value_at_capacity) if s.value_at_capacity is not None else "no plan fits"
+        parts.append(f"{s.label} ({s.name}): value {at} at its capacity of {_fmt(s.capacity)} days")
+    description = (
+        "Best reachable value score against capacity in person-days, one step line per plan. "
+        + "; ".join(parts)
+        + "."
+        + (f" No curve for {', '.join(missing)}." if missing else "")
+    )
+    return CurvesChart(
+        width=width,
+        height=height,
+        left=left,
+        top=top,
+        right=right,
+        bottom=bottom,
+        x_ticks=x_ticks,
+        y_ticks=y_ticks,
+        series=series,
+        rows=rows,
+        title="Capacity curves of " + ", ".join(f"{s.label}" for s in series)
+        if series
+        else "No capacity curves",
+        description=description,
+        missing=missing,
+    )
+
+
+def single_curve_chart(view: PlanView, *, label: str, name: str) -> CurvesChart | None:
+    """The chart of one stored plan (saved, scenario or published page); None without a curve."""
+    curve = view.result.curve
+    if curve is None or not curve.capacity_days:
+        return None
+    data = CurveData(
+        label=label,
+        capacity=view.result.capacity,
+        capacity_days=curve.capacity_days,
+        values=curve.values,
+    )
+    return curves_chart([data], {label: name})

@@ -1,0 +1,550 @@
+"""Pages for saved plans, scenarios, comparisons, published links, exports and CSV import.
+
+Thin routes: forms are parsed into the API's input models (or planning.scenarios' form
+reader), the planning and persistence layers do the work, and a refused value re-shows the
+form with the values kept and the message beside the field.
+
+The saved-plan page is rendered from the snapshot alone, so it stays byte-for-byte the same
+while live data changes; whether live data has moved on is a separate fragment
+(/plans/{id}/changes), loaded by htmx or followed as a link.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Query, Request
+from fastapi.responses import RedirectResponse, Response
+from pydantic import TypeAdapter, ValidationError
+from starlette.datastructures import FormData, UploadFile
+
+from server.actor import current_actor
+from server.deps import SessionDep, SettingsDep, TemplatesDep
+from server.errors import InputError, LoadlineError
+from server.planning import exports
+from server.planning.compare import (
+    MAX_PLANS,
+    compare,
+    curves_chart,
+    parse_plan_ids,
+    single_curve_chart,
+)
+from server.planning.scenarios import (
+    MAX_ID,
+    ScenarioChanges,
+    baseline_of,
+    capture,
+    changes_from_json,
+    check_for_team,
+    parse_changes_form,
+    scenario_snapshot,
+    solve_scenario,
+)
+from server.planning.snapshots import drift_of, view_from_snapshot, view_of
+from server.routes.api_plans import (
+    ExportFormat,
+    PathId,
+    QueryId,
+    RequiredQueryId,
+    comparison_export,
+    plan_export,
+    plan_summary,
+)
+from server.schemas import Title
+from server.store import plans as store
+from server.store.periods import get_period, list_periods
+from server.store.teams import get_team
+
+router = APIRouter(include_in_schema=False)
+
+_TITLE = TypeAdapter(Title)
+MAX_UPLOAD_CHARS = 1_500_000
+
+
+def _see_other(url: str) -> RedirectResponse:
+    return RedirectResponse(url, status_code=303)
+
+
+def _text(form: FormData, name: str) -> str:
+    value = form.get(name, "")
+    return value.strip() if isinstance(value, str) else ""
+
+
+def _int(raw: str) -> int | None:
+    return int(raw) if raw.isdigit() and 1 <= int(raw) <= MAX_ID else None
+
+
+def _actor(typed: str) -> str:
+    """The signed-in user when there is one, else the name typed into the form."""
+    return current_actor.get() or typed[:80]
+
+
+def _name(raw: str) -> tuple[str | None, dict[str, str]]:
+    try:
+        return _TITLE.validate_python(raw), {}
+    except ValidationError:
+        return None, {"name": "Give a name of 1 to 200 characters."}
+
+
+def _render(
+    templates: TemplatesDep,
+    request: Request,
+    name: str,
+    context: dict[str, Any],
+    status_code: int = 200,
+) -> Response:
+    return templates.TemplateResponse(request, name, context, status_code=status_code)
+
+
+# --- saving a plan -------------------------------------------------------------------------
+
+
+def _save_context(
+    session: SessionDep, team_id: int, period_id: int, scenario_id: int | None
+) -> dict[str, Any]:
+    team = get_team(session, team_id=team_id)
+    period = get_period(session, period_id=period_id)
+    scenario = store.get_scenario(session, scenario_id=scenario_id) if scenario_id else None
+    return {
+        "team": team,
+        "period": period,
+        "scenario": scenario,
+        "form": {"name": scenario.name if scenario else f"{team.name} · {period.name}"},
+        "errors": {},
+    }
+
+
+@router.get("/plans/new")
+def new_plan_page(
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    team_id: RequiredQueryId,
+    period_id: RequiredQueryId,
+    scenario_id: QueryId = None,
+) -> Response:
+    context = _save_context(session, team_id, period_id, scenario_id)
+    return _render(templates, request, "plans/save.html", context)
+
+
+@router.post("/plans")
+async def save_plan(
+    request: Request, session: SessionDep, templates: TemplatesDep, settings: SettingsDep
+) -> Response:
+    """Save the live plan (or a scenario) of a team in a period as a frozen snapshot."""
+    form = await request.form()
+    scenario_id = _int(_text(form, "scenario_id"))
+    scenario = store.get_scenario(session, scenario_id=scenario_id) if scenario_id else None
+    # A scenario belongs to one team and period: those win over whatever the form says.
+    team_id = scenario.team_id if scenario else _int(_text(form, "team_id"))
+    period_id = scenario.period_id if scenario else _int(_text(form, "period_id"))
+    if team_id is None or period_id is None:
+        raise InputError("team_id and period_id: choose the team and the period.", field="team_id")
+    name, errors = _name(_text(form, "name"))
+    if name is not None:
+        changes = changes_from_json(scenario.changes) if scenario else ScenarioChanges()
+        try:
+            snapshot = capture(
+                session,
+                team_id=team_id,
+                period_id=period_id,
+                changes=changes,
+                resolution=settings.resolution_days,
+                scenario_name=scenario.name if scenario else None,
+            )
+        except LoadlineError as exc:
+            errors = {exc.field or "form": exc.message}
+        else:
+            db_plan = store.save_plan(
+                session,
+                name=name,
+                snapshot=snapshot,
+                scenario_changes=changes.to_json(),
+                actor=_actor(_text(form, "created_by")),
+            )
+            return _see_other(f"/plans/{db_plan.id}")
+    context = _save_context(session, team_id, period_id, scenario_id)
+    context |= {"form": {"name": _text(form, "name")}, "errors": errors}
+    return _render(templates, request, "plans/save.html", context, status_code=422)
+
+
+# --- saved plans ---------------------------------------------------------------------------
+
+
+@router.get("/plans")
+def plans_page(
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    team_id: QueryId = None,
+    period_id: QueryId = None,
+) -> Response:
+    team = get_team(session, team_id=team_id) if team_id is not None else None
+    period = get_period(session, period_id=period_id) if period_id is not None else None
+    rows = store.list_plans(session, team_id=team_id, period_id=period_id)
+    context = {
+        "team": team,
+        "period": period,
+        "plans": [plan_summary(p) for p in rows],
+        "max_plans": MAX_PLANS,
+    }
+    return _render(templates, request, "plans/list.html", context)
+
+
+@router.get("/plans/{plan_id}")
+def saved_plan_page(
+    plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    db_plan = store.get_plan(session, plan_id=plan_id)
+    view = view_of(db_plan.inputs, db_plan.result)
+    context = {
+        "plan": db_plan,
+        "view": view,
+        "chart": single_curve_chart(view, label="Plan", name=db_plan.name),
+        "publications": store.list_publications(session, plan_id=plan_id),
+    }
+    return _render(templates, request, "plans/saved.html", context)
+
+
+@router.get("/plans/{plan_id}/changes")
+def plan_changes_page(
+    plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    db_plan = store.get_plan(session, plan_id=plan_id)
+    drift = drift_of(
+        session, inputs=db_plan.inputs, result=db_plan.result, digest=db_plan.inputs_digest
+    )
+    context = {"plan": db_plan, "drift": drift}
+    if request.headers.get("hx-request") == "true":
+        return _render(templates, request, "plans/_drift.html", context)
+    return _render(templates, request, "plans/changes.html", context)
+
+
+@router.get("/plans/{plan_id}/export.{fmt}")
+def export_plan(plan_id: PathId, fmt: ExportFormat, session: SessionDep) -> Response:
+    return plan_export(store.get_plan(session, plan_id=plan_id), fmt)
+
+
+@router.post("/plans/{plan_id}/publish")
+async def publish_plan(plan_id: PathId, request: Request, session: SessionDep) -> Response:
+    form = await request.form()
+    store.publish_plan(session, plan_id=plan_id, actor=_actor(_text(form, "created_by")))
+    return _see_other(f"/plans/{plan_id}#links")
+
+
+@router.post("/publications/{publication_id}/revoke")
+async def revoke_publication(
+    publication_id: PathId, request: Request, session: SessionDep
+) -> Response:
+    form = await request.form()
+    db_publication = store.revoke_publication(
+        session, publication_id=publication_id, actor=_actor(_text(form, "created_by"))
+    )
+    return _see_other(f"/plans/{db_publication.plan_id}#links")
+
+
+# --- comparison ----------------------------------------------------------------------------
+
+
+@router.get("/compare")
+def compare_page(
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    plans: list[str] = Query(default_factory=list),
+) -> Response:
+    ids = parse_plan_ids(plans)
+    canonical = "/compare?plans=" + ",".join(str(i) for i in ids)
+    if len(plans) > 1:  # ticked boxes arrive as plans=1&plans=2: answer with the stable URL
+        return _see_other(canonical)
+    comparison = compare(store.get_plans(session, plan_ids=ids))
+    names = {p.label: p.name for p in comparison.plans}
+    context = {
+        "comparison": comparison,
+        "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
+        "query": ",".join(str(i) for i in ids),
+    }
+    return _render(templates, request, "plans/compare.html", context)
+
+
+@router.get("/compare/export.{fmt}")
+def export_comparison(
+    fmt: ExportFormat, session: SessionDep, plans: list[str] = Query(default_factory=list)
+) -> Response:
+    comparison = compare(store.get_plans(session, plan_ids=parse_plan_ids(plans)))
+    return comparison_export(comparison, fmt)
+
+
+# --- scenarios -----------------------------------------------------------------------------
+
+
+def _scenario_form_context(
+    session: SessionDep, team_id: int, period_id: int, settings: SettingsDep
+) -> dict[str, Any]:
+    """The live plan a scenario varies, to show live values beside each field."""
+    return {
+        "baseline": baseline_of(
+            session, team_id=team_id, period_id=period_id, resolution=settings.resolution_days
+        )
+    }
+
+
+def _scenarios_context(
+    session: SessionDep, team_id: int, period_id: int | None, settings: SettingsDep
+) -> dict[str, Any]:
+    team = get_team(session, team_id=team_id)
+    periods = list_periods(session)
+    if period_id is None and periods:
+        period_id = periods[0].id
+    period = get_period(session, period_id=period_id) if period_id is not None else None
+    context: dict[str, Any] = {
+        "team": team,
+        "periods": periods,
+        "period": period,
+        "scenarios": store.list_scenarios(session, team_id=team_id, period_id=period_id)
+        if period
+        else [],
+        "form": {},
+        "errors": {},
+    }
+    if period is not None:
+        context |= _scenario_form_context(session, team_id, period.id or 0, settings)
+    return context
+
+
+@router.get("/teams/{team_id}/scenarios")
+def scenarios_page(
+    team_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+    period_id: QueryId = None,
+) -> Response:
+    context = _scenarios_context(session, team_id, period_id, settings)
+    return _render(templates, request, "plans/scenarios.html", context)
+
+
+def _read_changes(
+    session: SessionDep, form: FormData, team_id: int, period_id: int
+) -> tuple[ScenarioChanges | None, dict[str, str]]:
+    fields = {key: value for key, value in form.items() if isinstance(value, str)}
+    changes, errors = parse_changes_form(fields)
+    if changes is not None:
+        try:
+            check_for_team(session, team_id=team_id, period_id=period_id, changes=changes)
+        except LoadlineError as exc:
+            return None, {exc.field or "form": exc.message}
+    return changes, errors
+
+
+@router.post("/teams/{team_id}/scenarios")
+async def create_scenario(
+    team_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+) -> Response:
+    form = await request.form()
+    period_id = _int(_text(form, "period_id"))
+    if period_id is None:
+        raise InputError("period_id: choose a period.", field="period_id")
+    name, errors = _name(_text(form, "name"))
+    changes, change_errors = _read_changes(session, form, team_id, period_id)
+    errors |= change_errors
+    if name is not None and changes is not None and not errors:
+        db_scenario = store.create_scenario(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            name=name,
+            changes=changes.to_json(),
+            actor=_actor(_text(form, "created_by")),
+        )
+        return _see_other(f"/scenarios/{db_scenario.id}")
+    context = _scenarios_context(session, team_id, period_id, settings)
+    context |= {"form": _echo(form), "errors": errors}
+    return _render(templates, request, "plans/scenarios.html", context, status_code=422)
+
+
+def _echo(form: FormData) -> dict[str, str]:
+    return {key: value for key, value in form.items() if isinstance(value, str)}
+
+
+def _form_of(changes: ScenarioChanges) -> dict[str, str]:
+    """Stored changes as the form fields that express them."""
+    data: dict[str, str] = {}
+    for name in ("capacity_days", "focus_factor", "reserve_pct"):
+        value = getattr(changes, name)
+        if value is not None:
+            data[name] = f"{value:g}"
+    if changes.confidence is not None:
+        data["confidence"] = f"P{round(changes.confidence * 100, 1):g}"
+    for member_id, days in changes.days_off.items():
+        data[f"days_off.{member_id}"] = f"{days:g}"
+    for initiative_id in changes.forced_in:
+        data[f"forced.{initiative_id}"] = "in"
+    for initiative_id in changes.forced_out:
+        data[f"forced.{initiative_id}"] = "out"
+    return data
+
+
+def _scenario_context(
+    session: SessionDep, scenario_id: int, settings: SettingsDep
+) -> dict[str, Any]:
+    db_scenario = store.get_scenario(session, scenario_id=scenario_id)
+    changes = changes_from_json(db_scenario.changes)
+    outcome = solve_scenario(
+        session,
+        team_id=db_scenario.team_id,
+        period_id=db_scenario.period_id,
+        changes=changes,
+        resolution=settings.resolution_days,
+    )
+    view = (
+        view_from_snapshot(scenario_snapshot(session, outcome, name=db_scenario.name))
+        if outcome.plan is not None
+        else None
+    )
+    return {
+        "scenario": db_scenario,
+        "team": get_team(session, team_id=db_scenario.team_id),
+        "period": get_period(session, period_id=db_scenario.period_id),
+        "outcome": outcome,
+        "view": view,
+        "chart": single_curve_chart(view, label="Scenario", name=db_scenario.name)
+        if view is not None
+        else None,
+        "baseline": outcome.baseline,
+        "form": {"name": db_scenario.name, **_form_of(changes)},
+        "errors": {},
+        "save_form": {"name": db_scenario.name},
+        "save_errors": {},
+    }
+
+
+@router.get("/scenarios/{scenario_id}")
+def scenario_page(
+    scenario_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+) -> Response:
+    context = _scenario_context(session, scenario_id, settings)
+    return _render(templates, request, "plans/scenario.html", context)
+
+
+@router.post("/scenarios/{scenario_id}")
+async def update_scenario(
+    scenario_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+) -> Response:
+    form = await request.form()
+    db_scenario = store.get_scenario(session, scenario_id=scenario_id)
+    name, errors = _name(_text(form, "name"))
+    changes, change_errors = _read_changes(
+        session, form, db_scenario.team_id, db_scenario.period_id
+    )
+    errors |= change_errors
+    if name is not None and changes is not None and not errors:
+        store.update_scenario(
+            session,
+            scenario_id=scenario_id,
+            name=name,
+            changes=changes.to_json(),
+            actor=_actor(_text(form, "created_by")),
+        )
+        return _see_other(f"/scenarios/{scenario_id}")
+    context = _scenario_context(session, scenario_id, settings)
+    context |= {"form": _echo(form), "errors": errors}
+    return _render(templates, request, "plans/scenario.html", context, status_code=422)
+
+
+@router.post("/scenarios/{scenario_id}/delete")
+async def delete_scenario(scenario_id: PathId, request: Request, session: SessionDep) -> Response:
+    form = await request.form()
+    db_scenario = store.get_scenario(session, scenario_id=scenario_id)
+    target = f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
+    store.delete_scenario(session, scenario_id=scenario_id, actor=_actor(_text(form, "created_by")))
+    return _see_other(target)
+
+
+# --- importing a plan CSV ------------------------------------------------------------------
+
+
+def _import_context(session: SessionDep, team_id: int) -> dict[str, Any]:
+    return {
+        "team": get_team(session, team_id=team_id),
+        "periods": list_periods(session),
+        "form": {},
+        "errors": {},
+    }
+
+
+@router.get("/teams/{team_id}/plan-import")
+def import_page(
+    team_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    return _render(templates, request, "plans/import.html", _import_context(session, team_id))
+
+
+async def _uploaded_text(form: FormData) -> str:
+    upload = form.get("file")
+    if isinstance(upload, UploadFile) and upload.filename:
+        raw = await upload.read(MAX_UPLOAD_CHARS * 4 + 1)
+        try:
+            return raw.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise InputError("csv: the file is not UTF-8 text.", field="csv") from exc
+    return form.get("csv", "") if isinstance(form.get("csv", ""), str) else ""  # type: ignore[return-value]
+
+
+@router.post("/teams/{team_id}/plan-import")
+async def import_plan(
+    team_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    async with request.form(max_part_size=MAX_UPLOAD_CHARS * 4) as form:
+        return await _import_from_form(team_id, form, request, session, templates)
+
+
+async def _import_from_form(
+    team_id: int, form: FormData, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    period_id = _int(_text(form, "period_id"))
+    errors: dict[str, str] = {}
+    try:
+        if period_id is None:
+            raise InputError("Choose the period to import into.", field="period_id")
+        text = await _uploaded_text(form)
+        if not text.strip():
+            raise InputError("Choose an exported plan CSV file.", field="csv")
+        if len(text) > MAX_UPLOAD_CHARS:
+            raise InputError("csv: the file is too large.", field="csv")
+        parsed = exports.parse_plan_csv(text)
+        outcome = store.import_plan(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            imported=parsed,
+            scenario_name=f"Imported: {parsed.plan_name or 'plan'}"[:200],
+            actor=_actor(_text(form, "created_by")),
+        )
+    except LoadlineError as exc:
+        errors = {exc.field or "form": exc.message}
+    else:
+        return _see_other(f"/scenarios/{outcome.scenario.id}")
+    context = _import_context(session, team_id)
+    pasted = form.get("csv", "")
+    context |= {
+        "form": {
+            "period_id": _text(form, "period_id"),
+            "csv": pasted if isinstance(pasted, str) else "",
+        },
+        "errors": errors,
+    }
+    return _render(templates, request, "plans/import.html", context, status_code=422)

@@ -1,0 +1,359 @@
+"""Scenarios, saved plans and their published links.
+
+A saved plan is written once and never updated: a mapper event refuses any UPDATE of a
+saved_plan row, so a snapshot cannot drift even through a careless caller. Plan saves,
+publishes and revokes each write an audit entry in the same transaction.
+
+Published-link tokens come from `secrets.token_urlsafe(32)`: 32 random bytes (256 bits) from
+the operating system's CSPRNG, written as 43 URL-safe base64 characters.
+"""
+
+from __future__ import annotations
+
+import secrets
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+from sqlalchemy import event
+from sqlmodel import Session, col, func, select
+
+from server.actor import current_actor
+from server.errors import ConflictError, NotFoundError
+from server.models import Initiative, Need, Publication, SavedPlan, Scenario, utcnow
+from server.planning.exports import ImportedPlan
+from server.planning.scenarios import ScenarioChanges
+from server.planning.snapshots import Snapshot
+from server.store import audit
+from server.store._common import get_or_404
+from server.store.initiatives import create_initiative
+from server.store.periods import get_period
+from server.store.teams import get_team
+
+TOKEN_BYTES = 32
+
+
+@event.listens_for(SavedPlan, "before_update")
+def _refuse_plan_update(_mapper: Any, _connection: Any, target: SavedPlan) -> None:
+    raise ConflictError(
+        f"Saved plan {target.id} is a frozen snapshot and cannot be changed; save a new plan.",
+        field="plan_id",
+    )
+
+
+# --- scenarios -----------------------------------------------------------------------------
+
+
+def list_scenarios(
+    session: Session, *, team_id: int | None = None, period_id: int | None = None
+) -> list[Scenario]:
+    query = select(Scenario).order_by(col(Scenario.id).desc())
+    if team_id is not None:
+        query = query.where(Scenario.team_id == team_id)
+    if period_id is not None:
+        query = query.where(Scenario.period_id == period_id)
+    return list(session.exec(query))
+
+
+def get_scenario(session: Session, *, scenario_id: int) -> Scenario:
+    return get_or_404(session, Scenario, scenario_id, "scenario")
+
+
+def create_scenario(
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int,
+    name: str,
+    changes: dict[str, Any],
+    actor: str = "",
+    commit: bool = True,
+) -> Scenario:
+    """Store a scenario; `changes` must already be checked (planning.scenarios)."""
+    get_team(session, team_id=team_id)
+    get_period(session, period_id=period_id)
+    db_scenario = Scenario(
+        name=name,
+        team_id=team_id,
+        period_id=period_id,
+        changes=changes,
+        created_by=current_actor.get() or actor,
+    )
+    session.add(db_scenario)
+    session.flush()
+    audit.record(
+        session,
+        actor=actor,
+        action="scenario.create",
+        entity="scenario",
+        entity_id=db_scenario.id,
+        team_id=team_id,
+        summary=f"Made scenario “{name}”",
+        after={"name": name, "changes": changes},
+    )
+    if commit:
+        session.commit()
+        session.refresh(db_scenario)
+    return db_scenario
+
+
+def update_scenario(
+    session: Session,
+    *,
+    scenario_id: int,
+    name: str | None = None,
+    changes: dict[str, Any] | None = None,
+    actor: str = "",
+) -> Scenario:
+    db_scenario = get_scenario(session, scenario_id=scenario_id)
+    before = {"name": db_scenario.name, "changes": db_scenario.changes}
+    if name is not None:
+        db_scenario.name = name
+    if changes is not None:
+        db_scenario.changes = changes
+    session.add(db_scenario)
+    audit.record(
+        session,
+        actor=actor,
+        action="scenario.update",
+        entity="scenario",
+        entity_id=scenario_id,
+        team_id=db_scenario.team_id,
+        summary=f"Changed scenario “{db_scenario.name}”",
+        before=before,
+        after={"name": db_scenario.name, "changes": db_scenario.changes},
+    )
+    session.commit()
+    session.refresh(db_scenario)
+    return db_scenario
+
+
+def delete_scenario(session: Session, *, scenario_id: int, actor: str = "") -> None:
+    db_scenario = get_scenario(session, scenario_id=scenario_id)
+    audit.record(
+        session,
+        actor=actor,
+        action="scenario.delete",
+        entity="scenario",
+        entity_id=scenario_id,
+        team_id=db_scenario.team_id,
+        summary=f"Deleted scenario “{db_scenario.name}”",
+        before={"name": db_scenario.name, "changes": db_scenario.changes},
+    )
+    session.delete(db_scenario)
+    session.commit()
+
+
+# --- saved plans ---------------------------------------------------------------------------
+
+
+def save_plan(
+    session: Session,
+    *,
+    name: str,
+    snapshot: Snapshot,
+    scenario_changes: dict[str, Any],
+    actor: str = "",
+) -> SavedPlan:
+    """Insert a frozen plan and its audit entry in one transaction."""
+    team_ids = [t.id for t in snapshot.inputs.teams]
+    db_plan = SavedPlan(
+        name=name,
+        period_id=snapshot.inputs.period.id,
+        team_ids=team_ids,
+        scenario_changes=scenario_changes,
+        inputs=snapshot.inputs_json(),
+        result=snapshot.result_json(),
+        inputs_digest=snapshot.digest,
+        created_by=current_actor.get() or actor,
+    )
+    session.add(db_plan)
+    session.flush()
+    audit.record(
+        session,
+        actor=actor,
+        action="plan.save",
+        entity="saved_plan",
+        entity_id=db_plan.id,
+        team_id=team_ids[0] if team_ids else None,
+        summary=f"Saved plan “{name}” (value {snapshot.result.value:g})",
+        after={
+            "name": name,
+            "inputs_digest": snapshot.digest,
+            "chosen": snapshot.result.chosen,
+            "scenario_changes": scenario_changes,
+        },
+    )
+    session.commit()
+    session.refresh(db_plan)  # read back as stored, so every later view sees the same values
+    return db_plan
+
+
+def list_plans(
+    session: Session, *, team_id: int | None = None, period_id: int | None = None
+) -> list[SavedPlan]:
+    query = select(SavedPlan).order_by(col(SavedPlan.id).desc())
+    if period_id is not None:
+        query = query.where(SavedPlan.period_id == period_id)
+    rows = list(session.exec(query))
+    if team_id is not None:  # team_ids is a JSON list: filtered here, portably
+        rows = [row for row in rows if team_id in row.team_ids]
+    return rows
+
+
+def get_plan(session: Session, *, plan_id: int) -> SavedPlan:
+    return get_or_404(session, SavedPlan, plan_id, "plan")
+
+
+def get_plans(session: Session, *, plan_ids: Sequence[int]) -> list[SavedPlan]:
+    """The plans in the order asked for; unknown ids are all named in one 404."""
+    found = {
+        row.id: row
+        for row in session.exec(select(SavedPlan).where(col(SavedPlan.id).in_(list(plan_ids))))
+    }
+    unknown = [i for i in plan_ids if i not in found]
+    if unknown:
+        listed = ", ".join(str(i) for i in unknown)
+        raise NotFoundError(f"No saved plan with id {listed}.", field="plans")
+    return [found[i] for i in plan_ids]
+
+
+# --- published links -----------------------------------------------------------------------
+
+
+def new_token() -> str:
+    """A fresh published-link token: 256 random bits, URL-safe base64 (43 characters)."""
+    return secrets.token_urlsafe(TOKEN_BYTES)
+
+
+def publish_plan(session: Session, *, plan_id: int, actor: str = "") -> Publication:
+    db_plan = get_plan(session, plan_id=plan_id)
+    db_publication = Publication(
+        plan_id=plan_id, token=new_token(), created_by=current_actor.get() or actor
+    )
+    session.add(db_publication)
+    session.flush()
+    audit.record(
+        session,
+        actor=actor,
+        action="plan.publish",
+        entity="publication",
+        entity_id=db_publication.id,
+        team_id=db_plan.team_ids[0] if db_plan.team_ids else None,
+        summary=f"Published plan “{db_plan.name}”",
+        after={"plan_id": plan_id},
+    )
+    session.commit()
+    session.refresh(db_publication)
+    return db_publication
+
+
+def list_publications(session: Session, *, plan_id: int) -> list[Publication]:
+    query = select(Publication).where(Publication.plan_id == plan_id).order_by(col(Publication.id))
+    return list(session.exec(query))
+
+
+def get_publication(session: Session, *, publication_id: int) -> Publication:
+    return get_or_404(session, Publication, publication_id, "publication")
+
+
+def revoke_publication(session: Session, *, publication_id: int, actor: str = "") -> Publication:
+    """Revoke a link at once; revoking a revoked link changes nothing."""
+    db_publication = get_publication(session, publication_id=publication_id)
+    if db_publication.revoked_at is not None:
+        return db_publication
+    db_plan = get_plan(session, plan_id=db_publication.plan_id)
+    db_publication.revoked_at = utcnow()
+    session.add(db_publication)
+    audit.record(
+        session,
+        actor=actor,
+        action="plan.revoke",
+        entity="publication",
+        entity_id=publication_id,
+        team_id=db_plan.team_ids[0] if db_plan.team_ids else None,
+        summary=f"Revoked a published link of plan “{db_plan.name}”",
+        before={"revoked_at": None},
+        after={"revoked_at": db_publication.revoked_at.isoformat()},
+    )
+    session.commit()
+    session.refresh(db_publication)
+    return db_publication
+
+
+def find_published(session: Session, *, token: str) -> tuple[Publication, SavedPlan] | None:
+    """The publication with this token and its plan (two primary-key reads at most)."""
+    db_publication = session.exec(select(Publication).where(Publication.token == token)).first()
+    if db_publication is None:
+        return None
+    db_plan = session.get(SavedPlan, db_publication.plan_id)
+    if db_plan is None:  # pragma: no cover - the foreign key cascades deletes
+        return None
+    return db_publication, db_plan
+
+
+# --- importing an exported plan ------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ImportOutcome:
+    initiative_ids: dict[str, int]  # key in the file -> new initiative id
+    scenario: Scenario
+    warnings: list[str]
+
+
+def import_plan(
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int,
+    imported: ImportedPlan,
+    scenario_name: str,
+    actor: str = "",
+) -> ImportOutcome:
+    """Create the file's initiatives, their needs and a scenario, all or nothing."""
+    get_team(session, team_id=team_id)
+    get_period(session, period_id=period_id)
+    ids: dict[str, int] = {}
+    try:
+        for row in imported.rows:
+            initiative_in = row.initiative.model_copy(
+                update={"team_id": team_id, "period_id": period_id}
+            )
+            record = create_initiative(
+                session, initiative_in=initiative_in, commit=False, actor=actor
+            )
+            ids[row.key] = record.row.id or 0
+        for row in imported.rows:
+            for needed in row.needs:
+                session.add(Need(initiative_id=ids[row.key], needed_id=ids[needed]))
+        changes = ScenarioChanges(
+            capacity_days=imported.capacity_days,
+            confidence=imported.confidence,
+            forced_in=[ids[r.key] for r in imported.rows if r.forced == "in"],
+            forced_out=[ids[r.key] for r in imported.rows if r.forced == "out"],
+        ).to_json()
+        db_scenario = create_scenario(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            name=scenario_name,
+            changes=changes,
+            actor=actor,
+            commit=False,
+        )
+        session.commit()
+    except Exception:
+        session.rollback()
+        raise
+    session.refresh(db_scenario)
+    return ImportOutcome(initiative_ids=ids, scenario=db_scenario, warnings=imported.warnings)
+
+
+def count_team_initiatives_in(session: Session, *, team_id: int, period_id: int) -> int:
+    query = (
+        select(func.count())
+        .select_from(Initiative)
+        .where(Initiative.team_id == team_id, Initiative.period_id == period_id)
+    )
+    return int(session.exec(query).one())

@@ -1,0 +1,216 @@
+"""Comparing saved plans: differences against Python set arithmetic, the 2-4 rule, the stable
+URL, and the curves chart with its data table."""
+
+from __future__ import annotations
+
+import itertools
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+from fastapi.testclient import TestClient
+from sqlmodel import Session
+
+from server.errors import InputError
+from server.planning.compare import (
+    CurveData,
+    compare,
+    curves_chart,
+    nice_step,
+    parse_plan_ids,
+    value_at,
+)
+from server.store import plans as store
+from tests.plans.conftest import Workspace, counts, error_fields, error_text, save_live
+
+VARIANTS: list[dict[str, object]] = [
+    {},
+    {"capacity_days": 6},
+    {"confidence": 0.9},
+    {"capacity_days": 9, "forced_out": ["Fare capping"], "forced_in": ["Depot dashboard"]},
+    {"capacity_days": 4},
+]
+
+
+def _save_variants(client: TestClient, ws: Workspace) -> list[dict]:
+    plans = []
+    for index, variant in enumerate(VARIANTS):
+        changes = {
+            key: [ws.id_of(t) for t in value] if key.startswith("forced") else value  # type: ignore[attr-defined]
+            for key, value in variant.items()
+        }
+        plans.append(save_live(client, ws, f"Variant {index}", changes=changes))
+    return plans
+
+
+def test_differences_match_set_arithmetic_on_the_chosen_sets(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    saved = _save_variants(client, workspace)
+    chosen = {p["id"]: set(p["result"]["chosen"]) for p in saved}
+    assert len({frozenset(s) for s in chosen.values()}) >= 4  # the variants really differ
+    for size in (2, 3, 4):
+        for combo in itertools.permutations([p["id"] for p in saved], size):
+            if combo[0] > combo[-1] and size == 4:
+                continue  # enough orders of the four-plan cases
+            comparison = compare(store.get_plans(session, plan_ids=list(combo)))
+            sets = [chosen[i] for i in combo]
+            labels = [p.label for p in comparison.plans]
+            assert labels == list("ABCD"[:size])
+            for pair in comparison.pairs:
+                a, b = labels.index(pair.a), labels.index(pair.b)
+                assert set(pair.only_in_a) == sets[a] - sets[b]
+                assert set(pair.only_in_b) == sets[b] - sets[a]
+            assert len(comparison.pairs) == size * (size - 1) // 2
+            assert set(comparison.in_all) == set.intersection(*sets)
+            assert set(comparison.in_any) == set.union(*sets)
+            for i, label in enumerate(labels):
+                others = set().union(*(s for j, s in enumerate(sets) if j != i))
+                assert set(comparison.only_in[label]) == sets[i] - others
+            for row in comparison.initiatives:
+                for i, cell in enumerate(row.cells):
+                    assert cell == ("in" if row.key in sets[i] else "out")
+
+
+def test_compared_figures_and_risk_come_from_the_snapshots(
+    workspace: Workspace, client: TestClient
+) -> None:
+    saved = _save_variants(client, workspace)
+    ids = ",".join(str(p["id"]) for p in saved[:3])
+    body = client.get(f"/api/v1/compare?plans={ids}").json()
+    for compared, plan in zip(body["plans"], saved[:3], strict=True):
+        result = plan["result"]
+        assert compared["value"] == result["value"]
+        assert compared["effort"] == result["effort"]
+        assert compared["capacity"] == result["capacity"]
+        assert compared["headroom"] == result["headroom"]
+        assert compared["utilisation"] == result["utilisation"]
+        assert compared["confidence"] == result["confidence"]
+        fit = result["fit"]
+        assert compared["fit_probability"] == (fit["probability"] if fit else None)
+        assert compared["fit_label"] == (fit["label"] if fit else None)
+    assert body["plans"][2]["confidence"] == 0.9
+    assert body["plans"][2]["changed_inputs"] == ["Confidence level: P90 (live: likely estimates)"]
+
+
+def test_compare_page_has_a_stable_url_and_shows_differences(
+    workspace: Workspace, form_client: TestClient
+) -> None:
+    saved = _save_variants(form_client, workspace)
+    a, b = saved[0]["id"], saved[1]["id"]
+    ticked = form_client.get(f"/compare?plans={a}&plans={b}", follow_redirects=False)
+    assert ticked.status_code == 303
+    assert ticked.headers["location"] == f"/compare?plans={a},{b}"
+    page = form_client.get(f"/compare?plans={a},{b}")
+    assert page.status_code == 200
+    assert page.content == form_client.get(f"/compare?plans={a},{b}").content
+    only_a = set(saved[0]["result"]["chosen"]) - set(saved[1]["result"]["chosen"])
+    titles = {i["key"]: i["title"] for i in saved[0]["inputs"]["initiatives"]}
+    assert only_a
+    for key in only_a:
+        assert f"“{titles[key]}”" in page.text
+    assert "In A, not in B" in page.text
+
+
+@pytest.mark.parametrize(
+    ("query", "status", "field"),
+    [
+        ("plans=1", 422, "plans"),
+        ("plans=1,2,3,4,5", 422, "plans"),
+        ("plans=1,1", 422, "plans"),
+        ("plans=1,x", 422, "plans"),
+        ("plans=", 422, "plans"),
+        ("plans=1,999", 404, "plans"),
+    ],
+)
+def test_bad_comparisons_are_refused(
+    workspace: Workspace,
+    client: TestClient,
+    session: Session,
+    query: str,
+    status: int,
+    field: str,
+) -> None:
+    save_live(client, workspace)
+    save_live(client, workspace, "Second")
+    before = counts(session)
+    api = client.get(f"/api/v1/compare?{query}")
+    assert api.status_code == status, api.text
+    assert error_fields(api) == [field]
+    if status == 404:
+        assert "999" in error_text(api)
+    page = client.get(f"/compare?{query}")
+    assert page.status_code == status
+    assert counts(session) == before
+
+
+def test_parse_plan_ids_accepts_commas_and_repeats() -> None:
+    assert parse_plan_ids(["3,1", "2"]) == [3, 1, 2]
+    with pytest.raises(InputError):
+        parse_plan_ids(["1"])
+
+
+class _SvgReader(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.polylines: list[str] = []
+        self.tags: list[str] = []
+        self.cells: list[str] = []
+        self._in_cell = False
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        self.tags.append(tag)
+        values = dict(attrs)
+        if tag == "polyline" and "cmp-line" in (values.get("class") or ""):
+            self.polylines.append(values.get("points") or "")
+        self._in_cell = tag in {"td", "th"}
+
+    def handle_data(self, data: str) -> None:
+        if self._in_cell and data.strip():
+            self.cells.append(data.strip())
+
+
+def test_curves_chart_draws_every_curve_inside_the_plot_as_a_rising_step_line() -> None:
+    a = CurveData(
+        label="A", capacity=5, capacity_days=[0, 1, 2, 3, 4, 5, 6], values=[0, 0, 4, 4, 9, 9, 11]
+    )
+    b = CurveData(
+        label="B",
+        capacity=3.5,
+        capacity_days=[1, 1.5, 2, 2.5, 3, 3.5, 4],
+        values=[2, 2, 2, 6, 6, 6, 7],
+    )
+    chart = curves_chart([a, b], {"A": "Baseline", "B": "Short"})
+    assert chart.missing == []
+    for series, curve in zip(chart.series, (a, b), strict=True):
+        points = [tuple(map(float, p.split(","))) for p in series.points.split()]
+        xs, ys = zip(*points, strict=True)
+        assert all(chart.left <= x <= chart.right for x in xs)
+        assert all(chart.top <= y <= chart.bottom for y in ys)
+        assert list(xs) == sorted(xs)
+        assert list(ys) == sorted(ys, reverse=True)  # SVG y grows downwards: value never falls
+        assert series.value_at_capacity == value_at(curve, curve.capacity)
+    # The table holds each curve's value at each row's capacity: checked with numpy.
+    for row in chart.rows:
+        for value, curve in zip(row.values, (a, b), strict=True):
+            i = int(np.searchsorted(np.array(curve.capacity_days), row.capacity, side="right")) - 1
+            assert value == (curve.values[i] if i >= 0 else None)
+    assert any(row.values[1] is None for row in chart.rows)  # B starts at 1 day (pinned work)
+    assert "A (Baseline): value 9" in chart.description
+    assert nice_step(7.3) == 2
+    assert nice_step(430) == 100
+
+
+def test_compare_page_svg_is_accessible(workspace: Workspace, client: TestClient) -> None:
+    saved = _save_variants(client, workspace)
+    ids = ",".join(str(p["id"]) for p in saved[:3])
+    page = client.get(f"/compare?plans={ids}").text
+    reader = _SvgReader()
+    reader.feed(page)
+    assert "svg" in reader.tags
+    assert 'role="img"' in page
+    assert "<title id=" in page
+    assert "<desc id=" in page
+    assert len(reader.polylines) == 3
+    assert "The curves as numbers" in page
+    assert str(saved[0]["result"]["value"]).removesuffix(".0") in reader.cells

@@ -1,0 +1,344 @@
+"""Exports: CSV injection neutralised (OWASP guidance on CSV injection), the CSV round trip into
+an empty team, JSON and Markdown, and refused imports."""
+
+from __future__ import annotations
+
+import copy
+import csv
+import io
+import json
+import re
+
+import pytest
+from fastapi.testclient import TestClient
+from hypothesis import given
+from hypothesis import strategies as st
+from sqlmodel import Session
+
+from server.errors import InputError
+from server.models import SavedPlan
+from server.planning.compare import compare
+from server.planning.exports import (
+    FORMULA_STARTS,
+    comparison_csv,
+    md,
+    neutralise,
+    parse_plan_csv,
+    plan_csv,
+    plan_markdown,
+    restore,
+)
+from server.store import plans as store
+from tests.factories import make_member, make_period, make_team
+from tests.plans.conftest import (
+    Workspace,
+    add_initiative,
+    counts,
+    error_fields,
+    error_text,
+    save_live,
+)
+
+# The characters OWASP lists as formula starters: =, +, -, @, tab (0x09), carriage return (0x0D).
+OWASP_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def _cells(text: str) -> list[str]:
+    return [cell for row in csv.reader(io.StringIO(text, newline="")) for cell in row]
+
+
+def test_the_formula_starters_are_the_owasp_list() -> None:
+    assert set(FORMULA_STARTS) == set(OWASP_STARTS)
+
+
+@pytest.mark.parametrize(
+    ("cell", "written"),
+    [
+        ("=1+1", "'=1+1"),
+        ('=HYPERLINK("http://example.invalid","x")', '\'=HYPERLINK("http://example.invalid","x")'),
+        ("+41 phone", "'+41 phone"),
+        ("-2+3", "'-2+3"),
+        ("@SUM(A1:A9)", "'@SUM(A1:A9)"),
+        ("\tcmd", "'\tcmd"),
+        ("\rcmd", "'\rcmd"),
+        ("'quoted", "''quoted"),
+        ("plain = fine", "plain = fine"),
+        ("", ""),
+    ],
+)
+def test_neutralise_prefixes_formula_starters(cell: str, written: str) -> None:
+    assert neutralise(cell) == written
+    assert restore(str(neutralise(cell))) == cell
+
+
+def test_numbers_loadline_writes_are_not_text() -> None:
+    assert neutralise(-3) == -3  # a spreadsheet reads -3 as a number, never as a formula
+    assert neutralise(2.5) == 2.5
+
+
+@given(st.text(max_size=40))
+def test_neutralise_then_restore_gives_the_text_back(text: str) -> None:
+    safe = str(neutralise(text))
+    assert not safe.startswith(OWASP_STARTS)
+    assert restore(safe) == text
+
+
+DANGEROUS_TITLES = ["=cmd|' /C calc'!A0", "+SUM(1)", "-1+2", "@import", "=2*5"]
+
+
+def test_plan_csv_has_no_cell_starting_like_a_formula(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    for title in DANGEROUS_TITLES:
+        add_initiative(session, workspace.team, workspace.period, title, 1.0, 1.0)
+    plan = save_live(client, workspace, "=plan name")
+    response = client.get(f"/api/v1/plans/{plan['id']}/export.csv")
+    assert response.status_code == 200
+    assert response.headers["content-type"].startswith("text/csv")
+    assert "attachment" in response.headers["content-disposition"]
+    cells = _cells(response.text)
+    assert not [c for c in cells if c.startswith(OWASP_STARTS)]
+    for title in [*DANGEROUS_TITLES, "=plan name"]:
+        assert "'" + title in cells
+    assert all(line.startswith('"') for line in response.text.splitlines() if line)  # quoted
+
+    # Tab and carriage return cannot be typed at the start of a stored title (titles are
+    # trimmed), so they are put into a snapshot directly to check the writer.
+    db_plan = store.get_plan(session, plan_id=plan["id"])
+    crafted_inputs = copy.deepcopy(db_plan.inputs)
+    crafted_inputs["initiatives"][0]["title"] = "\t=1+1"
+    crafted_inputs["initiatives"][1]["title"] = "\r@x"
+    crafted = SavedPlan(
+        id=db_plan.id,
+        name="\tname",
+        team_ids=db_plan.team_ids,
+        period_id=db_plan.period_id,
+        inputs=crafted_inputs,
+        result=db_plan.result,
+        inputs_digest=db_plan.inputs_digest,
+        created_at=db_plan.created_at,
+        created_by="\rsomeone",
+    )
+    cells = _cells(plan_csv(crafted))
+    assert not [c for c in cells if c.startswith(OWASP_STARTS)]
+    assert {"'\t=1+1", "'\r@x", "'\tname", "'\rsomeone"} <= set(cells)
+
+
+def test_comparison_csv_neutralises_plan_names_and_titles(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    add_initiative(session, workspace.team, workspace.period, "@risky", 1.0, 30.0)
+    a = save_live(client, workspace, "=A")
+    b = save_live(client, workspace, "+B", changes={"capacity_days": 4})
+    text = comparison_csv(compare(store.get_plans(session, plan_ids=[a["id"], b["id"]])))
+    cells = _cells(text)
+    assert not [c for c in cells if c.startswith(OWASP_STARTS)]
+    assert "A: =A" in cells
+    assert "'@risky" in cells
+    api = client.get(f"/api/v1/compare/export.csv?plans={a['id']},{b['id']}")
+    assert api.status_code == 200
+    assert api.text == text
+
+
+def _rich_workspace(session: Session, ws: Workspace) -> None:
+    """Pinned, ruled out, an either-or set, needs and formula-like titles on top of the six."""
+    add_initiative(session, ws.team, ws.period, "=Build ticketing", 3.0, 10.0, either_or="tickets")
+    add_initiative(
+        session, ws.team, ws.period, "Buy ticketing", 2.0, 9.0, low=1.5, high=4, either_or="tickets"
+    )
+    base = add_initiative(session, ws.team, ws.period, "Data model", 1.0, 2.0, low=0.5, high=2)
+    add_initiative(
+        session, ws.team, ws.period, "-Reports", 1.5, 6.0, needs=[base.row.id], state="candidate"
+    )
+    add_initiative(session, ws.team, ws.period, "Security fix", 1.0, 1.0, state="pinned")
+    add_initiative(session, ws.team, ws.period, "Old widget", 0.5, 50.0, state="ruled_out")
+
+
+def test_csv_export_imported_into_an_empty_team_gives_the_same_plan(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    _rich_workspace(session, workspace)
+    changes = {
+        "confidence": 0.8,
+        "capacity_days": 14,
+        "forced_in": [workspace.id_of("Depot dashboard")],
+        "forced_out": [workspace.id_of("Fare capping")],
+    }
+    original = save_live(client, workspace, "Rich plan", changes=changes)
+    exported = client.get(f"/api/v1/plans/{original['id']}/export.csv").text
+
+    empty = make_team(session, "Empty")
+    period = make_period(session, name="Later sprint")
+    imported = client.post(
+        f"/api/v1/teams/{empty.id}/plan-imports",
+        json={"period_id": period.id, "csv": exported},
+    )
+    assert imported.status_code == 201, imported.text
+    body = imported.json()
+    assert len(body["initiative_ids"]) == len(original["inputs"]["initiatives"])
+    assert body["scenario"]["changes"]["capacity_days"] == original["result"]["capacity"]
+
+    replanned = client.get(body["scenario"]["url"].replace("/scenarios", "/api/v1/scenarios"))
+    assert replanned.status_code == 200, replanned.text
+    plan = replanned.json()["scenario_plan"]
+    titles = {i["key"]: i["title"] for i in original["inputs"]["initiatives"]}
+    original_chosen = [titles[k] for k in original["result"]["chosen"]]
+    assert [c["title"] for c in plan["chosen"]] == original_chosen
+    assert plan["value"] == original["result"]["value"]
+    assert plan["effort"] == pytest.approx(original["result"]["effort"])
+    fit = original["result"]["fit"]
+    assert plan["fit_label"] == (fit["label"] if fit else None)
+    assert "=Build ticketing" in titles.values()
+
+    # Saving the imported scenario gives a snapshot with the same estimates and states.
+    saved = client.post(f"/api/v1/scenarios/{body['scenario']['id']}/plans", json={}).json()
+    again = {i["title"]: i for i in saved["inputs"]["initiatives"]}
+    for before in original["inputs"]["initiatives"]:
+        after = again[before["title"]]
+        assert after["estimate"] == before["estimate"]
+        assert after["planned_effort"] == pytest.approx(before["planned_effort"])
+        assert after["value"] == before["value"]
+        assert after["state"] == before["state"]
+        assert after["either_or"] == before["either_or"]
+        assert after["forced"] == before["forced"]
+        assert [titles[k] for k in before["needs"]] == [
+            next(t for t, i in again.items() if i["key"] == k) for k in after["needs"]
+        ]
+
+
+def test_import_page_uploads_a_file_and_opens_the_scenario(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    plan = save_live(form_client, workspace)
+    exported = form_client.get(f"/plans/{plan['id']}/export.csv").content
+    empty = make_team(session, "Empty")
+    make_member(session, empty, "Someone")
+    page = form_client.get(f"/teams/{empty.id}/plan-import")
+    assert page.status_code == 200
+    response = form_client.post(
+        f"/teams/{empty.id}/plan-import",
+        data={"csrf_token": form_client.csrf, "period_id": str(workspace.period_id)},  # type: ignore[attr-defined]
+        files={"file": ("plan.csv", exported, "text/csv")},
+        follow_redirects=False,
+    )
+    assert response.status_code == 303, response.text
+    scenario_page = form_client.get(response.headers["location"])
+    assert scenario_page.status_code == 200
+    assert "Imported: Baseline" in scenario_page.text
+    pasted = form_client.post(
+        f"/teams/{empty.id}/plan-import",
+        data={
+            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
+            "period_id": str(workspace.period_id),
+            "csv": exported.decode().replace('"capacity_days"', '"room"'),
+        },
+    )
+    assert pasted.status_code == 422
+    assert "no capacity_days row" in pasted.text
+
+
+def _good_csv(client: TestClient, ws: Workspace) -> str:
+    plan = save_live(client, ws)
+    return client.get(f"/api/v1/plans/{plan['id']}/export.csv").text
+
+
+@pytest.mark.parametrize(
+    ("mangle", "needle"),
+    [
+        (lambda t: t.replace('"capacity_days"', '"capacity"'), "capacity_days"),
+        (lambda t: t.replace(",", ";"), "delimiter"),
+        (lambda t: re.sub(r'"capacity_days","[^"]*"', '"capacity_days","0"', t), "capacity_days"),
+        (lambda t: re.sub(r'"confidence","[^"]*"', '"confidence","1.5"', t), "confidence"),
+        (lambda t: t.replace('"likely"', '"most_likely"'), "likely"),
+        (lambda t: t.replace('"Route search","yes","2","3","5"', '"","yes","2","3","5"'), "title"),
+        (
+            lambda t: t.replace(
+                '"Route search","yes","2","3","5"', '"Route search","yes","5","3","2"'
+            ),
+            "low",
+        ),
+        (lambda t: t.replace('"12","candidate"', '"twelve","candidate"'), "value"),
+        (lambda t: t.replace('"12","candidate"', '"12","maybe"'), "state"),
+        (
+            lambda t: t + '"1","Dup","no","","1","","1","1","candidate","","","","","",""\r\n',
+            "twice",
+        ),
+        (
+            lambda t: t + '"99","Needy","no","","1","","1","1","candidate","","","42","","",""\r\n',
+            "needs",
+        ),
+        (lambda t: t.replace("\r\n\r\n", "\r\n"), "empty row"),
+        (lambda t: "", "empty row"),
+    ],
+)
+def test_bad_csv_is_refused_with_the_place_named_and_nothing_stored(
+    session: Session, workspace: Workspace, client: TestClient, mangle: object, needle: str
+) -> None:
+    text = mangle(_good_csv(client, workspace))  # type: ignore[operator]
+    empty = make_team(session, "Empty")
+    before = counts(session)
+    response = client.post(
+        f"/api/v1/teams/{empty.id}/plan-imports",
+        json={"period_id": workspace.period_id, "csv": text},
+    )
+    assert response.status_code == 422, response.text
+    assert error_fields(response) == ["csv"]
+    assert needle in error_text(response)
+    assert counts(session) == before
+
+
+def test_parse_reads_back_a_cycle_free_needs_graph_only() -> None:
+    header = (
+        '"plan","x"\r\n"capacity_days","5"\r\n\r\n'
+        '"key","title","likely","value","state","needs"\r\n'
+    )
+    rows = '"1","A","1","1","candidate","2"\r\n"2","B","1","1","candidate","1"\r\n'
+    with pytest.raises(InputError, match="cycle"):
+        parse_plan_csv(header + rows)
+    fine = parse_plan_csv(
+        header + '"1","A","1","1","candidate","2"\r\n"2","=B","1","1","pinned",""\r\n'
+    )
+    assert [r.needs for r in fine.rows] == [["2"], []]
+    assert fine.capacity_days == 5
+    assert fine.rows[1].initiative.title == "=B"
+
+
+def test_json_export_is_the_stored_snapshot(workspace: Workspace, client: TestClient) -> None:
+    plan = save_live(client, workspace)
+    response = client.get(f"/api/v1/plans/{plan['id']}/export.json")
+    assert response.status_code == 200
+    document = json.loads(response.text)
+    assert document["inputs"] == plan["inputs"]
+    assert document["result"] == plan["result"]
+    assert document["plan"]["inputs_digest"] == plan["inputs_digest"]
+    assert client.get(f"/plans/{plan['id']}/export.json").content == response.content
+
+
+def test_markdown_summary_escapes_markup(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    add_initiative(session, workspace.team, workspace.period, "Pipes | and *stars* <b>", 0.5, 99.0)
+    plan = save_live(client, workspace, "Plan #1")
+    text = client.get(f"/api/v1/plans/{plan['id']}/export.md").text
+    assert text.startswith("# Plan \\#1\n")
+    assert "| Pipes \\| and \\*stars\\* \\<b\\> | 0.5 | 99 | candidate |" in text
+    assert "<b>" not in text
+    assert f"Value: **{plan['result']['value']:g}**" in text
+    assert plan["result"]["fit"]["label"] in text
+    assert md("a\nb|c") == "a b\\|c"
+    assert plan_markdown(store.get_plan(session, plan_id=plan["id"])) == text
+    comparison = client.get(
+        f"/api/v1/compare/export.md?plans={plan['id']},{save_live(client, workspace)['id']}"
+    )
+    assert comparison.status_code == 200
+    assert comparison.text.startswith("# Plan comparison")
+    assert "In every plan:" in comparison.text
+
+
+def test_download_names_are_plain_ascii(workspace: Workspace, client: TestClient) -> None:
+    plan = save_live(client, workspace, "Übergang “Q2” / 計画")
+    response = client.get(f"/api/v1/plans/{plan['id']}/export.md")
+    assert response.status_code == 200
+    disposition = response.headers["content-disposition"]
+    assert disposition.isascii()
+    assert disposition == f'attachment; filename="plan-{plan["id"]}--bergang--Q2------.md"'
