@@ -9,6 +9,7 @@ from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 from sqlalchemy.exc import OperationalError
 
+from server.access import AccessControl
 from server.config import PROJECT_ROOT, Settings
 from server.db import make_engine
 from server.errors import LoadlineError
@@ -16,6 +17,7 @@ from server.routes import (
     api_docs,
     api_initiatives,
     api_periods,
+    api_plans,
     api_select,
     api_teams,
     audit,
@@ -23,7 +25,9 @@ from server.routes import (
     health,
     overview,
     pages,
+    plan_archive,
     plan_pages,
+    published,
 )
 from server.security import RequestGuard
 from server.templating import configure_templates
@@ -64,9 +68,19 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         pages,
         plan_pages,
         overview,
-                ):
+        api_plans,
+        plan_archive,
+        published,
+    ):
         app.include_router(module.router)
     _add_error_handlers(app)
+    # The last one added runs first: the guard (size, CSRF token, headers), then access rules.
+    app.add_middleware(
+        AccessControl,  # type: ignore[arg-type]
+        engine=app.state.engine,
+        proxy_header=settings.proxy_user_header,
+        trusted_proxies=settings.trusted_proxies,
+    )
     app.add_middleware(
         RequestGuard,  # type: ignore[arg-type]
         secret=settings.secret_key,

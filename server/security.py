@@ -160,8 +160,8 @@ async def _form_token(scope: Scope, body: bytes) -> str | None:
     if not content_type.startswith(("application/x-www-form-urlencoded", "multipart/form-data")):
         return None
     try:
-        form = await Request(scope, _replay(body)).form()
+        async with Request(scope, _replay(body)).form() as form:  # closes uploaded files
+            value = form.get(CSRF_FIELD)
     except Exception:  # a malformed body has no usable token; the route never sees it
         return None
-    value = form.get(CSRF_FIELD)
     return value if isinstance(value, str) else None

@@ -13,7 +13,7 @@ from server.app import create_app
 from server.config import Settings
 from server.models import Initiative, Team
 from server.security import BROWSER_COOKIE
-from tests.conftest import csrf_token
+from tests.conftest import bearer, csrf_token
 
 SCRIPT = "<script>alert(1)</script>"
 IMAGE = '<img src=x onerror="alert(2)">'
@@ -63,7 +63,7 @@ def test_browser_cookie_is_http_only_and_same_site(client: TestClient) -> None:
 @pytest.fixture
 def small_client(settings: Settings) -> Iterator[TestClient]:
     application = create_app(dataclasses.replace(settings, max_body_bytes=SMALL_LIMIT))
-    with TestClient(application) as test_client:
+    with TestClient(application, headers=bearer("admin")) as test_client:
         yield test_client
     application.state.engine.dispose()
 

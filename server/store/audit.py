@@ -24,10 +24,11 @@ def record(
 ) -> AuditEntry:
     """Add an entry to the session; the caller's commit stores it with the change itself.
 
-    The actor defaults to the signed-in user of the current request.
+    The signed-in user of the current request is the actor; `actor` names it only when
+    there is none (command line, tests).
     """
     entry = AuditEntry(
-        actor=actor or current_actor.get(),
+        actor=current_actor.get() or actor,
         action=action,
         entity=entity,
         entity_id=entity_id,

@@ -23,7 +23,13 @@ from sqlmodel import Session
 from server.app import create_app
 from tests.api.conftest import Workspace, build_workspace, read_snapshot
 from tests.api.support import error_fields, error_items
-from tests.conftest import POSTGRES_ADMIN_URL, _postgres_admin, _postgres_url, make_settings
+from tests.conftest import (
+    POSTGRES_ADMIN_URL,
+    _postgres_admin,
+    _postgres_url,
+    bearer,
+    make_settings,
+)
 
 
 @dataclass(frozen=True)
@@ -430,7 +436,7 @@ def shared_workspace(shared_app: FastAPI) -> Workspace:
 
 @pytest.fixture(scope="module")
 def shared_client(shared_app: FastAPI, shared_workspace: Workspace) -> Iterator[TestClient]:
-    with TestClient(shared_app) as test_client:
+    with TestClient(shared_app, headers=bearer("admin")) as test_client:
         yield test_client
 
 
