@@ -7,7 +7,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
-from sqlalchemy.exc import OperationalError
+from sqlalchemy.exc import DataError, OperationalError
 
 from server.access import AccessControl
 from server.config import PROJECT_ROOT, Settings
@@ -116,6 +116,18 @@ def _add_error_handlers(app: FastAPI) -> None:
             return JSONResponse({"detail": exc.detail()}, status_code=exc.status_code)
         return request.app.state.templates.TemplateResponse(
             request, "error.html", {"message": exc.message}, status_code=exc.status_code
+        )
+
+    @app.exception_handler(OverflowError)
+    @app.exception_handler(DataError)
+    async def _number_out_of_range(request: Request, exc: Exception) -> Response:
+        # An id or number too large for the database (SQLite raises OverflowError, PostgreSQL
+        # a DataError): no row can have it, and nothing was stored.
+        message = "A number in the request is too large for any stored item."
+        if _wants_json(request):
+            return JSONResponse({"detail": {"message": message}}, status_code=404)
+        return request.app.state.templates.TemplateResponse(
+            request, "error.html", {"message": message}, status_code=404
         )
 
     @app.exception_handler(OperationalError)

@@ -170,3 +170,20 @@ def test_live_plan_endpoint(client: TestClient, session: Session) -> None:
     json.dumps(at_p80)  # JSON-ready throughout
     assert client.get("/api/v1/teams/1/periods/1/plan?confidence=1.5").status_code == 422
     assert client.get("/api/v1/teams/99/periods/1/plan").status_code == 404
+
+
+@pytest.mark.parametrize(
+    "path",
+    [
+        "/api/v1/teams/99999999999999999999999",
+        "/api/v1/initiatives/99999999999999999999999",
+        "/api/v1/members/99999999999999999999999",
+        "/teams/99999999999999999999999",
+    ],
+)
+def test_ids_too_large_for_the_database_are_unknown_not_errors(
+    client: TestClient, path: str
+) -> None:
+    response = client.get(path)
+    assert response.status_code == 404
+    assert "too large" in response.text
