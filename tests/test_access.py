@@ -283,3 +283,28 @@ def test_changes_name_their_author(app: FastAPI, session: Session) -> None:
     assert [entry["actor"] for entry in trail] == ["editor", "editor"]
     assert trail[0]["before"] == {"value": 3.0}
     assert trail[0]["after"] == {"value": 9.0}
+
+
+@pytest.mark.usefixtures("demo_loaded")
+def test_viewers_never_see_published_links(app: FastAPI) -> None:
+    with as_role(app, "editor") as editor:
+        plan = editor.post(
+            "/api/v1/plans", json={"name": "Shown", "team_id": 1, "period_id": 1}
+        ).json()
+        token = editor.post(f"/api/v1/plans/{plan['id']}/publications").json()["token"]
+        assert token in editor.get(f"/plans/{plan['id']}").text
+    with as_role(app, "viewer") as viewer:
+        page = viewer.get(f"/plans/{plan['id']}")
+        assert page.status_code == 200
+        assert token not in page.text
+        assert "Publish a read-only link" not in page.text
+        assert viewer.get(f"/api/v1/plans/{plan['id']}/publications").status_code == 403
+
+
+def test_pages_show_who_is_signed_in(app: FastAPI) -> None:
+    with as_role(app, "viewer") as viewer:
+        page = viewer.get("/").text
+    assert "viewer" in page
+    assert 'href="/users"' not in page
+    with as_role(app, "admin") as admin:
+        assert 'href="/users"' in admin.get("/").text
