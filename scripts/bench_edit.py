@@ -35,6 +35,7 @@ from fastapi.testclient import TestClient
 from sqlmodel import Session
 
 from server import migrate
+from server.access import SESSION_COOKIE
 from server.app import create_app
 from server.config import Settings
 from server.planning.plan_view import build_plan_view, parse_whatif
@@ -51,6 +52,7 @@ from server.schemas import (
 from server.store.initiatives import create_initiative, update_initiative
 from server.store.periods import create_period, set_capacity_settings
 from server.store.teams import create_member, create_team
+from server.store.users import create_user, start_session
 
 TARGET_P95_MS = 100.0
 _CSRF = re.compile(r'<meta name="csrf-token" content="([0-9a-f]+)">')
@@ -136,6 +138,10 @@ def main() -> None:
         app = create_app(settings)
         with Session(app.state.engine) as session:
             team_id, period_id, ids = build(session, args.initiatives, rng)
+            editor = create_user(
+                session, username="bench", password="bench-password-long", role="editor"
+            )
+            session_token = start_session(session, user=editor)
         if args.gc_freeze:
             gc.collect()
             gc.freeze()
@@ -144,7 +150,7 @@ def main() -> None:
         query = {"period_id": str(period_id)}
         if args.confidence is not None:
             query["confidence"] = f"{args.confidence:g}"
-        with TestClient(app) as client:
+        with TestClient(app, cookies={SESSION_COOKIE: session_token}) as client:
             page = client.get(f"/teams/{team_id}/plan", params=query)
             match = _CSRF.search(page.text)
             assert page.status_code == 200, "the plan page did not render"
