@@ -195,13 +195,27 @@ async def main_async(args: argparse.Namespace) -> int:
             published = await client.post(f"/api/v1/plans/{saved.json()['id']}/publications")
             published.raise_for_status()
             publication = published.json()["token"]
-        candidates = [i for i in initiatives if i["state"] == "candidate"]
+            candidates = [i for i in initiatives if i["state"] == "candidate"]
+            # One initiative per user, so that no two users ever edit the same one.
+            for n in range(len(candidates), args.users):
+                made = await client.post(
+                    "/api/v1/initiatives",
+                    json={
+                        "team_id": candidates[n % len(candidates)]["team_id"],
+                        "period_id": quarter["id"],
+                        "title": f"Load test initiative {n}",
+                        "effort": 2 + n % 7,
+                        "value": 5 + n % 11,
+                    },
+                )
+                made.raise_for_status()
+                candidates.append(made.json())
         stats = Stats()
         started = time.monotonic()
         stop_at = started + args.seconds
         await asyncio.gather(
             *(
-                user(base, token, candidates[n % len(candidates)], publication, stop_at, stats)
+                user(base, token, candidates[n], publication, stop_at, stats)
                 for n in range(args.users)
             )
         )

@@ -12,7 +12,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 
-from server.selector import Curve, Problem, Selection, chosen_at
+from server.planning.plans import selection_at
+from server.selector import Curve, Problem, Selection
 
 WIDTH = 640.0
 HEIGHT = 260.0
@@ -133,7 +134,7 @@ def sampled_curve(problem: Problem, curve_to: float, samples: int = 16) -> Curve
     days: list[float] = []
     values: list[float] = []
     for capacity in sorted(capacities):
-        selection = chosen_at(problem, capacity)
+        selection = selection_at(problem, capacity)
         if selection.feasible:
             days.append(capacity)
             values.append(selection.value)
@@ -203,7 +204,7 @@ def readout(
 ) -> Readout:
     """Re-solve at today's capacity + delta_days and say what would join or leave the plan."""
     capacity = max(0.0, problem.capacity + delta_days)
-    other = chosen_at(problem, capacity)
+    other = selection_at(problem, capacity)
     if not other.feasible:
         return Readout(delta_days, capacity, False, None, None, (), ())
     now = set(selection.chosen)

@@ -15,13 +15,22 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 
 from sqlmodel import Session, col, select
 
 from server.capacity import CapacityBreakdown, MemberAvailability, team_capacity
 from server.models import Initiative, Period, Team
 from server.planning.team_capacity import TeamCapacity, capacity_of
-from server.selector import Explanation, Item, Problem, Selection, default_curve_to, solve
+from server.selector import (
+    Explanation,
+    Item,
+    Problem,
+    Selection,
+    chosen_at,
+    default_curve_to,
+    solve,
+)
 from server.selector.risk import (
     FitEstimate,
     ThreePoint,
@@ -240,7 +249,7 @@ def plan_for(
         capacity=max(breakdown.capacity_days, 0.0),
         resolution=options.resolution,
     )
-    selection = solve(
+    selection = _solve(
         problem,
         curve_to=default_curve_to(problem.capacity)
         if options.curve and problem.capacity > 0
@@ -296,7 +305,7 @@ def plan_for(
         and problem.capacity > 0
         and any(not e.is_certain for e in chosen_estimates)
     ):
-        fit = fit_probability(chosen_estimates, problem.capacity, draws=FIT_DRAWS)
+        fit = _fit(tuple(chosen_estimates), problem.capacity)
         chosen_rows = [row for row in rows if row.chosen]
         leaders = tuple(
             spread_contributors([row.title for row in chosen_rows], chosen_estimates, top=3)
@@ -323,6 +332,25 @@ def plan_for(
         fit=fit,
         spread_leaders=leaders,
     )
+
+
+# The selector and the Monte Carlo are pure functions of their (immutable, hashable) inputs, so
+# their answers can be reused while the stored data is unchanged: every viewer of a plan in a
+# meeting, and every worker process, gets the same answer it would compute. Bounded per process.
+@lru_cache(maxsize=128)
+def _solve(problem: Problem, *, curve_to: float | None, explain: bool) -> Selection:
+    return solve(problem, curve_to=curve_to, explain=explain)
+
+
+@lru_cache(maxsize=512)
+def selection_at(problem: Problem, capacity_days: float) -> Selection:
+    """The chosen set at one point of the capacity curve (cached like the plan itself)."""
+    return chosen_at(problem, capacity_days)
+
+
+@lru_cache(maxsize=256)
+def _fit(estimates: tuple[ThreePoint, ...], capacity: float) -> FitEstimate:
+    return fit_probability(estimates, capacity, draws=FIT_DRAWS)
 
 
 def _team_names(session: Session) -> dict[int, str]:
