@@ -13,9 +13,9 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 from urllib.parse import urlencode
 
-from sqlmodel import Session, func, select
+from sqlmodel import Session
 
-from server.models import Initiative, Period, Team
+from server.models import Period, Team
 from server.planning.curve_chart import (
     CurveChart,
     Readout,
@@ -511,7 +511,8 @@ def build_plan_view(
 ) -> PlanView:
     """Solve the team's plan for the what-if and shape everything the page shows.
 
-    explain None: explanations for plans of up to INLINE_EXPLANATIONS_UP_TO initiatives.
+    explain None: explanations inline for DP-solved plans of up to INLINE_EXPLANATIONS_UP_TO
+    initiatives, on demand per row otherwise.
     """
     team = get_team(session, team_id=team_id)
     periods = list_periods(session)
@@ -519,18 +520,29 @@ def build_plan_view(
     edits = edits or {}
     plan: LivePlan | None = None
     message = None
-    if explain is None:
-        explain = period is None or (
-            _count_initiatives(session, team_id, period.id or 0) <= INLINE_EXPLANATIONS_UP_TO
-        )
     if period is not None:
         try:
-            plan = plan_for(
-                session,
-                team_id=team_id,
-                period_id=period.id or 0,
-                options=replace(whatif.options(resolution), explain=explain),
-            )
+            if explain is None:
+                # Inline only where explanations are cheap: small plans solved by a DP (prefix
+                # and suffix rows). Plans that need the binary program explain a row on demand,
+                # since each explanation there is two more solves.
+                plan = plan_for(
+                    session,
+                    team_id=team_id,
+                    period_id=period.id or 0,
+                    options=replace(whatif.options(resolution), explain=False),
+                )
+                explain = (
+                    plan.selection.method.startswith("dp")
+                    and len(plan.rows) <= INLINE_EXPLANATIONS_UP_TO
+                )
+            if explain:
+                plan = plan_for(
+                    session,
+                    team_id=team_id,
+                    period_id=period.id or 0,
+                    options=replace(whatif.options(resolution), explain=True),
+                )
         except SelectorInputError as exc:
             message = _no_plan_message(session, exc, team_id, period.id or 0, whatif)
     records = (
@@ -613,17 +625,8 @@ def build_plan_view(
         risk=risk,
         undo_summary=last.summary if last is not None else None,
         titles=titles,
-        explained=explain,
+        explained=bool(explain),
     )
-
-
-def _count_initiatives(session: Session, team_id: int, period_id: int) -> int:
-    query = (
-        select(func.count())
-        .select_from(Initiative)
-        .where(Initiative.team_id == team_id, Initiative.period_id == period_id)
-    )
-    return int(session.exec(query).one())
 
 
 def _no_plan_message(
