@@ -55,5 +55,5 @@ as_postgres "$pg_bin/pg_ctl" -D "$pg_dir/data" -l "$pg_dir/server.log" -w \
   -o "-k $pg_dir -c listen_addresses=127.0.0.1 -p $pg_port -c fsync=off -c max_connections=200" start >/dev/null
 export LOADLINE_TEST_POSTGRES_URL="postgresql+psycopg://postgres@127.0.0.1:${pg_port}/postgres"
 cd "$root"
-run_pytest -p no:cacheprovider -q -m "not browser" tests/api tests/test_migrations.py tests/test_backup.py
+run_pytest -p no:cacheprovider -q -m "not browser" tests/api tests/test_migrations.py tests/test_backup.py tests/postgres tests/test_access.py
 echo "== all tests passed"
