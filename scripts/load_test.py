@@ -110,7 +110,13 @@ async def timed(stats: Stats, kind: str, request: object) -> httpx.Response | No
 
 
 async def user(
-    base: str, token: str, initiative: dict, publication: str, stop_at: float, stats: Stats
+    base: str,
+    token: str,
+    initiative: dict,
+    publication: str,
+    stop_at: float,
+    stats: Stats,
+    think: float,
 ) -> None:
     rng = random.Random(initiative["id"])
     headers = {"Authorization": f"Bearer {token}"}
@@ -118,6 +124,10 @@ async def user(
     version = initiative["version"]
     async with httpx.AsyncClient(base_url=base, headers=headers, timeout=10) as client:
         while time.monotonic() < stop_at:
+            if think:  # a person reads the page before the next action: 0.5x to 1.5x think
+                await asyncio.sleep(
+                    min(think * (0.5 + rng.random()), max(0.0, stop_at - time.monotonic()))
+                )
             roll = rng.random()
             if roll < 0.5:
                 await timed(
@@ -149,10 +159,11 @@ def percentile(values: list[float], q: float) -> float:
     )
 
 
-def report(stats: Stats, seconds: float, users: int, workers: int) -> int:
+def report(stats: Stats, seconds: float, users: int, workers: int, think: float) -> int:
     everything = [v for values in stats.latency.values() for v in values]
     errors = sum(stats.errors.values())
     print(f"\n{users} users, {workers} uvicorn workers, {seconds:.0f} s on 127.0.0.1")
+    print(f"think time between actions: {think:g} s on average")
     print(f"{'kind':<16}{'requests':>10}{'errors':>8}{'p50 ms':>9}{'p95 ms':>9}{'p99 ms':>9}")
     for kind, values in [*sorted(stats.latency.items()), ("all", everything)]:
         err = errors if kind == "all" else stats.errors.get(kind, 0)
@@ -215,11 +226,11 @@ async def main_async(args: argparse.Namespace) -> int:
         stop_at = started + args.seconds
         await asyncio.gather(
             *(
-                user(base, token, candidates[n], publication, stop_at, stats)
+                user(base, token, candidates[n], publication, stop_at, stats, args.think)
                 for n in range(args.users)
             )
         )
-        return report(stats, time.monotonic() - started, args.users, args.workers)
+        return report(stats, time.monotonic() - started, args.users, args.workers, args.think)
     finally:
         server.terminate()
         try:
@@ -233,6 +244,12 @@ def main() -> int:
     parser.add_argument("--users", type=int, default=50)
     parser.add_argument("--seconds", type=float, default=60)
     parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument(
+        "--think",
+        type=float,
+        default=0.0,
+        help="mean seconds a user waits between actions (0: none, the saturation test)",
+    )
     args = parser.parse_args()
     if not 1 <= args.users <= 500 or not 1 <= args.seconds <= 600:
         parser.error("use 1-500 users and 1-600 seconds")
