@@ -9,8 +9,16 @@ root=$(pwd)
 
 python3 -m venv .venv >/dev/null 2>&1 || true
 [ -x .venv/bin/pip ] || { echo "python3 -m venv failed; install Python 3.11+ with venv" >&2; exit 1; }
-.venv/bin/python -m pip install --quiet --disable-pip-version-check -e '.[test]' 2>&1 \
-  | grep -v '^WARNING: Location' || true
+# Install only when pyproject.toml changed since the last install (a stamp in .venv).
+stamp=.venv/.installed-test-$(sha256sum pyproject.toml | cut -c1-16)
+if [ ! -f "$stamp" ]; then
+  echo "Installing Loadline and what it needs into .venv (once; log in .venv/install.log)"
+  if ! .venv/bin/python -m pip install --disable-pip-version-check -e '.[test]' > .venv/install.log 2>&1; then
+    tail -n 30 .venv/install.log >&2
+    exit 1
+  fi
+  .venv/bin/python -c 'import server, fastapi, playwright, schemathesis' && touch "$stamp"
+fi
 
 apt_updated=0
 apt_install() {
