@@ -29,6 +29,7 @@ SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 _PUBLIC_PATHS = frozenset({"/health", "/login", "/logout", "/setup", "/favicon.ico"})
 _PUBLIC_PREFIXES = ("/static/", "/p/")
 _PUBLICATION_WORDS = ("/publication", "/publish", "/revoke")
+_NO_USER_PREFIXES = ("/static/", "/p/", "/health")
 
 
 @dataclass(frozen=True)
@@ -74,9 +75,12 @@ class AccessControl:
             await self.app(scope, receive, send)
             return
         request = Request(scope)
-        signed_in = await to_thread.run_sync(self._resolve, request)
-        scope.setdefault("state", {})["user"] = signed_in
         role = required_role(scope["method"], scope["path"])
+        # Static files, published links and the health check need no user: no database
+        # read for them (published links are the most viewed pages during a meeting).
+        needs_user = role is not None or not scope["path"].startswith(_NO_USER_PREFIXES)
+        signed_in = await to_thread.run_sync(self._resolve, request) if needs_user else None
+        scope.setdefault("state", {})["user"] = signed_in
         refusal = None
         if role is not None:
             refusal = await to_thread.run_sync(self._refusal, request, signed_in, role)

@@ -139,9 +139,7 @@ def _planned_efforts(
     return [float(x) for x in efforts_at_confidence(estimates, confidence)]
 
 
-def _apply_capacity_overrides(
-    base: TeamCapacity, session: Session, options: PlanOptions
-) -> CapacityBreakdown:
+def _apply_capacity_overrides(base: TeamCapacity, options: PlanOptions) -> CapacityBreakdown:
     breakdown = base.breakdown
     if options.days_off or options.focus_factor is not None or options.reserve_pct is not None:
         members = [
@@ -220,7 +218,7 @@ def plan_for(
     team = get_team(session, team_id=team_id)
     period = get_period(session, period_id=period_id)
     breakdown = _apply_capacity_overrides(
-        capacity_of(session, team_id=team_id, period_id=period_id), session, options
+        capacity_of(session, team_id=team_id, period_id=period_id), options
     )
     records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
     passed, blocked, warnings = _need_status(session, records, period)
