@@ -22,8 +22,10 @@ so a plan called feasible is feasible in real days; Selection.rounding reports i
 Methods (Selection.method): "dp" (0/1 knapsack DP with a bit-packed decision table, after an
 exact bound-based reduction when only the plan is asked), "dp-multiple-choice" (either-or
 sets), "dp-needs-forest" (each initiative needs at most one other), "dp-divide-and-conquer"
-(when the decision table would exceed the memory budget), "milp-highs" (general needs graph,
-needs with either-or sets, cross-team plans), "none" (pinned work alone overruns).
+(when the decision table would exceed the memory budget), "dp-subset-sum" (every value the
+same multiple of its effort, plan only: the fullest plan, from bitsets of reachable totals),
+"milp-highs" (general needs graph, needs with either-or sets, cross-team plans), "none"
+(pinned work alone overruns).
 
 Tie rule: among plans of equal best value, the one with the least effort in resolution units
 wins; among those, the one that leaves out the initiative latest in processing order where

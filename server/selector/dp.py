@@ -18,6 +18,7 @@ With integer-scaled values (see rounding.scale_values) every comparison is exact
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -63,6 +64,28 @@ def make_steps(groups: list[list[int]], units: list[int], values: np.ndarray) ->
     )
 
 
+@dataclass(frozen=True)
+class StopRule:
+    """Stop once the row is worth value at units: no plan is worth more, none needs fewer units.
+
+    value is an upper bound on every plan's value and units a lower bound on the units of any
+    plan worth value (see reduction.core_bounds). Once a prefix of the steps reaches both, the
+    later steps cannot change the plan the backtrack finds: the full row would reach value at
+    the same least capacity, and from there no later member is strictly better to take.
+    """
+
+    value: int
+    units: int
+
+
+class Forward(NamedTuple):
+    """A forward pass: the last row, the DP cells evaluated, and the steps actually applied."""
+
+    row: np.ndarray
+    cells: int
+    last: int
+
+
 def table_bytes(members: int, width: int) -> int:
     """Bytes of a bit-packed decision table for members rows over width capacities."""
     return members * ((width + 7) // 8)
@@ -78,8 +101,9 @@ def run_forward(
     last: int | None = None,
     low: int = 0,
     reach_out: list[int] | None = None,
-) -> tuple[np.ndarray, int]:
-    """Apply steps first..last-1 to a row of width capacities; return the row and cells.
+    stop: StopRule | None = None,
+) -> Forward:
+    """Apply steps first..last-1 to a row of width capacities (fewer with a stop rule).
 
     With a table, row r of it receives the take-bits of member bounds[first] + r, valid from
     the member's units up to its reach (appended to reach_out); below its units a member is
@@ -91,6 +115,9 @@ def run_forward(
       Either-or sets end that shortcut.
     - low: when only capacities >= low of the last row will be read, each member skips the
       capacities that the members after it could not lift to low (left stale, never read).
+    - stop: after each step, a row already worth stop.value at stop.units ends the pass.
+      Stale cells only ever hold the value of a plan of earlier steps, so they can delay the
+      stop but never cause a wrong one.
     """
     last = steps.count if last is None else last
     dtype = steps.values.dtype
@@ -114,6 +141,9 @@ def run_forward(
     filled = 0
     packed_to = 0
     add, greater, maximum = np.add, np.greater, np.maximum
+    stop_value = stop.value if stop is not None else None
+    stop_units = min(stop.units, top) if stop is not None else 0
+    applied = last
     for s in range(first, last):
         start, stop = bounds[s], bounds[s + 1]
         if stop - start == 1:
@@ -152,13 +182,16 @@ def run_forward(
                     )
                     packed_to += filled
                     filled = 0
+        if stop_value is not None and row[min(stop_units, reach)] >= stop_value:
+            applied = s + 1
+            break
     if block is not None and filled:
         table[packed_to : packed_to + filled] = np.packbits(
             block[:filled], axis=1, bitorder="little"
         )
     if reach < top:
         row[reach + 1 :] = row[reach]
-    return row, cells
+    return Forward(row, cells, applied)
 
 
 def _units_after(steps: Steps, first: int, last: int, top: int) -> list[int]:
@@ -221,31 +254,47 @@ class DpResult:
     cells: int
     low_memory: bool
     note: str
+    stopped: bool = False  # the stop rule ended the pass: the row covers a prefix of steps
 
 
 def solve_steps(
-    steps: Steps, capacity: int, width: int, budget_bytes: int, *, low: int = 0
+    steps: Steps,
+    capacity: int,
+    width: int,
+    budget_bytes: int,
+    *,
+    low: int = 0,
+    stop: StopRule | None = None,
 ) -> DpResult:
     """Best plan within capacity units, with the last row computed over width capacities.
 
-    low > 0 promises that no best plan uses fewer units (see reduction.least_units_bound);
-    the returned row is then only valid from low up.
+    low > 0 promises that no best plan uses fewer units (see reduction.core_bounds);
+    the returned row is then only valid from low up. A stop rule may end the pass early
+    (see StopRule); the row then belongs to the steps applied. Both are for plan-only solves.
     """
     width = max(width, capacity + 1)
-    low = low if width == capacity + 1 else 0
+    if width != capacity + 1:
+        low, stop = 0, None
     need = table_bytes(steps.members, width)
     if need <= budget_bytes:
         table = np.empty((steps.members, (width + 7) // 8), dtype=np.uint8)
         reach: list[int] = []
-        row, cells = run_forward(steps, width, table=table, low=low, reach_out=reach)
+        row, cells, applied = run_forward(
+            steps, width, table=table, low=low, reach_out=reach, stop=stop
+        )
         start = least_effort_capacity(row, capacity, low)
-        taken, _ = backtrack(steps, table, start, reach=reach)
+        taken, _ = backtrack(steps, table, start, last=applied, reach=reach)
         note = (
             f"{steps.members} initiatives x {width:,} capacity units; decision table "
             f"{_mib(need)} within the {_mib(budget_bytes)} budget"
         )
-        return DpResult(taken, row, cells, False, note)
-    row, cells = run_forward(steps, width)
+        if applied < steps.count:
+            note += (
+                f"; stopped after {applied} of {steps.count} steps: the plan had reached the "
+                "value bound with the least units any plan of that value needs"
+            )
+        return DpResult(taken, row, cells, False, note, applied < steps.count)
+    row, cells, _ = run_forward(steps, width)
     start = least_effort_capacity(row, capacity)
     counter = [cells]
     taken, _ = _divide_and_conquer(steps, 0, steps.count, None, start, budget_bytes, counter)
@@ -277,14 +326,14 @@ def _divide_and_conquer(
     if last - first == 1 or table_bytes(members, width) <= budget_bytes:
         table = np.empty((members, (width + 7) // 8), dtype=np.uint8)
         reach: list[int] = []
-        _, cells = run_forward(
+        _, cells, _ = run_forward(
             steps, width, init=init, table=table, first=first, last=last, reach_out=reach
         )
         counter[0] += cells
         return backtrack(steps, table, capacity, first=first, last=last, reach=reach)
     half = steps.bounds[first] + members // 2
     middle = min(max(first + 1, _step_at(steps, half)), last - 1)
-    row_middle, cells = run_forward(steps, width, init=init, first=first, last=middle)
+    row_middle, cells, _ = run_forward(steps, width, init=init, first=first, last=middle)
     counter[0] += cells
     later, capacity_middle = _divide_and_conquer(
         steps, middle, last, row_middle, capacity, budget_bytes, counter

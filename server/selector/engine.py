@@ -10,10 +10,11 @@ import numpy as np
 from . import dp
 from .constraints import Decided
 from .errors import SelectorInputError
+from .fullest import proportional, solve_fullest
 from .milp import BinaryProgram, solve_binary_program
 from .model import Problem
 from .needs_forest import solve_forest
-from .reduction import keep_by_effort, least_units_bound, reduce_by_bounds
+from .reduction import core_bounds, keep_by_effort, reduce_by_bounds
 from .rounding import scale_values
 from .validation import CheckedProblem, check_problem
 
@@ -163,15 +164,25 @@ def _run_rows(
     reduction_note = ""
     capacity = base.free_capacity
     low = 0
+    stop = None
     if allow_reduction and not sets and width == capacity + 1 and free:
         fixed_in, free, capacity, reduction_note = _reduce(prepared, free, capacity)
         width = capacity + 1
     layout = step_groups(free, sets)
     steps = dp.make_steps(layout, list(units), prepared.scaled)
     _check_cells(steps.members, width)
+    if (
+        allow_reduction
+        and not sets
+        and proportional(steps.units, steps.values)
+        and dp.table_bytes(steps.members, width) <= budget_bytes
+    ):
+        return _run_fullest(prepared, base, steps, capacity, fixed_in, reduction_note)
     if allow_reduction and not sets:
-        low = least_units_bound(list(steps.units), steps.values, capacity)
-    result = dp.solve_steps(steps, capacity, width, budget_bytes, low=low)
+        bounds = core_bounds(steps.units, steps.values, capacity, integral=prepared.integral)
+        low = bounds.low
+        stop = None if bounds.stop is None else dp.StopRule(*bounds.stop)
+    result = dp.solve_steps(steps, capacity, width, budget_bytes, low=low, stop=stop)
     chosen = tuple(
         sorted([*base.decided.in_plan, *fixed_in, *(steps.ids[m] for m in result.taken)])
     )
@@ -184,7 +195,7 @@ def _run_rows(
     note = result.note + reduction_note
     if sets:
         note = f"{len(sets)} either-or sets as multiple-choice steps; " + note
-    whole = not reduction_note and low == 0  # else the row is exact only in part
+    whole = not reduction_note and low == 0 and not result.stopped  # else exact only in part
     return replace(
         base,
         chosen=chosen,
@@ -193,6 +204,35 @@ def _run_rows(
         cells=result.cells,
         row=result.row if whole else None,
         layout=layout if whole else None,
+    )
+
+
+def _run_fullest(
+    prepared: Prepared,
+    base: Outcome,
+    steps: dp.Steps,
+    capacity: int,
+    fixed_in: list[int],
+    reduction_note: str,
+) -> Outcome:
+    """Every value the same multiple of its effort: the fullest plan, from reachable totals."""
+    fullest = solve_fullest(steps.units, capacity)
+    chosen = tuple(
+        sorted([*base.decided.in_plan, *fixed_in, *(steps.ids[m] for m in fullest.taken)])
+    )
+    note = (
+        "every value score is the same multiple of its effort, so the best plan is the "
+        f"fullest: {steps.members} initiatives x {capacity + 1:,} capacity units of "
+        f"reachable-total bits ({dp.table_bytes(steps.members, capacity + 1) / 1024:,.1f} KiB)"
+    )
+    if fullest.applied < steps.count:
+        note += f"; stopped after {fullest.applied} of {steps.count} steps: the capacity is full"
+    return replace(
+        base,
+        chosen=chosen,
+        method="dp-subset-sum",
+        note=note + reduction_note,
+        cells=fullest.cells,
     )
 
 

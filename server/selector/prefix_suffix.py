@@ -87,7 +87,7 @@ def forced_plans(
         for k in options[1:]:
             best_other = max((j for j in options if j != k), key=lambda j: values[j])
             pairs.append((steps.ids[queries[k][3]], k, best_other))
-        prefix, _ = dp.run_forward(
+        prefix, _, _ = dp.run_forward(
             steps,
             width,
             init=prefix,
@@ -126,7 +126,7 @@ class _SuffixRows:
         self._checkpoints: dict[int, np.ndarray] = {count: row}
         for s in range(count - 1, -1, -1):
             bits = table[steps.bounds[s] : steps.bounds[s + 1]]
-            row, _ = dp.run_forward(steps, width, init=row, table=bits, first=s, last=s + 1)
+            row = dp.run_forward(steps, width, init=row, table=bits, first=s, last=s + 1).row
             if s % every == 0:
                 self._checkpoints[s] = row
         self._block: dict[int, np.ndarray] = {}
@@ -140,7 +140,7 @@ class _SuffixRows:
             row = self._checkpoints[top]
             self._block = {}
             for t in range(top - 1, s - 1, -1):
-                row, _ = dp.run_forward(self._steps, self._width, init=row, first=t, last=t + 1)
+                row = dp.run_forward(self._steps, self._width, init=row, first=t, last=t + 1).row
                 self._block[t] = row
         return self._block[s]
 

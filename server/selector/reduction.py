@@ -25,6 +25,7 @@ import numpy as np
 
 # Room left for float error in the bound before an initiative may be fixed.
 _TOLERANCE = 1e-7
+_GREEDY_CHUNK = 64
 
 
 @dataclass(frozen=True)
@@ -45,7 +46,7 @@ def reduce_by_bounds(
     v = np.asarray(values, dtype=np.float64)
     if count == 0 or float(w.sum()) <= capacity:
         return Reduction(list(range(count)), [], count)
-    order = np.lexsort((np.arange(count), -(v / w)))
+    order = np.argsort(-(v / w), kind="stable")  # ties keep input order
     cumulative = np.cumsum(w[order])
     critical = int(np.searchsorted(cumulative, capacity, side="right"))
     ratio = float(v[order[critical]] / w[order[critical]])
@@ -70,6 +71,9 @@ def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> l
     if count == 0:
         return []
     w = np.asarray(units, dtype=np.int64)
+    efforts, per_effort = np.unique(w, return_counts=True)
+    if np.all(per_effort <= capacity // np.maximum(efforts, 1)):
+        return list(range(count))  # no effort has more initiatives than the capacity holds
     order = np.lexsort((np.arange(count), -np.asarray(values, dtype=np.float64), w))
     sorted_w = w[order]
     starts = np.flatnonzero(np.r_[True, sorted_w[1:] != sorted_w[:-1]])
@@ -84,47 +88,95 @@ def _greedy_value(w: np.ndarray, v: np.ndarray, capacity: int) -> float:
     """Value of the plan that takes initiatives in ratio order whenever they still fit."""
     left = float(capacity)
     total = 0.0
-    # Take the leading run that fits in one vectorised step, then finish item by item.
+    # Take the leading run that fits in one vectorised step, then finish item by item, a
+    # chunk at a time: the walk usually ends within a few items, once less than a unit is left.
     cumulative = np.cumsum(w)
     run = int(np.searchsorted(cumulative, left, side="right"))
     if run:
         left -= float(cumulative[run - 1])
-        total += math.fsum(v[:run].tolist())
-    for weight, value in zip(w[run:].tolist(), v[run:].tolist(), strict=True):
-        if weight <= left:
-            left -= weight
-            total += value
-            if left < 1:
-                break
+        total += float(v[:run].sum())  # error far inside the bound's tolerance
+    for start in range(run, w.size, _GREEDY_CHUNK):
+        stop = start + _GREEDY_CHUNK
+        for weight, value in zip(w[start:stop].tolist(), v[start:stop].tolist(), strict=True):
+            if weight <= left:
+                left -= weight
+                total += value
+                if left < 1:
+                    return total
     return total
 
 
-def least_units_bound(units: Sequence[int], values: np.ndarray, capacity: int) -> int:
-    """Units below which no best plan within capacity can lie (a safe, possibly low, bound).
+@dataclass(frozen=True)
+class CoreBounds:
+    """What the LP bound tells the DP over the undecided core before it starts.
 
-    A plan of u units is worth at most U(u), the fractional (LP) optimum at capacity u, and a
-    best plan is worth at least L, the greedy plan's value; so it needs u with U(u) >= L.
+    low: units below which no best plan can lie (a safe, possibly low, bound). A plan of u
+    units is worth at most U(u), the fractional (LP) optimum at capacity u, and a best plan is
+    worth at least L, the greedy plan's value; so it needs u with U(u) >= L.
+
+    stop: (value, units) for the DP's stop rule with whole-number values, or None. value is
+    U(capacity) rounded down, above every plan's value; units is the least u with
+    U(u) >= value, rounded up, below the units of every plan worth value. Float error in
+    either is pushed to the safe side (a higher value, fewer units).
     """
-    count = len(units)
-    if count == 0:
-        return 0
+
+    low: int
+    stop: tuple[int, int] | None
+
+
+def core_bounds(
+    units: Sequence[int], values: np.ndarray, capacity: int, *, integral: bool
+) -> CoreBounds:
+    """The least-units bound and, for whole-number values, the stop rule, from one ratio order."""
+    ratio_order = _ratio_order(units, values, capacity)
+    if ratio_order is None:
+        return CoreBounds(0, None)
+    w, v, everything = ratio_order
+    if everything:
+        return CoreBounds(int(w.sum()), None)  # the only best plan takes everything
+    cumulative_w = np.cumsum(w)
+    cumulative_v = np.cumsum(v)
+    lower = _greedy_value(w, v, capacity)
+    needed = _least_units_worth(cumulative_w, cumulative_v, w, v, lower * (1 - _TOLERANCE))
+    low = 0 if needed is None else max(0, min(capacity, math.floor(needed) - 1))
+    if not integral:
+        return CoreBounds(low, None)
+    critical = int(np.searchsorted(cumulative_w, capacity, side="right"))
+    before_w = float(cumulative_w[critical - 1]) if critical else 0.0
+    before_v = float(cumulative_v[critical - 1]) if critical else 0.0
+    upper = before_v + (capacity - before_w) * float(v[critical] / w[critical])
+    value = math.floor(upper + _TOLERANCE * max(1.0, upper))
+    least = _least_units_worth(cumulative_w, cumulative_v, w, v, float(value))
+    if least is None:
+        return CoreBounds(low, None)
+    return CoreBounds(low, (value, max(0, math.ceil(least - _TOLERANCE * max(1.0, least)))))
+
+
+def _ratio_order(
+    units: Sequence[int], values: np.ndarray, capacity: int
+) -> tuple[np.ndarray, np.ndarray, bool] | None:
+    """Efforts and values that fit, best value per unit first, and whether all of them fit."""
+    if len(units) == 0:
+        return None
     w = np.asarray(units, dtype=np.float64)
     v = np.asarray(values, dtype=np.float64)
     fitting = w <= capacity
     w, v = w[fitting], v[fitting]
     if w.size == 0:
-        return 0
+        return None
     if float(w.sum()) <= capacity:
-        return int(w.sum())  # everything fits: the only best plan takes everything
-    order = np.lexsort((np.arange(w.size), -(v / w)))
-    w, v = w[order], v[order]
-    lower = _greedy_value(w, v, capacity)
-    cumulative_v = np.cumsum(v)
-    cumulative_w = np.cumsum(w)
-    k = int(np.searchsorted(cumulative_v, lower * (1 - _TOLERANCE), side="left"))
+        return w, v, True
+    order = np.argsort(-(v / w), kind="stable")  # ties keep input order
+    return w[order], v[order], False
+
+
+def _least_units_worth(
+    cumulative_w: np.ndarray, cumulative_v: np.ndarray, w: np.ndarray, v: np.ndarray, target: float
+) -> float | None:
+    """Least capacity at which the fractional optimum of ratio-ordered items reaches target."""
+    k = int(np.searchsorted(cumulative_v, target, side="left"))
     if k >= w.size:
-        return 0
+        return None
     before_w = float(cumulative_w[k - 1]) if k else 0.0
     before_v = float(cumulative_v[k - 1]) if k else 0.0
-    needed = before_w + max(0.0, lower * (1 - _TOLERANCE) - before_v) * float(w[k] / v[k])
-    return max(0, min(capacity, math.floor(needed) - 1))
+    return before_w + max(0.0, target - before_v) * float(w[k] / v[k])
