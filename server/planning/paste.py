@@ -25,7 +25,7 @@ from sqlmodel import Session
 from server.errors import InputError
 from server.schemas import InitiativeCreate
 from server.store import audit
-from server.store.initiatives import InitiativeRecord, create_initiative
+from server.store.initiatives import create_initiatives
 from server.validation import parse_form
 
 MAX_ROWS = 500
@@ -288,15 +288,10 @@ def commit_paste(session: Session, result: PasteResult, *, actor: str = "") -> l
         raise InputError(
             f"text: {result.error_count} row(s) have errors; nothing was added.", field="text"
         )
-    created: list[InitiativeRecord] = []
+    initiatives_in = [row.initiative_in for row in result.rows if row.initiative_in is not None]
     try:
-        for row in result.rows:
-            assert row.initiative_in is not None  # guaranteed by result.ok
-            created.append(
-                create_initiative(
-                    session, initiative_in=row.initiative_in, commit=False, actor=actor
-                )
-            )
+        # One batch: a fixed number of statements however many rows were pasted.
+        created = create_initiatives(session, initiatives_in=initiatives_in, actor=actor)
         ids = [record.row.id or 0 for record in created]
         team_id = result.rows[0].initiative_in.team_id if result.rows[0].initiative_in else None
         audit.record(

@@ -2,12 +2,42 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
+from sqlalchemy import insert
 from sqlmodel import Session, col, select
 
 from server.actor import current_actor
 from server.models import AuditEntry
+
+
+def entry(
+    *,
+    actor: str = "",
+    action: str,
+    entity: str,
+    entity_id: int | None,
+    team_id: int | None = None,
+    summary: str = "",
+    before: dict[str, Any] | None = None,
+    after: dict[str, Any] | None = None,
+) -> AuditEntry:
+    """A new entry, not yet added to any session.
+
+    The signed-in user of the current request is the actor; `actor` names it only when
+    there is none (command line, tests).
+    """
+    return AuditEntry(
+        actor=current_actor.get() or actor,
+        action=action,
+        entity=entity,
+        entity_id=entity_id,
+        team_id=team_id,
+        summary=summary[:300],
+        before=before,
+        after=after,
+    )
 
 
 def record(
@@ -22,23 +52,32 @@ def record(
     before: dict[str, Any] | None = None,
     after: dict[str, Any] | None = None,
 ) -> AuditEntry:
-    """Add an entry to the session; the caller's commit stores it with the change itself.
-
-    The signed-in user of the current request is the actor; `actor` names it only when
-    there is none (command line, tests).
-    """
-    entry = AuditEntry(
-        actor=current_actor.get() or actor,
+    """Add an entry to the session; the caller's commit stores it with the change itself."""
+    new = entry(
+        actor=actor,
         action=action,
         entity=entity,
         entity_id=entity_id,
         team_id=team_id,
-        summary=summary[:300],
+        summary=summary,
         before=before,
         after=after,
     )
-    session.add(entry)
-    return entry
+    session.add(new)
+    return new
+
+
+def record_many(session: Session, entries: Sequence[AuditEntry]) -> None:
+    """Write many entries (from `entry`) in the session's transaction as one executemany.
+
+    For bulk changes: the session's own flush would send one INSERT per entry to read each
+    id back, and no caller needs those ids. The entries stay outside the session.
+    """
+    if not entries:
+        return
+    table = AuditEntry.__table__  # type: ignore[attr-defined]
+    columns = [column.key for column in table.columns if not column.primary_key]
+    session.exec(insert(table), params=[{k: getattr(e, k) for k in columns} for e in entries])
 
 
 def list_entries(

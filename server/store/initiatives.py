@@ -7,8 +7,11 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from sqlalchemy import insert
+from sqlalchemy import inspect as sa_inspect
+from sqlalchemy.orm import make_transient_to_detached
 from sqlalchemy.orm.exc import StaleDataError
-from sqlmodel import Session, col, func, select
+from sqlmodel import Session, SQLModel, col, func, select
 
 from server.errors import InputError, StaleVersionError
 from server.models import EffortLine, Initiative, Need, Period, Team, utcnow
@@ -109,6 +112,83 @@ def get_initiative(session: Session, *, initiative_id: int) -> InitiativeRecord:
     return load_records(session, [row])[0]
 
 
+# Ids per IN (...) list: far below the bound-parameter limits of SQLite and PostgreSQL.
+_IN_CHUNK = 500
+# Bad rows of a batch named one by one in the error; the rest are counted.
+_LISTED = 10
+
+
+def _existing_ids(
+    session: Session, model: type[Team | Period | Initiative], ids: Iterable[int]
+) -> set[int]:
+    """Which of `ids` have a row in `model`'s table: one query per chunk, not one per id."""
+    wanted = sorted(set(ids))
+    found: set[int] = set()
+    id_column = col(model.id)
+    for start in range(0, len(wanted), _IN_CHUNK):
+        chunk = wanted[start : start + _IN_CHUNK]
+        found.update(session.exec(select(id_column).where(id_column.in_(chunk))))
+    return found
+
+
+@dataclass(frozen=True)
+class _References:
+    """The rows that exist among everything a batch of initiatives refers to."""
+
+    teams: set[int]
+    periods: set[int]
+    initiatives: set[int]
+
+    @classmethod
+    def load(
+        cls,
+        session: Session,
+        *,
+        team_ids: Iterable[int],
+        period_ids: Iterable[int],
+        initiative_ids: Iterable[int],
+    ) -> _References:
+        return cls(
+            teams=_existing_ids(session, Team, team_ids),
+            periods=_existing_ids(session, Period, period_ids),
+            initiatives=_existing_ids(session, Initiative, initiative_ids),
+        )
+
+
+def _reference_error(
+    refs: _References,
+    *,
+    team_id: int,
+    period_id: int | None,
+    other_efforts: Iterable[TeamEffortIn],
+    needs: Iterable[int],
+    initiative_id: int | None,
+) -> InputError | None:
+    """The first reference of one initiative that points at nothing, in the order named."""
+    if team_id not in refs.teams:
+        return InputError(f"team_id: no team with id {team_id}.", field="team_id")
+    if period_id is not None and period_id not in refs.periods:
+        return InputError(f"period_id: no period with id {period_id}.", field="period_id")
+    seen = {team_id}
+    for line in other_efforts:
+        if line.team_id in seen:
+            return InputError(
+                f"other_efforts: team {line.team_id} is listed twice (or is the owning team).",
+                field="other_efforts",
+            )
+        if line.team_id not in refs.teams:
+            return InputError(
+                f"other_efforts: no team with id {line.team_id}.", field="other_efforts"
+            )
+        seen.add(line.team_id)
+    for needed_id in needs:
+        if needed_id == initiative_id:
+            return InputError("needs: an initiative cannot need itself.", field="needs")
+        if needed_id not in refs.initiatives:
+            return InputError(f"needs: no initiative with id {needed_id}.", field="needs")
+    return None
+
+
 def _check_references(
     session: Session,
     *,
@@ -118,27 +198,57 @@ def _check_references(
     needs: Iterable[int],
     initiative_id: int | None,
 ) -> None:
-    if session.get(Team, team_id) is None:
-        raise InputError(f"team_id: no team with id {team_id}.", field="team_id")
-    if period_id is not None and session.get(Period, period_id) is None:
-        raise InputError(f"period_id: no period with id {period_id}.", field="period_id")
-    seen = {team_id}
-    for line in other_efforts:
-        if line.team_id in seen:
-            raise InputError(
-                f"other_efforts: team {line.team_id} is listed twice (or is the owning team).",
-                field="other_efforts",
-            )
-        if session.get(Team, line.team_id) is None:
-            raise InputError(
-                f"other_efforts: no team with id {line.team_id}.", field="other_efforts"
-            )
-        seen.add(line.team_id)
-    for needed_id in needs:
-        if needed_id == initiative_id:
-            raise InputError("needs: an initiative cannot need itself.", field="needs")
-        if session.get(Initiative, needed_id) is None:
-            raise InputError(f"needs: no initiative with id {needed_id}.", field="needs")
+    other_efforts, needs = list(other_efforts), list(needs)
+    refs = _References.load(
+        session,
+        team_ids=[team_id, *(line.team_id for line in other_efforts)],
+        period_ids=[] if period_id is None else [period_id],
+        initiative_ids=needs,
+    )
+    error = _reference_error(
+        refs,
+        team_id=team_id,
+        period_id=period_id,
+        other_efforts=other_efforts,
+        needs=needs,
+        initiative_id=initiative_id,
+    )
+    if error is not None:
+        raise error
+
+
+def _check_batch(session: Session, initiatives_in: Sequence[InitiativeCreate]) -> None:
+    """Check every new initiative's references with a few queries for the whole batch."""
+    refs = _References.load(
+        session,
+        team_ids=[
+            team_id
+            for item in initiatives_in
+            for team_id in (item.team_id, *(line.team_id for line in item.other_efforts))
+        ],
+        period_ids=[item.period_id for item in initiatives_in if item.period_id is not None],
+        initiative_ids=[needed for item in initiatives_in for needed in item.needs],
+    )
+    errors: list[tuple[int, InputError]] = []
+    for number, item in enumerate(initiatives_in, start=1):
+        error = _reference_error(
+            refs,
+            team_id=item.team_id,
+            period_id=item.period_id,
+            other_efforts=item.other_efforts,
+            needs=item.needs,
+            initiative_id=None,
+        )
+        if error is not None:
+            errors.append((number, error))
+    if not errors:
+        return
+    if len(initiatives_in) == 1:
+        raise errors[0][1]
+    # Every bad row, by its number in the batch (the first few, then how many more).
+    named = "; ".join(f"row {number}, {error.message}" for number, error in errors[:_LISTED])
+    more = f"; and {len(errors) - _LISTED} more row(s)" if len(errors) > _LISTED else ""
+    raise InputError(f"{named}{more}", field=errors[0][1].field)
 
 
 def _needs_cycle(session: Session, start_id: int, needs: Iterable[int]) -> list[int] | None:
@@ -202,54 +312,136 @@ def _replace_needs(session: Session, db_row: Initiative, needs: list[int]) -> No
             session.add(Need(initiative_id=db_row.id or 0, needed_id=needed_id))
 
 
-def _next_position(session: Session, team_id: int) -> int:
-    query = select(func.max(Initiative.position)).where(Initiative.team_id == team_id)
-    return int(session.exec(query).one() or 0) + 1
+def _next_positions(session: Session, team_ids: Iterable[int]) -> dict[int, int]:
+    """The last position used in each team (0 for none): new initiatives go after it."""
+    teams = sorted(set(team_ids))
+    last = dict.fromkeys(teams, 0)
+    for start in range(0, len(teams), _IN_CHUNK):
+        query = (
+            select(Initiative.team_id, func.max(Initiative.position))
+            .where(col(Initiative.team_id).in_(teams[start : start + _IN_CHUNK]))
+            .group_by(Initiative.team_id)
+        )
+        for team_id, position in session.exec(query):
+            last[team_id] = int(position or 0)
+    return last
 
 
 def create_initiative(
     session: Session, *, initiative_in: InitiativeCreate, commit: bool = True, actor: str = ""
 ) -> InitiativeRecord:
-    """Store a new initiative; with commit=False the caller commits (bulk imports)."""
-    _check_references(
-        session,
-        team_id=initiative_in.team_id,
-        period_id=initiative_in.period_id,
-        other_efforts=initiative_in.other_efforts,
-        needs=initiative_in.needs,
-        initiative_id=None,
-    )
-    db_row = Initiative(
-        team_id=initiative_in.team_id,
-        period_id=initiative_in.period_id,
-        title=initiative_in.title,
-        notes=initiative_in.notes,
-        value=initiative_in.value,
-        confidence=initiative_in.confidence,
-        state=initiative_in.state,
-        either_or=initiative_in.either_or,
-        position=_next_position(session, initiative_in.team_id),
-    )
-    session.add(db_row)
-    session.flush()
-    _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
-    _replace_other_efforts(session, db_row, initiative_in.other_efforts)
-    _replace_needs(session, db_row, initiative_in.needs)
-    session.flush()
-    created = get_initiative(session, initiative_id=db_row.id or 0)
-    audit.record(
-        session,
-        actor=actor,
-        action="initiative.create",
-        entity="initiative",
-        entity_id=db_row.id,
-        team_id=db_row.team_id,
-        summary=f"Added “{db_row.title}”",
-        after=created.to_public().model_dump(mode="json"),
-    )
+    """Store a new initiative; with commit=False the caller commits."""
+    record = create_initiatives(session, initiatives_in=[initiative_in], actor=actor)[0]
     if commit:
         session.commit()
-    return created
+    return record
+
+
+def _insert_rows(session: Session, rows: Sequence[SQLModel], key: tuple[str, ...]) -> None:
+    """INSERT new rows of one table in batches and make them rows of the session.
+
+    The session's own flush sends one INSERT per row on SQLite, to read each new id back in
+    the order of the rows. Here the rows go as one executemany, which SQLAlchemy sends as
+    multi-row INSERT ... VALUES (...), (...) RETURNING statements ("insertmanyvalues", up to
+    1,000 rows each and within the drivers' parameter limits). The RETURNING rows carry `key`,
+    columns that are unique among `rows`, so the ids are matched back whatever order the
+    database returns them in. The rows keep the values they were built with (no read-back)
+    and join the session as persistent, clean rows, as if they had been flushed.
+    """
+    if not rows:
+        return
+    table = type(rows[0]).__table__  # type: ignore[attr-defined]
+    columns = [column.key for column in table.columns if not column.primary_key]
+    statement = insert(table).returning(table.c.id, *(table.c[name] for name in key))
+    values = [{name: getattr(row, name) for name in columns} for row in rows]
+    ids = {tuple(found[1:]): found[0] for found in session.exec(statement, params=values)}
+    for row in rows:
+        row.id = ids[tuple(getattr(row, name) for name in key)]  # type: ignore[attr-defined]
+        make_transient_to_detached(row)
+        # SQLite may reuse the id of a row a database cascade deleted; a stale copy of that
+        # row still held by the session would clash with the new one, so it is dropped.
+        stale = session.identity_map.get(sa_inspect(row).key)
+        if stale is not None:
+            session.expunge(stale)
+        session.add(row)
+
+
+def create_initiatives(
+    session: Session, *, initiatives_in: Sequence[InitiativeCreate], actor: str = ""
+) -> list[InitiativeRecord]:
+    """Store new initiatives, in order, with one `initiative.create` audit entry each.
+
+    Every row's references are checked before anything is written; a bad one raises (naming
+    every bad row when there are several). Then a fixed number of statements per 1,000 rows,
+    not per row: multi-row INSERTs of the initiatives, their effort lines and needs, and one
+    executemany of the audit entries. Nothing is committed: the caller commits, so a bulk
+    import stays all or nothing.
+    """
+    if not initiatives_in:
+        return []
+    _check_batch(session, initiatives_in)
+    positions = _next_positions(session, (item.team_id for item in initiatives_in))
+    rows: list[Initiative] = []
+    for item in initiatives_in:
+        positions[item.team_id] += 1  # unique in the team, so (team_id, position) finds the id
+        rows.append(
+            Initiative(
+                team_id=item.team_id,
+                period_id=item.period_id,
+                title=item.title,
+                notes=item.notes,
+                value=item.value,
+                confidence=item.confidence,
+                state=item.state,
+                either_or=item.either_or,
+                position=positions[item.team_id],
+                version=1,
+            )
+        )
+    _insert_rows(session, rows, ("team_id", "position"))
+    records: list[InitiativeRecord] = []
+    for db_row, item in zip(rows, initiatives_in, strict=True):
+        record = InitiativeRecord(row=db_row, needs=list(dict.fromkeys(item.needs)))
+        for team_id, effort in [(db_row.team_id, item.effort)] + [
+            (line.team_id, line) for line in item.other_efforts
+        ]:
+            record.efforts[team_id] = EffortLine(
+                initiative_id=db_row.id or 0,
+                team_id=team_id,
+                likely=effort.likely,
+                low=effort.low,
+                high=effort.high,
+            )
+        records.append(record)
+    lines = [line for record in records for line in record.efforts.values()]
+    _insert_rows(session, lines, ("initiative_id", "team_id"))
+    add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
+    # Built from what was stored, so the entries need no read-back of the rows.
+    entries = [
+        audit.entry(
+            actor=actor,
+            action="initiative.create",
+            entity="initiative",
+            entity_id=record.row.id,
+            team_id=record.row.team_id,
+            summary=f"Added “{record.row.title}”",
+            after=record.to_public().model_dump(mode="json"),
+        )
+        for record in records
+    ]
+    audit.record_many(session, entries)
+    return records
+
+
+def add_needs(session: Session, *, needs: Iterable[tuple[int, int]]) -> None:
+    """Store (initiative_id, needed_id) pairs in bulk, e.g. between the rows of one import.
+
+    The caller has checked them: both ends exist and they close no cycle. Repeated pairs are
+    stored once.
+    """
+    pairs = list(dict.fromkeys(needs))
+    rows = [Need(initiative_id=initiative_id, needed_id=needed) for initiative_id, needed in pairs]
+    _insert_rows(session, rows, ("initiative_id", "needed_id"))
 
 
 def update_initiative(

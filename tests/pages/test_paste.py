@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import NoReturn
+
 import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, func, select
@@ -117,21 +119,23 @@ def test_commit_is_all_or_nothing(session: Session, monkeypatch: pytest.MonkeyPa
     )
     before = _count(session)
     lines_before = int(session.exec(select(func.count()).select_from(EffortLine)).one())
-    calls = {"n": 0}
-    real = paste_module.create_initiative
+    real = paste_module.create_initiatives
 
-    def failing_third(*args: object, **kwargs: object):
-        calls["n"] += 1
-        if calls["n"] == 3:
-            raise InputError("period_id: no period with id 99.", field="period_id")
-        return real(*args, **kwargs)  # type: ignore[arg-type]
+    def stored_then_failing(session: Session, **kwargs: object) -> NoReturn:
+        assert len(real(session, **kwargs)) == 3  # type: ignore[arg-type]
+        # All three rows are in the open transaction when the failure comes.
+        assert _count(session) == before + 3
+        raise InputError("period_id: no period with id 99.", field="period_id")
 
-    monkeypatch.setattr(paste_module, "create_initiative", failing_third)
+    monkeypatch.setattr(paste_module, "create_initiatives", stored_then_failing)
     with pytest.raises(InputError):
         commit_paste(session, good)
-    assert _count(session) == before  # the first two rows were not kept either
+    assert _count(session) == before  # the rows written before the failure were not kept
     assert int(session.exec(select(func.count()).select_from(EffortLine)).one()) == lines_before
-    monkeypatch.setattr(paste_module, "create_initiative", real)
+    assert (
+        session.exec(select(AuditEntry).where(AuditEntry.action == "initiative.paste")).all() == []
+    )
+    monkeypatch.setattr(paste_module, "create_initiatives", real)
     ids = commit_paste(session, good)
     assert len(ids) == 3
     assert _count(session) == before + 3
