@@ -210,21 +210,17 @@ def _need_status(
     return passed, blocked, warnings
 
 
-def plan_for(
-    session: Session, *, team_id: int, period_id: int, options: PlanOptions | None = None
-) -> LivePlan:
-    """Solve the live plan of a team in a period, with explanations, curve and fit."""
-    options = options or PlanOptions()
-    team = get_team(session, team_id=team_id)
-    period = get_period(session, period_id=period_id)
-    breakdown = _apply_capacity_overrides(
-        capacity_of(session, team_id=team_id, period_id=period_id), options
-    )
-    records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
-    passed, blocked, warnings = _need_status(session, records, period)
-    estimates = [_estimate(r, team_id, team.default_spread) for r in records]
+def _problem(
+    records: list[InitiativeRecord],
+    estimates: list[ThreePoint],
+    passed: dict[int, list[int]],
+    blocked: dict[int, list[str]],
+    options: PlanOptions,
+    capacity_days: float,
+    team_id: int,
+) -> tuple[Problem, list[float]]:
+    """The selector's problem for these rows, and each row's planned effort in days."""
     efforts = _planned_efforts(estimates, records, team_id, options.confidence)
-
     items = []
     for record, effort in zip(records, efforts, strict=True):
         rid = record.row.id or 0
@@ -243,9 +239,26 @@ def plan_for(
             )
         )
     problem = Problem(
-        items=tuple(items),
-        capacity=max(breakdown.capacity_days, 0.0),
-        resolution=options.resolution,
+        items=tuple(items), capacity=max(capacity_days, 0.0), resolution=options.resolution
+    )
+    return problem, efforts
+
+
+def plan_for(
+    session: Session, *, team_id: int, period_id: int, options: PlanOptions | None = None
+) -> LivePlan:
+    """Solve the live plan of a team in a period, with explanations, curve and fit."""
+    options = options or PlanOptions()
+    team = get_team(session, team_id=team_id)
+    period = get_period(session, period_id=period_id)
+    breakdown = _apply_capacity_overrides(
+        capacity_of(session, team_id=team_id, period_id=period_id), options
+    )
+    records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
+    passed, blocked, warnings = _need_status(session, records, period)
+    estimates = [_estimate(r, team_id, team.default_spread) for r in records]
+    problem, efforts = _problem(
+        records, estimates, passed, blocked, options, breakdown.capacity_days, team_id
     )
     selection = _solve(
         problem,
@@ -310,13 +323,18 @@ def plan_for(
         )
     p50_value = None
     if options.confidence is not None and options.confidence != 0.5:
-        p50 = plan_for(
-            session,
-            team_id=team_id,
-            period_id=period_id,
-            options=replace(options, confidence=0.5, explain=False, curve=False),
+        # The same rows at P50 efforts: what planning at this confidence gives up.
+        p50_problem, _ = _problem(
+            records,
+            estimates,
+            passed,
+            blocked,
+            replace(options, confidence=0.5),
+            breakdown.capacity_days,
+            team_id,
         )
-        p50_value = p50.selection.value if p50.selection.feasible else None
+        p50 = _solve(p50_problem, curve_to=None, explain=False)
+        p50_value = p50.value if p50.feasible else None
     return LivePlan(
         p50_value=p50_value,
         team=team,
