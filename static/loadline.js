@@ -1,7 +1,8 @@
 // Loadline's only script. Every page works without it: links and forms are plain HTML. With it,
 // htmx swaps the plan fragment in place after each change, and this file makes that feel like
 // one continuous sheet: the keyboard stays where the person is typing, nothing typed while the
-// plan is being re-solved is lost, and the quick-add row is driven by Enter.
+// plan is being re-solved is lost, each change of a row is saved once, and the quick-add row is
+// driven by Enter.
 (function () {
   "use strict";
 
@@ -28,8 +29,18 @@
     return Boolean(el && el.closest && el.closest("#plan"));
   }
 
+  function isPlan(el) {
+    return Boolean(el && el.id === "plan");
+  }
+
   function isField(el) {
     return Boolean(el && el.id && /^(INPUT|SELECT|TEXTAREA)$/.test(el.tagName) && el.type !== "hidden");
+  }
+
+  // htmx puts the new plan in before it takes the old one out, and the old fields fire "change"
+  // and "blur" on their way out: only the page's own element of an id speaks for that id.
+  function isCurrent(el) {
+    return Boolean(el && el.isConnected && (!el.id || document.getElementById(el.id) === el));
   }
 
   function isDirty(el) {
@@ -41,54 +52,224 @@
     return el.value !== el.defaultValue;
   }
 
+  function fieldsOf(form) {
+    return Array.prototype.filter.call(form.elements, isField);
+  }
+
+  function hasDirtyField(form) {
+    return fieldsOf(form).some(isDirty);
+  }
+
+  function isRowForm(el) {
+    return Boolean(el && el.tagName === "FORM" && el.classList.contains("row-edit"));
+  }
+
+  // The row form a field (or the form itself) belongs to, if it is the page's current one.
+  function rowForm(el) {
+    var form = el && el.tagName === "FORM" ? el : el && el.form;
+    return isCurrent(el) && isRowForm(form) && inPlan(form) && isCurrent(form) ? form : null;
+  }
+
   // --- While the plan is being re-solved -----------------------------------------------------
   // Fields carry stable ids (effort-12, value-12, state-12, quick-title), so after a swap the
-  // same field is found again, even when its row moved to the other group. A form submitted
-  // while a request is on its way waits for the swap and is then sent from the new page, so
-  // it carries the new version of its row.
+  // same field is found again, even when its row moved to the other group. htmx wires the new
+  // plan's forms only when it settles, so anything submitted from the moment a request leaves
+  // until then waits, and is sent from the settled page with the new version of its row.
   var busy = false;
-  var waiting = []; // ids of forms to submit after the swap
+  var pending = []; // {id, row, asked}: forms to submit once the plan has settled
   var typed = {}; // field id -> value typed but not yet part of the page
   var kept = null; // where the focus was when the swap started
-  var planSwap = false; // the swap replaces the whole plan fragment
+  var releasing = null; // the form this script is submitting itself, let through to htmx
+
+  function later(id, row, asked) {
+    var entry = pending.filter(function (e) {
+      return e.id === id;
+    })[0];
+    if (entry) {
+      entry.asked = entry.asked || asked;
+    } else if (id) {
+      pending.push({ id: id, row: row, asked: asked });
+    }
+  }
+
+  function submit(form) {
+    if (typeof form.requestSubmit !== "function") {
+      return;
+    }
+    releasing = form;
+    try {
+      form.requestSubmit();
+    } finally {
+      releasing = null;
+    }
+  }
+
+  // --- Saving a row --------------------------------------------------------------------------
+  // Every way of saving a row ends in saveRow: Enter, leaving a changed field, the Save button,
+  // a save asked for while the plan was busy, a value put back after a swap. It saves what the
+  // row holds now, from the current page, and only when that differs both from what the page
+  // shows as stored and from what was last sent. "asked" is Enter or a button: it also sends a
+  // row the answer left unsaved (a clash with someone else's edit), once per version.
+  var sent = {}; // row form id -> {key, values} of the row's last save sent
+
+  // What a save of the row would send, buttons and token aside: fields, version, what-if.
+  function rowKey(form) {
+    return Array.prototype.filter
+      .call(form.elements, function (el) {
+        var sendable = /^(INPUT|SELECT|TEXTAREA)$/.test(el.tagName) && el.type !== "submit";
+        return sendable && el.name && el.name !== "csrf_token";
+      })
+      .map(function (el) {
+        return el.name + "=" + el.value;
+      })
+      .join("&");
+  }
+
+  function rowValues(form) {
+    var values = {};
+    fieldsOf(form).forEach(function (el) {
+      values[el.id] = el.value;
+    });
+    return values;
+  }
+
+  function isUnsaved(form) {
+    var row = form.closest("tr");
+    return Boolean(row && row.classList.contains("row-refused"));
+  }
+
+  function needsSave(form, asked) {
+    var last = sent[form.id];
+    if (last && last.key === rowKey(form)) {
+      return false;
+    }
+    return hasDirtyField(form) || (asked && isUnsaved(form));
+  }
+
+  // Judged twice when the plan is busy: now, so that leaving a field whose value is already on
+  // its way asks for nothing, and again on the settled page, which may hold newer values.
+  // Called from the row's own submit event ("submitting"), it sends by letting that event go
+  // on to htmx: a form cannot be submitted again while its submit event is being dispatched.
+  function saveRow(form, asked, submitting) {
+    if (!form || !needsSave(form, asked)) {
+      return false;
+    }
+    if (busy) {
+      later(form.id, true, asked);
+      return false;
+    }
+    if (!submitting) {
+      submit(form);
+    }
+    return true;
+  }
+
+  // "Pin it" and the like name the state to set: the same as choosing it in the row's field.
+  function chooseState(form, button) {
+    if (!button || button.name !== "set_state") {
+      return;
+    }
+    fieldsOf(form).forEach(function (el) {
+      if (el.name === "state") {
+        el.value = button.value;
+      }
+    });
+  }
+
+  function sendPending() {
+    var queue = pending;
+    pending = [];
+    queue.forEach(function (entry) {
+      var form = document.getElementById(entry.id);
+      if (!form || form.tagName !== "FORM") {
+        return;
+      }
+      if (entry.row) {
+        saveRow(rowForm(form), entry.asked);
+      } else if (busy) {
+        later(entry.id, false, false);
+      } else if (hasDirtyField(form)) {
+        submit(form);
+      }
+    });
+  }
 
   document.addEventListener("htmx:beforeRequest", function (event) {
-    if (inPlan(event.detail.elt)) {
-      busy = true;
+    var elt = event.detail.elt;
+    if (!inPlan(elt)) {
+      return;
+    }
+    busy = true;
+    if (isRowForm(elt)) {
+      sent[elt.id] = { key: rowKey(elt), values: rowValues(elt) };
     }
   });
+
+  // A save that got no answer was not stored: the same values may be sent again.
   ["htmx:sendError", "htmx:timeout", "htmx:responseError"].forEach(function (name) {
-    document.addEventListener(name, function () {
-      busy = false;
+    document.addEventListener(name, function (event) {
+      var elt = event.detail.elt;
+      if (isRowForm(elt)) {
+        delete sent[elt.id];
+      }
+      if (inPlan(elt)) {
+        busy = false;
+        sendPending();
+      }
     });
+  });
+  // A newer request replaced it (a link, a view change): try again once that one has settled.
+  document.addEventListener("htmx:sendAbort", function (event) {
+    var elt = event.detail.elt;
+    if (isRowForm(elt)) {
+      delete sent[elt.id];
+      later(elt.id, true, false);
+    }
   });
 
   document.addEventListener(
     "submit",
     function (event) {
       var form = event.target;
-      if (busy && inPlan(form)) {
+      if (form === releasing || !inPlan(form)) {
+        return;
+      }
+      if (isRowForm(form)) {
+        var current = rowForm(form);
+        if (current) {
+          chooseState(current, event.submitter);
+        }
+        if (!saveRow(current, true, true)) {
+          event.preventDefault();
+          event.stopImmediatePropagation();
+        }
+      } else if (busy) {
         event.preventDefault();
         event.stopImmediatePropagation();
-        if (form.id && waiting.indexOf(form.id) < 0) {
-          waiting.push(form.id);
-        }
+        later(form.id, false, false);
       }
     },
     true
   );
 
   document.addEventListener("htmx:beforeSwap", function (event) {
-    planSwap = Boolean(event.detail.target && event.detail.target.id === "plan");
-    if (!planSwap) {
+    if (!isPlan(event.detail.target) || !event.detail.shouldSwap) {
       return;
     }
     var sender = event.detail.requestConfig ? event.detail.requestConfig.elt : null;
     var sentForm = sender && sender.tagName === "FORM" ? sender : sender && sender.form;
+    var last = isRowForm(sentForm) ? sent[sentForm.id] : null;
     typed = {};
     document.querySelectorAll("#plan input, #plan select, #plan textarea").forEach(function (el) {
-      // The sending form's fields are answered by the response itself.
-      if (isField(el) && el.form !== sentForm && isDirty(el)) {
+      if (!isField(el)) {
+        return;
+      }
+      if (el.form && el.form === sentForm) {
+        // The answer shows what was sent; keep only what was typed into the row since.
+        if (last && el.value !== last.values[el.id]) {
+          typed[el.id] = el.value;
+        }
+      } else if (isDirty(el)) {
         typed[el.id] = el.value;
       }
     });
@@ -108,25 +289,43 @@
     el.addEventListener(
       "blur",
       function () {
-        if (el.isConnected && isDirty(el)) {
-          el.dispatchEvent(new Event("change", { bubbles: true }));
-        }
+        saveRow(rowForm(el), false);
       },
       { once: true }
     );
   }
 
+  // Put typed values into the new fields; a field left already is saved with its row, the one
+  // still being typed in when the person leaves it (or presses Enter).
+  function putBackTyped() {
+    Object.keys(typed).forEach(function (id) {
+      var el = document.getElementById(id);
+      if (!el || isDirty(el) || el.value === typed[id]) {
+        return;
+      }
+      el.value = typed[id];
+      if (kept && kept.id === id) {
+        saveOnLeave(el);
+      } else {
+        saveRow(rowForm(el), false);
+      }
+    });
+    typed = {};
+  }
+
+  // Right after the swap, in the same task, so nothing the person types or selects next is
+  // undone: htmx's own autofocus would come at settle time, so the attribute goes here.
   function restoreFocus() {
     var wanted = document.querySelector("#plan [autofocus]");
     var el = kept ? document.getElementById(kept.id) : null;
     var target = wanted || el;
+    if (wanted) {
+      wanted.removeAttribute("autofocus"); // once: a later swap of a part must not jump here
+    }
     if (!target || typeof target.focus !== "function") {
       return;
     }
     target.focus({ preventScroll: !wanted });
-    if (wanted) {
-      wanted.removeAttribute("autofocus"); // once: a later swap of a part must not jump here
-    }
     if (target === el && kept.start !== null && typeof el.setSelectionRange === "function") {
       try {
         el.setSelectionRange(kept.start, kept.end);
@@ -139,46 +338,27 @@
     }
   }
 
-  document.addEventListener("htmx:afterSettle", function () {
-    if (!planSwap) {
+  document.addEventListener("htmx:afterSwap", function (event) {
+    if (!isPlan(event.target)) {
       return;
     }
-    planSwap = false;
-    busy = false;
-    Object.keys(typed).forEach(function (id) {
-      var el = document.getElementById(id);
-      if (el && !isDirty(el) && el.value !== typed[id]) {
-        el.value = typed[id];
-        saveOnLeave(el);
-      }
-    });
-    typed = {};
+    putBackTyped(); // before the focus: setting a value moves the caret
     restoreFocus();
     kept = null;
-    var next = waiting.shift();
-    var form = next ? document.getElementById(next) : null;
-    var changed =
-      form &&
-      Array.prototype.some.call(form.elements, function (el) {
-        return isField(el) && isDirty(el);
-      });
-    if (changed && typeof form.requestSubmit === "function") {
-      form.requestSubmit();
+  });
+
+  document.addEventListener("htmx:afterSettle", function (event) {
+    if (!isPlan(event.target)) {
+      return;
     }
+    busy = false;
+    sendPending();
   });
 
   // --- Editing a row -------------------------------------------------------------------------
   // A changed field saves its row (the form the field belongs to); Enter saves at once.
-  function rowForm(el) {
-    var form = el && el.form;
-    return form && form.classList.contains("row-edit") && inPlan(form) ? form : null;
-  }
-
   document.addEventListener("change", function (event) {
-    var form = rowForm(event.target);
-    if (form) {
-      form.requestSubmit();
-    }
+    saveRow(rowForm(event.target), false);
   });
 
   // --- Explanations of large plans ----------------------------------------------------------
@@ -215,7 +395,7 @@
     if (form) {
       // Save once, here: without this the browser's own submit would follow the change event.
       event.preventDefault();
-      form.requestSubmit();
+      saveRow(form, true);
       return;
     }
     var at = QUICK_FIELDS.indexOf(el.id);

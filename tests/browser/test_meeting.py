@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import re
 from typing import Any
+from urllib.parse import parse_qs
 
 import pytest
-from playwright.sync_api import Browser, Page, expect
+from playwright.sync_api import Browser, Page, Request, Response, Route, expect
 
 from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
 from tests.browser.flows import decision, quick_add, row_id, screenshot, set_up_team
@@ -28,6 +29,32 @@ PASTED = "\n".join(
 
 def _number(page: Page, element_id: str) -> float:
     return float(page.locator(f"#{element_id}").get_attribute("value") or "nan")
+
+
+ROW_SAVE = re.compile(r"/plan/initiatives/(\d+)$")
+
+
+class RowSaves:
+    """Every save of a plan row the page sends: which row, what it carried, how it was answered."""
+
+    def __init__(self, page: Page) -> None:
+        self.sent: list[tuple[int, dict[str, str]]] = []
+        self.statuses: list[int] = []
+        page.on("request", self._request)
+        page.on("response", self._response)
+
+    def _request(self, request: Request) -> None:
+        found = ROW_SAVE.search(request.url)
+        if found and request.method == "POST":
+            form = {k: v[0] for k, v in parse_qs(request.post_data or "").items()}
+            self.sent.append((int(found.group(1)), form))
+
+    def _response(self, response: Response) -> None:
+        if ROW_SAVE.search(response.url) and response.request.method == "POST":
+            self.statuses.append(response.status)
+
+    def values(self, name: str) -> list[tuple[int, str]]:
+        return [(row, form.get(name, "")) for row, form in self.sent]
 
 
 @pytest.mark.browser
@@ -178,11 +205,7 @@ def test_enter_saves_a_row_once(app_page: Page, live_server: LiveServer) -> None
     set_up_team(page, live_server.url)
     quick_add(page, "Gangway repair", "5", "30")
     gangway = row_id(page, "Gangway repair")
-    responses: list[int] = []
-    page.on(
-        "response",
-        lambda r: responses.append(r.status) if f"/plan/initiatives/{gangway}" in r.url else None,
-    )
+    saves = RowSaves(page)
     value = page.locator(f"#value-{gangway}")
     value.fill("31")
     value.press("Enter")
@@ -192,7 +215,51 @@ def test_enter_saves_a_row_once(app_page: Page, live_server: LiveServer) -> None
     page.locator(f"#value-{gangway}").press("Enter")
     expect(page.locator("#total-value")).to_have_attribute("value", "32.0")
     expect(page.locator(".conflict")).to_have_count(0)
-    assert responses == [200, 200]  # one request per Enter, never a clash with itself
+    expect(page.locator(f"#value-{gangway}")).to_have_value("32")
+    expect(page.locator(f"#value-{gangway}")).to_be_focused()
+    assert saves.statuses == [200, 200]  # one request per Enter, never a clash with itself
+    assert saves.values("value") == [(gangway, "31"), (gangway, "32")]
+    # The second save was built from the answer to the first: the version it carries is newer.
+    (_, first), (_, second) = saves.values("version")
+    assert int(second) == int(first) + 1
+
+
+@pytest.mark.browser
+def test_typing_while_a_save_is_on_its_way(app_page: Page, live_server: LiveServer) -> None:
+    """Nothing typed while the plan is re-solved is lost, and each change is saved once."""
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    quick_add(page, "Buoy sensors", "8", "42")
+    gangway = row_id(page, "Gangway repair")
+    buoy = row_id(page, "Buoy sensors")
+    expect(page.locator("#total-value")).to_have_attribute("value", "72.0")
+    saves = RowSaves(page)
+    # Hold the first save's answer until the typing below is done (Playwright's Route: a
+    # request routed to a handler waits until it is continued).
+    held: list[Route] = []
+
+    def hold(route: Route) -> None:
+        held.append(route)
+
+    page.route(f"**/plan/initiatives/{gangway}", hold)
+    page.locator(f"#value-{gangway}").fill("31")
+    page.locator(f"#value-{gangway}").press("Enter")
+    page.locator(f"#value-{buoy}").fill("50")
+    page.locator(f"#value-{buoy}").press("Tab")  # left: saved once the plan has settled
+    page.locator(f"#value-{gangway}").fill("32")  # typed after its row's save was sent
+    assert len(held) == 1, "the first save is held, not answered"
+    held[0].continue_()
+    page.unroute(f"**/plan/initiatives/{gangway}")
+    expect(page.locator("#total-value")).to_have_attribute("value", "81.0")  # 31 + 50
+    expect(page.locator(f"#value-{buoy}")).to_have_value("50")
+    expect(page.locator(f"#value-{gangway}")).to_have_value("32")
+    expect(page.locator(f"#value-{gangway}")).to_be_focused()
+    page.locator(f"#value-{gangway}").press("Enter")
+    expect(page.locator("#total-value")).to_have_attribute("value", "82.0")  # 32 + 50
+    expect(page.locator(".conflict")).to_have_count(0)
+    assert saves.statuses == [200, 200, 200]
+    assert saves.values("value") == [(gangway, "31"), (buoy, "50"), (gangway, "32")]
 
 
 @pytest.mark.browser
