@@ -182,7 +182,8 @@ def run_forward(
                     )
                     packed_to += filled
                     filled = 0
-        if stop_value is not None and row[min(stop_units, reach)] >= stop_value:
+        # Below stop_units the row cannot hold a plan of that many units yet: nothing to check.
+        if stop_value is not None and reach >= stop_units and row.item(stop_units) >= stop_value:
             applied = s + 1
             break
     if block is not None and filled:
