@@ -46,7 +46,7 @@ def units_up_many(days: Sequence[float], resolution: float) -> tuple[int, ...]:
     if q.size == 0:
         return ()
     if float(q.max()) >= _EXACT_FLOAT_LIMIT:
-        return tuple(units_up(d, resolution) for d in days)
+        return tuple(units_up(d, resolution) for d in np.asarray(days, dtype=np.float64).tolist())
     nearest = np.rint(q)
     whole = np.abs(q - nearest) <= _REL_TOL * np.maximum(1.0, np.abs(q))
     return tuple(np.where(whole, nearest, np.ceil(q)).astype(np.int64).tolist())

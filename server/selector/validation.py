@@ -175,6 +175,9 @@ class _Columns:
     ruled_out: set[int]
     needs: list[tuple[int, ...]]
     group_of: list[str | None]
+    keys: tuple[str, ...]
+    effort_array: np.ndarray  # the same efforts and values as float64 arrays
+    value_array: np.ndarray
 
 
 _PLAIN_NUMBERS = {int, float}
@@ -184,7 +187,8 @@ def _columns_fast(items: Sequence[Item]) -> _Columns | None:
     """Check the common case column by column in C-level loops; None means look closer."""
     count = len(items)
     if count == 0:
-        return _Columns([], [], set(), set(), [], [])
+        empty = np.zeros(0)
+        return _Columns([], [], set(), set(), [], [], (), empty, empty)
     if set(map(type, items)) != {Item}:
         return None
     # One comprehension per field is several times faster than transposing attrgetter rows.
@@ -225,7 +229,15 @@ def _columns_fast(items: Sequence[Item]) -> _Columns | None:
         for position in compress(range(count), [name is not None for name in sets]):
             group_of[position] = _check_either_or(items[position])
     return _Columns(
-        effort_array.tolist(), value_array.tolist(), pinned, ruled_out, need_lists, group_of
+        effort_array.tolist(),
+        value_array.tolist(),
+        pinned,
+        ruled_out,
+        need_lists,
+        group_of,
+        tuple(keys),
+        effort_array,
+        value_array,
     )
 
 
@@ -274,16 +286,25 @@ def _columns_checked(items: Sequence[Item]) -> _Columns:
             raise SelectorInputError.for_item(
                 item.key, "pinned", "and ruled_out are both set; choose one"
             )
-    return _Columns(efforts, values, pinned, ruled_out, needs, group_of)
+    return _Columns(
+        efforts,
+        values,
+        pinned,
+        ruled_out,
+        needs,
+        group_of,
+        tuple(index),
+        np.asarray(efforts, dtype=np.float64),
+        np.asarray(values, dtype=np.float64),
+    )
 
 
-def _check_absurd(
-    items: Sequence[Item], efforts: list[float], values: list[float], resolution: float
-) -> None:
-    steps = np.asarray(efforts, dtype=np.float64) / resolution
+def _check_absurd(items: Sequence[Item], columns: _Columns, resolution: float) -> None:
+    efforts, values = columns.efforts, columns.values
+    steps = columns.effort_array / resolution
     for column, limit, field, what in (
         (steps, MAX_EFFORT_UNITS, "effort", f"resolution steps of {resolution:g} days"),
-        (np.asarray(values, dtype=np.float64), MAX_VALUE, "value", "as a value score"),
+        (columns.value_array, MAX_VALUE, "value", "as a value score"),
     ):
         over = np.flatnonzero(~(column <= limit))
         if over.size:
@@ -331,9 +352,9 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
     efforts, values = columns.efforts, columns.values
     pinned, ruled_out = columns.pinned, columns.ruled_out
     needs, group_of = columns.needs, columns.group_of
-    _check_absurd(problem.items, efforts, values, resolution)
-    units = units_up_many(efforts, resolution)
-    keys = tuple(item.key for item in items)
+    _check_absurd(problem.items, columns, resolution)
+    units = units_up_many(columns.effort_array, resolution)
+    keys = columns.keys
     cycle = find_needs_cycle(keys, needs) if any(needs) else None
     if cycle is not None:
         raise SelectorInputError(
