@@ -142,6 +142,8 @@ def _check_sets(
     ruled_out: frozenset[int],
 ) -> dict[str, tuple[int, ...]]:
     members: dict[str, list[int]] = {}
+    if group_of.count(None) == len(group_of):
+        return {}  # no either-or sets: the common case, without a loop over every item
     for position, name in enumerate(group_of):
         if name is not None:
             members.setdefault(name, []).append(position)
@@ -384,6 +386,8 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
 def rounded_up_keys(checked: CheckedProblem) -> tuple[str, ...]:
     """Keys whose effort was not already a whole number of resolution steps."""
     exact = multiples(checked.efforts, checked.resolution)
+    if all(exact):
+        return ()
     return tuple(key for key, whole in zip(checked.keys, exact, strict=True) if not whole)
 
 
