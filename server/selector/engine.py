@@ -165,19 +165,22 @@ def _run_rows(
     capacity = base.free_capacity
     low = 0
     stop = None
-    if allow_reduction and not sets and width == capacity + 1 and free:
+    plan_only = allow_reduction and not sets and width == capacity + 1 and bool(free)
+    if plan_only:
+        fullest = _try_fullest(prepared, base, free, capacity, [], "", budget_bytes)
+        if fullest is not None:
+            return fullest  # every value in proportion: the LP bound cannot fix anything
         fixed_in, free, capacity, reduction_note = _reduce(prepared, free, capacity)
         width = capacity + 1
+        # The core the bound leaves can be proportional even when the whole problem is not.
+        fullest = _try_fullest(
+            prepared, base, free, capacity, fixed_in, reduction_note, budget_bytes
+        )
+        if fullest is not None:
+            return fullest
     layout = step_groups(free, sets)
     steps = dp.make_steps(layout, list(units), prepared.scaled)
     _check_cells(steps.members, width)
-    if (
-        allow_reduction
-        and not sets
-        and proportional(steps.units, steps.values)
-        and dp.table_bytes(steps.members, width) <= budget_bytes
-    ):
-        return _run_fullest(prepared, base, steps, capacity, fixed_in, reduction_note)
     if allow_reduction and not sets:
         bounds = core_bounds(steps.units, steps.values, capacity, integral=prepared.integral)
         low = bounds.low
@@ -207,26 +210,32 @@ def _run_rows(
     )
 
 
-def _run_fullest(
+def _try_fullest(
     prepared: Prepared,
     base: Outcome,
-    steps: dp.Steps,
+    free: list[int],
     capacity: int,
     fixed_in: list[int],
     reduction_note: str,
-) -> Outcome:
-    """Every value the same multiple of its effort: the fullest plan, from reachable totals."""
-    fullest = solve_fullest(steps.units, capacity)
-    chosen = tuple(
-        sorted([*base.decided.in_plan, *fixed_in, *(steps.ids[m] for m in fullest.taken)])
-    )
+    budget_bytes: int,
+) -> Outcome | None:
+    """The fullest plan when every free value is the same multiple of its effort, else None."""
+    units = prepared.checked.units
+    member_units = [units[i] for i in free]
+    if not proportional(member_units, prepared.scaled[free] if free else prepared.scaled[:0]):
+        return None
+    if dp.table_bytes(len(free), capacity + 1) > budget_bytes:
+        return None
+    _check_cells(len(free), capacity + 1)
+    fullest = solve_fullest(member_units, capacity)
+    chosen = tuple(sorted([*base.decided.in_plan, *fixed_in, *(free[m] for m in fullest.taken)]))
     note = (
         "every value score is the same multiple of its effort, so the best plan is the "
-        f"fullest: {steps.members} initiatives x {capacity + 1:,} capacity units of "
-        f"reachable-total bits ({dp.table_bytes(steps.members, capacity + 1) / 1024:,.1f} KiB)"
+        f"fullest: {len(free)} initiatives x {capacity + 1:,} capacity units of "
+        f"reachable-total bits ({dp.table_bytes(len(free), capacity + 1) / 1024:,.1f} KiB)"
     )
-    if fullest.applied < steps.count:
-        note += f"; stopped after {fullest.applied} of {steps.count} steps: the capacity is full"
+    if fullest.applied < len(free):
+        note += f"; stopped after {fullest.applied} of {len(free)} steps: the capacity is full"
     return replace(
         base,
         chosen=chosen,

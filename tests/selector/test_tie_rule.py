@@ -72,10 +72,11 @@ def test_identical_problems_built_separately_give_equal_results() -> None:
 
 
 def test_surplus_initiatives_of_one_effort_are_cut_without_changing_the_plan() -> None:
-    # 30 equal initiatives of 1 day and 10 of 2 days compete for 10 days: the bound cannot
-    # tell them apart, but only 10 of the 1-day ones can ever be in, and the earlier win ties.
+    # 30 equal initiatives of 1 day compete for 10 days with 10 slightly worse ones of 2 days:
+    # the bound rules the 2-day ones out but cannot tell the 1-day ones apart; only 10 of
+    # those can ever be in, and the earlier win ties.
     items = tuple(Item(f"i{k:02d}", 1, 5) for k in range(30)) + tuple(
-        Item(f"j{k}", 2, 10) for k in range(10)
+        Item(f"j{k}", 2, 9.9) for k in range(10)
     )
     problem = Problem(items, 10, resolution=1)
     cut = solve(problem)
@@ -84,3 +85,8 @@ def test_surplus_initiatives_of_one_effort_are_cut_without_changing_the_plan() -
     assert cut.chosen == tuple(f"i{k:02d}" for k in range(10))
     assert "more left out" in cut.method_note
     assert cut.cells < full.cells
+    # With the 2-day ones worth exactly twice as much, every value is 5 per day: the fullest
+    # plan, by the same tie rule.
+    same_ratio = Problem(items[:30] + tuple(Item(f"j{k}", 2, 10) for k in range(10)), 10, 1)
+    assert solve(same_ratio).method == "dp-subset-sum"
+    assert solve(same_ratio).chosen == solve(same_ratio, curve_to=10).chosen == cut.chosen
