@@ -145,8 +145,8 @@ def run_forward(
     stop_units = min(stop.units, top) if stop is not None else 0
     applied = last
     for s in range(first, last):
-        start, stop = bounds[s], bounds[s + 1]
-        if stop - start == 1:
+        start, end_member = bounds[s], bounds[s + 1]
+        if end_member - start == 1:
             source = row
         else:
             if reach < top:
@@ -154,7 +154,7 @@ def run_forward(
                 reach = top
             source = row.copy()
         lowest = 0 if after is None else low - after[s - first]
-        for m in range(start, stop):
+        for m in range(start, end_member):
             w = units[m]
             if w <= top:
                 end = reach + w + 1

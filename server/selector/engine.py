@@ -172,12 +172,13 @@ def _run_rows(
             return fullest  # every value in proportion: the LP bound cannot fix anything
         fixed_in, free, capacity, reduction_note = _reduce(prepared, free, capacity)
         width = capacity + 1
-        # The core the bound leaves can be proportional even when the whole problem is not.
-        fullest = _try_fullest(
-            prepared, base, free, capacity, fixed_in, reduction_note, budget_bytes
-        )
-        if fullest is not None:
-            return fullest
+        if reduction_note:
+            # The core the bound leaves can be proportional even when the whole problem is not.
+            fullest = _try_fullest(
+                prepared, base, free, capacity, fixed_in, reduction_note, budget_bytes
+            )
+            if fullest is not None:
+                return fullest
     layout = step_groups(free, sets)
     steps = dp.make_steps(layout, list(units), prepared.scaled)
     _check_cells(steps.members, width)
@@ -222,7 +223,7 @@ def _try_fullest(
     """The fullest plan when every free value is the same multiple of its effort, else None."""
     units = prepared.checked.units
     member_units = [units[i] for i in free]
-    if not proportional(member_units, prepared.scaled[free] if free else prepared.scaled[:0]):
+    if not proportional(member_units, prepared.scaled[free]):
         return None
     if dp.table_bytes(len(free), capacity + 1) > budget_bytes:
         return None

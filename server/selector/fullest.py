@@ -22,10 +22,9 @@ import numpy as np
 
 @dataclass(frozen=True)
 class Fullest:
-    """Members taken (step order), the units they use, DP cells, steps applied."""
+    """Members taken (step order), DP cells, steps applied."""
 
     taken: list[int]
-    used: int
     cells: int
     applied: int
 
@@ -61,12 +60,11 @@ def solve_fullest(units: Sequence[int], capacity: int) -> Fullest:
             if reach & goal:
                 applied = step + 1
                 break
-    used = reach.bit_length() - 1
     taken: list[int] = []
-    c = used
+    c = reach.bit_length() - 1  # the fullest reachable total
     for step in range(applied - 1, -1, -1):
         if not (before[step] >> c) & 1:
             taken.append(step)
             c -= units[step]
     taken.reverse()
-    return Fullest(taken, used, cells, applied)
+    return Fullest(taken, cells, applied)
