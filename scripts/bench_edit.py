@@ -28,12 +28,15 @@ import os
 import random
 import re
 import statistics
+import sys
 import tempfile
 import time
-from typing import Any
+from pathlib import Path
 
 from fastapi.testclient import TestClient
 from sqlmodel import Session
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from server import migrate
 from server.access import SESSION_COOKIE
@@ -54,6 +57,7 @@ from server.store.initiatives import create_initiative, update_initiative
 from server.store.periods import create_period, set_capacity_settings
 from server.store.teams import create_member, create_team
 from server.store.users import create_user, start_session
+from tests.served import as_served  # as uvicorn runs it: each render is freed, not cycled
 
 TARGET_P95_MS = 100.0
 _CSRF = re.compile(r'<meta name="csrf-token" content="([0-9a-f]+)">')
@@ -107,24 +111,6 @@ def build(session: Session, count: int, rng: random.Random) -> tuple[int, int, l
         ids.append(record.row.id or 0)
     session.commit()
     return team.id or 0, period.id or 0, ids
-
-
-def as_served(app: Any) -> Any:
-    """The app as uvicorn runs it: without the test client's "http.response.debug" extension.
-
-    With that extension every template response also sends its template and whole context to
-    the test client, which keeps them in a reference cycle: the plan of every edit would wait
-    for the garbage collector, which is not what a served edit costs.
-    """
-
-    async def served(scope: dict[str, Any], receive: Any, send: Any) -> None:
-        if scope.get("type") == "http" and "http.response.debug" in scope.get("extensions", {}):
-            extensions = dict(scope["extensions"])
-            del extensions["http.response.debug"]
-            scope = {**scope, "extensions": extensions}
-        await app(scope, receive, send)
-
-    return served
 
 
 def main() -> None:
