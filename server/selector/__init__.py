@@ -20,7 +20,8 @@ Rounding: efforts are rounded UP and the capacity DOWN to the resolution (defaul
 so a plan called feasible is feasible in real days; Selection.rounding reports it.
 
 Methods (Selection.method): "dp" (0/1 knapsack DP with a bit-packed decision table, after an
-exact bound-based reduction when only the plan is asked), "dp-multiple-choice" (either-or
+exact bound-based reduction when only the plan is asked; a run of twins is one bounded step
+of 1, 2, 4, ... twins at a time, see twins.py), "dp-multiple-choice" (either-or
 sets), "dp-needs-forest" (each initiative needs at most one other), "dp-divide-and-conquer"
 (when the decision table would exceed the memory budget), "dp-subset-sum" (every value the
 same multiple of its effort, plan only: the fullest plan, from bitsets of reachable totals),
@@ -29,11 +30,14 @@ same multiple of its effort, plan only: the fullest plan, from bitsets of reacha
 
 Tie rule: among plans of equal best value, the one with the least effort in resolution units
 wins; among those, the one that leaves out the initiative latest in processing order where
-they differ (counting from the end). Processing order is input order, except that an
-either-or set is processed where its first member stands, and with needs, each initiative
-comes after everything that needs it. The binary-program methods keep the first two parts
-(best value, then least effort) and HiGHS's deterministic choice for the rest. Value scores
-with up to six decimals are compared exactly (scaled to integers).
+they differ (counting from the end). Processing order is input order, except that a twin
+(an undecided initiative with the same effort in units and the same value as an earlier one
+outside either-or sets) is processed right after the first of its twins, so earlier twins
+are taken first; an either-or set is processed where its first member stands; and with
+needs, each initiative comes after everything that needs it. The binary-program methods
+keep the first two parts (best value, then least effort) and HiGHS's deterministic choice
+for the rest. Value scores with up to six decimals are compared exactly (scaled to
+integers).
 
 Marks: pinned initiatives are always in, and so is everything they need (reported in
 Selection.forced_by_needs); ruled-out ones are never in, nor is anything needing them;

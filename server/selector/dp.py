@@ -12,6 +12,7 @@ reaching that value (least effort in units), and a member is taken only when tak
 strictly better than not, with later members of a set beating earlier ones only when strictly
 better. So among equally good plans of equal effort, the one that leaves out the initiative
 latest in step order (where two plans first differ, counting from the end) is returned.
+Step order is the caller's processing order (see the package docstring and twins.py).
 With integer-scaled values (see rounding.scale_values) every comparison is exact.
 """
 
@@ -266,8 +267,11 @@ def solve_steps(
     *,
     low: int = 0,
     stop: StopRule | None = None,
+    rows: str = "",
 ) -> DpResult:
     """Best plan within capacity units, with the last row computed over width capacities.
+
+    rows says in words what the steps' members are (default: that many initiatives).
 
     low > 0 promises that no best plan uses fewer units (see reduction.core_bounds);
     the returned row is then only valid from low up. A stop rule may end the pass early
@@ -286,7 +290,7 @@ def solve_steps(
         start = least_effort_capacity(row, capacity, low)
         taken, _ = backtrack(steps, table, start, last=applied, reach=reach)
         note = (
-            f"{steps.members} initiatives x {width:,} capacity units; decision table "
+            f"{rows or f'{steps.members} initiatives'} x {width:,} capacity units; decision table "
             f"{_mib(need)} within the {_mib(budget_bytes)} budget"
         )
         if applied < steps.count:

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from . import dp
+from . import dp, twins
 from .constraints import Decided
 from .errors import SelectorInputError
 from .fullest import proportional, solve_fullest
@@ -32,6 +33,7 @@ class Prepared:
     scaled: np.ndarray
     factor: float
     integral: bool  # DP values are whole numbers with exact sums (see rounding.ScaledValues)
+    units: np.ndarray = field(repr=False, compare=False)  # checked.units as int64
 
     def total(self, indices: list[int] | tuple[int, ...]) -> float:
         """Plan value of the given items, exact for integer-scaled values."""
@@ -64,7 +66,8 @@ def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
     """Validate problem and scale its values for the DP."""
     checked = check_problem(problem, allow_zero_capacity=allow_zero_capacity)
     scaled = scale_values(checked.values)
-    return Prepared(checked, scaled.values, scaled.factor, scaled.exact)
+    units = np.asarray(checked.units, dtype=np.int64)
+    return Prepared(checked, scaled.values, scaled.factor, scaled.exact, units)
 
 
 def run(
@@ -92,7 +95,11 @@ def run(
             False, decided.in_plan, "none", note, 0, in_units, free_capacity, None, decided
         )
     width = max(width, free_capacity + 1)
-    free = _fitting(decided, units, width)
+    fitting = _fitting(decided, prepared.units, width)
+    if not decided.free_needs and not checked.groups:
+        base = Outcome(True, (), "", "", 0, in_units, free_capacity, None, decided)
+        return _run_rows(prepared, base, fitting, [], width, budget_bytes, allow_reduction)
+    free = fitting.tolist()
     needs: dict[int, tuple[int, ...]] = {}
     sets: list[list[int]] = []
     if decided.free_needs or checked.groups:
@@ -111,7 +118,7 @@ def run(
         return _run_milp(prepared, base, free, needs, sets, why)
     if needs:
         return _run_forest(prepared, base, free, needs, width, budget_bytes)
-    return _run_rows(prepared, base, free, sets, width, budget_bytes, allow_reduction)
+    return _run_rows(prepared, base, fitting, sets, width, budget_bytes, allow_reduction)
 
 
 def _run_forest(
@@ -152,44 +159,54 @@ def _run_forest(
 def _run_rows(
     prepared: Prepared,
     base: Outcome,
-    free: list[int],
+    free: np.ndarray,
     sets: list[list[int]],
     width: int,
     budget_bytes: int,
     allow_reduction: bool,
 ) -> Outcome:
     """The plain or multiple-choice DP over rows of capacities, after exact reductions."""
-    units = prepared.checked.units
+    units = prepared.units
     fixed_in: list[int] = []
     reduction_note = ""
     capacity = base.free_capacity
     low = 0
     stop = None
-    plan_only = allow_reduction and not sets and width == capacity + 1 and bool(free)
-    if plan_only:
-        fullest = _try_fullest(prepared, base, free, capacity, [], "", budget_bytes)
-        if fullest is not None:
-            return fullest  # every value in proportion: the LP bound cannot fix anything
-        fixed_in, free, capacity, reduction_note = _reduce(prepared, free, capacity)
-        width = capacity + 1
-        if reduction_note:
-            # The core the bound leaves can be proportional even when the whole problem is not.
-            fullest = _try_fullest(
-                prepared, base, free, capacity, fixed_in, reduction_note, budget_bytes
-            )
+    layout: list[list[int]] | None = None
+    if sets:
+        layout = step_groups(free.tolist(), sets, units, prepared.scaled)
+        _check_cells(free.size, width)
+        bundled = twins.bundle(layout, units, prepared.scaled, width - 1, exact=prepared.integral)
+    else:
+        # Processing order (twins after the first of them), which the reductions keep.
+        core = twins.twins_first(free, units, prepared.scaled)
+        if allow_reduction and width == capacity + 1 and core.size:
+            fullest = _try_fullest(prepared, base, core, capacity, core[:0], "", budget_bytes)
             if fullest is not None:
-                return fullest
-    layout = step_groups(free, sets)
-    steps = dp.make_steps(layout, list(units), prepared.scaled)
-    _check_cells(steps.members, width)
+                return fullest  # every value in proportion: the LP bound cannot fix anything
+            fixed, core, capacity, reduction_note = _reduce(prepared, core, capacity)
+            fixed_in = fixed.tolist()
+            width = capacity + 1
+            if reduction_note:
+                # The core the bound leaves can be proportional when the whole problem is not.
+                fullest = _try_fullest(
+                    prepared, base, core, capacity, fixed, reduction_note, budget_bytes
+                )
+                if fullest is not None:
+                    return fullest
+        _check_cells(core.size, width)
+        bundled = twins.bundle_items(
+            core, units, prepared.scaled, width - 1, exact=prepared.integral
+        )
+    steps = bundled.steps
     if allow_reduction and not sets:
         bounds = core_bounds(steps.units, steps.values, capacity, integral=prepared.integral)
         low = bounds.low
         stop = None if bounds.stop is None else dp.StopRule(*bounds.stop)
-    result = dp.solve_steps(steps, capacity, width, budget_bytes, low=low, stop=stop)
-    chosen = tuple(
-        sorted([*base.decided.in_plan, *fixed_in, *(steps.ids[m] for m in result.taken)])
+    result = dp.solve_steps(
+        steps, capacity, width, budget_bytes, low=low, stop=stop, rows=bundled.describe()
     )
+    chosen = _in_input_order(base, fixed_in, bundled.items(result.taken))
     if result.low_memory:
         method = "dp-divide-and-conquer"
     elif sets:
@@ -200,6 +217,8 @@ def _run_rows(
     if sets:
         note = f"{len(sets)} either-or sets as multiple-choice steps; " + note
     whole = not reduction_note and low == 0 and not result.stopped  # else exact only in part
+    if whole and layout is None:
+        layout = [[i] for i in core.tolist()]
     return replace(
         base,
         chosen=chosen,
@@ -214,29 +233,31 @@ def _run_rows(
 def _try_fullest(
     prepared: Prepared,
     base: Outcome,
-    free: list[int],
+    free: np.ndarray,
     capacity: int,
-    fixed_in: list[int],
+    fixed_in: np.ndarray,
     reduction_note: str,
     budget_bytes: int,
 ) -> Outcome | None:
     """The fullest plan when every free value is the same multiple of its effort, else None."""
-    units = prepared.checked.units
-    member_units = [units[i] for i in free]
-    if not proportional(member_units, prepared.scaled[free]):
+    if not proportional(prepared.units[free], prepared.scaled[free]):
         return None
-    if dp.table_bytes(len(free), capacity + 1) > budget_bytes:
+    bundled = twins.bundle_items(free, prepared.units, prepared.scaled, capacity, exact=True)
+    steps = bundled.steps
+    table = dp.table_bytes(steps.members, capacity + 1)
+    if table > budget_bytes:
         return None
-    _check_cells(len(free), capacity + 1)
-    fullest = solve_fullest(member_units, capacity)
-    chosen = tuple(sorted([*base.decided.in_plan, *fixed_in, *(free[m] for m in fullest.taken)]))
+    _check_cells(free.size, capacity + 1)
+    fullest = solve_fullest(steps.units, capacity)
+    chosen = _in_input_order(base, fixed_in, bundled.items(fullest.taken))
+    rows = bundled.describe() or f"{free.size} initiatives"
     note = (
         "every value score is the same multiple of its effort, so the best plan is the "
-        f"fullest: {len(free)} initiatives x {capacity + 1:,} capacity units of "
-        f"reachable-total bits ({dp.table_bytes(len(free), capacity + 1) / 1024:,.1f} KiB)"
+        f"fullest: {rows} x {capacity + 1:,} capacity units of reachable-total bits "
+        f"({table / 1024:,.1f} KiB)"
     )
-    if fullest.applied < len(free):
-        note += f"; stopped after {fullest.applied} of {len(free)} steps: the capacity is full"
+    if fullest.applied < steps.members:
+        note += f"; stopped after {fullest.applied} of {steps.members} steps: the capacity is full"
     return replace(
         base,
         chosen=chosen,
@@ -246,38 +267,49 @@ def _try_fullest(
     )
 
 
+def _in_input_order(base: Outcome, *parts: Sequence[int] | np.ndarray) -> tuple[int, ...]:
+    """The pinned-in items and the given parts of the plan, as one sorted tuple."""
+    merged = [*base.decided.in_plan]
+    for part in parts:
+        merged.extend(part.tolist() if isinstance(part, np.ndarray) else part)
+    return tuple(sorted(merged))
+
+
 def _reduce(
-    prepared: Prepared, free: list[int], capacity: int
-) -> tuple[list[int], list[int], int, str]:
-    """Apply the exact reductions; return fixed-in items, the rest, capacity left, a note."""
-    units = prepared.checked.units
-    fixed_in: list[int] = []
+    prepared: Prepared, free: np.ndarray, capacity: int
+) -> tuple[np.ndarray, np.ndarray, int, str]:
+    """Apply the exact reductions; return fixed-in items, the rest, capacity left, a note.
+
+    free and the rest are item indices in processing order, which the reductions keep.
+    """
+    units = prepared.units
+    fixed_in = free[:0]
     note = ""
-    reduced = reduce_by_bounds(
-        [units[i] for i in free], prepared.scaled[free], capacity, prepared.integral
-    )
+    reduced = reduce_by_bounds(units[free], prepared.scaled[free], capacity, prepared.integral)
     if reduced.fixed:
-        fixed_in = [free[k] for k in reduced.fixed_in]
-        capacity -= sum(units[i] for i in fixed_in)
-        free = [free[k] for k in reduced.free if units[free[k]] <= capacity]
+        fixed_in = free[reduced.fixed_in]
+        capacity -= int(units[fixed_in].sum())
+        free = free[reduced.free]
+        free = free[units[free] <= capacity]
         note = (
             f"; bound-based reduction fixed {reduced.fixed} of "
             f"{reduced.fixed + len(reduced.free)} initiatives first"
         )
-    kept = keep_by_effort([units[i] for i in free], prepared.scaled[free], capacity)
-    if len(kept) < len(free):
+    kept = keep_by_effort(units[free], prepared.scaled[free], capacity)
+    if kept.size < free.size:
         note += (
-            f"; {len(free) - len(kept)} more left out: more initiatives of the same "
+            f"; {free.size - kept.size} more left out: more initiatives of the same "
             "effort than the capacity holds, and better or earlier ones of it exist"
         )
-        free = [free[k] for k in kept]
+        free = free[kept]
     return fixed_in, free, capacity, note
 
 
-def _fitting(decided: Decided, units: tuple[int, ...], width: int) -> list[int]:
-    """Free items that fit in width - 1 units and need nothing that does not fit."""
+def _fitting(decided: Decided, units: np.ndarray, width: int) -> np.ndarray:
+    """Free items that fit in width - 1 units and need nothing that does not fit (indices)."""
+    free = np.asarray(decided.free, dtype=np.int64)
     if not decided.free_needs:
-        return [i for i in decided.free if units[i] < width]
+        return free[units[free] < width]
     dependents: dict[int, list[int]] = {}
     for child in decided.free:
         for parent in decided.free_needs.get(child, ()):
@@ -289,20 +321,30 @@ def _fitting(decided: Decided, units: tuple[int, ...], width: int) -> list[int]:
             if child not in dropped:
                 dropped.add(child)
                 stack.append(child)
-    return [i for i in decided.free if i not in dropped]
+    return free[np.asarray([i not in dropped for i in decided.free], dtype=np.bool_)]
 
 
-def step_groups(free: list[int], sets: list[list[int]]) -> list[list[int]]:
-    """One step per free initiative, or per either-or set at the place of its first member."""
+def step_groups(
+    free: list[int], sets: list[list[int]], units: np.ndarray, values: np.ndarray
+) -> list[list[int]]:
+    """DP steps in processing order with either-or sets: one per free initiative, each twin
+    (same units, same value) right after the first of them, and one per either-or set at the
+    place of its first member."""
     set_of = {}
     for members in sets:
         for i in members:
             set_of[i] = members
-    if not sets:
-        return [[i] for i in free]
+    singles = np.asarray([i for i in free if i not in set_of], dtype=np.int64)
+    after_first = twins.twins_first(singles, units, values).tolist()
+    # Each twin takes the place of the first of its twins; sort by that place, then its own.
+    place = {i: i for i in free}
+    for k, i in enumerate(after_first):
+        first = after_first[k - 1] if k else i
+        if k and units[first] == units[i] and values[first] == values[i]:
+            place[i] = place[first]
     groups: list[list[int]] = []
     placed: set[int] = set()
-    for i in free:
+    for i in sorted(free, key=lambda i: (place[i], i)):
         members = set_of.get(i)
         if members is None:
             groups.append([i])

@@ -13,7 +13,7 @@ later (smaller) position still refers to them, at most the forest's depth plus t
 The DP runs over the post-order front to back and the backtrack reads it back to front,
 leaving an initiative out whenever that is as good; so among equally good plans of equal
 effort, the one leaving out the initiative latest in that post-order wins (with no needs at
-all this is input order, the same rule as the plain DP).
+all this would be input order; the plain DP also moves twins up, see twins.py).
 """
 
 from __future__ import annotations

@@ -33,8 +33,8 @@ _INT32_MAX = 2**31 - 1
 class Reduction:
     """Positions (into the input lists) fixed in, and those still free, input order."""
 
-    fixed_in: list[int]
-    free: list[int]
+    fixed_in: np.ndarray  # int64 positions
+    free: np.ndarray
     fixed: int
 
 
@@ -45,8 +45,9 @@ def reduce_by_bounds(
     count = len(units)
     w = np.asarray(units, dtype=np.float64)
     v = np.asarray(values, dtype=np.float64)
+    everything = np.arange(count)
     if count == 0 or float(w.sum()) <= capacity:
-        return Reduction(list(range(count)), [], count)
+        return Reduction(everything, everything[:0], count)
     order = np.argsort(-(v / w), kind="stable")  # ties keep input order
     cumulative = np.cumsum(w[order])
     critical = int(np.searchsorted(cumulative, capacity, side="right"))
@@ -61,20 +62,20 @@ def reduce_by_bounds(
     decided = flipped < lower
     fixed_in = np.flatnonzero(decided & (d > 0))
     if float(w[fixed_in].sum()) > capacity:
-        return Reduction([], list(range(count)), 0)
+        return Reduction(everything[:0], everything, 0)
     free = np.flatnonzero(~decided)
-    return Reduction(fixed_in.tolist(), free.tolist(), count - len(free))
+    return Reduction(fixed_in, free, count - len(free))
 
 
-def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> list[int]:
+def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> np.ndarray:
     """Positions to keep: per effort w, the best floor(capacity / w) (earlier first on ties)."""
     count = len(units)
     if count == 0:
-        return []
+        return np.zeros(0, dtype=np.int64)
     w = np.asarray(units, dtype=np.int64)
     efforts, per_effort = np.unique(w, return_counts=True)
     if np.all(per_effort <= capacity // np.maximum(efforts, 1)):
-        return list(range(count))  # no effort has more initiatives than the capacity holds
+        return np.arange(count)  # no effort has more initiatives than the capacity holds
     v = np.asarray(values)
     if v.dtype == np.int32:
         # One stable sort on (effort, -value) packed into int64 keys: cheaper than a lexsort.
@@ -88,7 +89,7 @@ def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> l
     rank = np.arange(count) - starts[group]
     keep = np.zeros(count, dtype=np.bool_)
     keep[order] = rank < capacity // np.maximum(sorted_w, 1)
-    return np.flatnonzero(keep).tolist()
+    return np.flatnonzero(keep)
 
 
 def _greedy_value(w: np.ndarray, v: np.ndarray, capacity: int) -> float:

@@ -63,8 +63,11 @@ def brute_force(
 ) -> Reference:
     """Enumerate every subset (n <= 16); with tie_rule, pick as the selector documents.
 
-    The tie rule here is the plain one: best value, then least units, then the set that
-    leaves out the later item where two sets differ counting from the end of the input.
+    The tie rule here is the one for plain problems and marks: best value, then least units,
+    then the set that leaves out the later item where two sets differ, counting from the end
+    of the processing order. That order is the input order, except that a free initiative
+    with the same effort in units and the same value as an earlier free one (a twin) comes
+    right after the first of its twins.
     """
     items = problem.items
     n = len(items)
@@ -99,12 +102,34 @@ def brute_force(
     least = int(used[candidates].min())
     if tie_rule:
         candidates = candidates[used[candidates] == least]
-        # Reverse-lexicographic: a smaller mask, read from the highest bit, leaves later items out.
-        winner = int(candidates.min())
+        # Reverse-lexicographic in processing order: with each item's bit moved to its place in
+        # that order, a smaller mask, read from the highest bit, leaves later items out.
+        place = processing_places(problem, units, force_in, force_out)
+        reordered = (bits[candidates].astype(np.int64) << place).sum(axis=1)
+        winner = int(candidates[int(np.argmin(reordered))])
     else:
         winner = int(candidates[0])
     chosen = tuple(int(i) for i in np.flatnonzero(bits[winner]))
     return Reference(float(best), chosen, least)
+
+
+def processing_places(
+    problem: Problem, units: np.ndarray, force_in: Sequence[int], force_out: Sequence[int]
+) -> np.ndarray:
+    """Each item's place in the tie rule's processing order (see brute_force)."""
+    items = problem.items
+    first_twin: dict[tuple[int, float], int] = {}
+    anchors = []
+    for i, item in enumerate(items):
+        free = not (item.pinned or item.ruled_out or i in force_in or i in force_out)
+        if free:
+            anchors.append(first_twin.setdefault((int(units[i]), item.value), i))
+        else:
+            anchors.append(i)  # decided items are in every candidate or in none
+    order = sorted(range(len(items)), key=lambda i: (anchors[i], i))
+    place = np.empty(len(items), dtype=np.int64)
+    place[order] = np.arange(len(items))
+    return place
 
 
 def highs_reference(problem: Problem) -> Reference:

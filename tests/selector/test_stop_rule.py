@@ -61,12 +61,11 @@ def test_subset_sum_stops_once_the_capacity_is_filled_exactly() -> None:
 
 
 def test_stop_rule_ends_a_row_dp_pass_with_the_same_plan() -> None:
-    # Efforts 1-7 days, values within a point of the effort (after Pisinger's weakly
-    # correlated family): no fullest-plan shortcut, but once the early rows reach the LP
-    # bound the rest cannot change the plan.
-    items = tuple(
-        Item(f"i{k}", 1 + (k * 37) % 7, max(1, (k * 37) % 7 + (k * 11) % 3)) for k in range(600)
-    )
+    # Efforts 1-600 days, each once, values within a point of the effort (after Pisinger's
+    # weakly correlated family): no fullest-plan shortcut and no twins, but once the early
+    # rows reach the LP bound the rest cannot change the plan.
+    efforts = [1 + (k * 37) % 600 for k in range(600)]
+    items = tuple(Item(f"i{k}", e, max(1, e + (k * 11) % 3 - 1)) for k, e in enumerate(efforts))
     problem = Problem(items, 300, resolution=1)
     plain = solve(problem)
     full = solve(problem, curve_to=300)

@@ -1,0 +1,219 @@
+"""Twins: undecided initiatives outside either-or sets with the same effort in units and value.
+
+Twins are interchangeable in every plan. The processing order (the tie rule's order, see the
+package docstring) puts each twin right after the first of them, so among twins the earlier
+ones are taken first, and the DP takes a run of m twins as one bounded step made of 0/1
+pieces of 1, 2, 4, ... twins and a remainder, each worth that many times the effort and value.
+
+Why the plan is unchanged, tie rule included: the sums of distinct pieces are exactly the
+counts 0..m, so the row after the pieces is the row after the m single steps. At a
+capacity, the single steps' backtrack takes the least count k that reaches the best value, as
+the earliest k twins. The pieces' backtrack, from the remainder down to the piece of 1, takes
+a piece only when the pieces before it cannot reach that value, and the pieces before the one
+of 2^j make up exactly the counts 0..2^j - 1 (before the remainder r, 0..m - r, where
+m - r >= r - 1); so it ends at the same least k. A run of m twins then costs about log2(m)
+steps instead of m.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import dp
+
+# Runs shorter than this gain nothing from pieces (two twins are two pieces of one).
+_SHORTEST_RUN = 3
+
+
+def twins_first(items: np.ndarray, units: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Item indices in processing order: each twin moved up to follow the first of its twins."""
+    if items.size < 2:
+        return items
+    anchors = _anchors(units[items], values[items])
+    if anchors is None:
+        return items
+    return items[np.argsort(anchors, kind="stable")]
+
+
+def _anchors(units: np.ndarray, values: np.ndarray) -> np.ndarray | None:
+    """Per position, the position of the first twin of its initiative; None: no twins at all."""
+    if values.dtype.kind in "iu" and int(values.min()) >= 0 and int(units.max()) < 2**31:
+        keys = (units << 32) | values.astype(np.int64)
+        _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
+    else:
+        pairs = np.column_stack([units.astype(np.float64), values.astype(np.float64)])
+        _, first, inverse = np.unique(pairs, axis=0, return_index=True, return_inverse=True)
+    if first.size == units.size:
+        return None
+    return first[inverse.reshape(-1)]
+
+
+@dataclass(frozen=True)
+class Bundled:
+    """DP steps with runs of twins as pieces, and what each piece stands for.
+
+    runs holds the twins of each run in processing order; pieces maps a member of steps to
+    (run number, count): the run it belongs to and how many twins it is worth.
+    """
+
+    steps: dp.Steps
+    runs: list[list[int]]
+    pieces: dict[int, tuple[int, int]]
+
+    def describe(self) -> str:
+        """The DP's rows in words when runs of twins became pieces, else empty."""
+        if not self.pieces:
+            return ""
+        twins = sum(map(len, self.runs))
+        singles = self.steps.members - len(self.pieces)
+        return (
+            f"{singles + twins} initiatives as {self.steps.members} decision rows ({twins} "
+            f"twins of equal effort and value in {len(self.runs)} runs, taken 1, 2, 4, ... "
+            "at a time)"
+        )
+
+    def items(self, taken: Sequence[int]) -> list[int]:
+        """The initiatives behind the members taken: for a run, its first twins by count."""
+        ids = self.steps.ids
+        if not self.pieces:
+            return [ids[m] for m in taken]
+        counts = [0] * len(self.runs)
+        chosen: list[int] = []
+        for m in taken:
+            piece = self.pieces.get(m)
+            if piece is None:
+                chosen.append(ids[m])
+            else:
+                counts[piece[0]] += piece[1]
+        for run, count in zip(self.runs, counts, strict=True):
+            chosen.extend(run[:count])
+        return chosen
+
+
+def bundle_items(
+    items: np.ndarray, units: np.ndarray, values: np.ndarray, top: int, *, exact: bool
+) -> Bundled:
+    """Steps of one initiative each (item indices, processing order), runs of twins as pieces.
+
+    top is the largest capacity in the DP: no more than top // w twins of w units can be
+    taken, so a run is cut to that many. exact says the values are whole numbers whose sums
+    are exact (a piece's value must equal the sum of its twins' values); otherwise every
+    initiative stays a step of its own.
+    """
+    u = units[items]
+    v = values[items]
+    spans = _runs(u, v) if exact else []
+    if not spans:
+        steps = dp.Steps(tuple(items.tolist()), tuple(u.tolist()), v, tuple(range(items.size + 1)))
+        return Bundled(steps, [], {})
+    item_list, unit_list, value_list = items.tolist(), u.tolist(), v.tolist()
+    ids: list[int] = []
+    member_units: list[int] = []
+    member_values: list[int] = []
+    runs: list[list[int]] = []
+    pieces: dict[int, tuple[int, int]] = {}
+    done = 0  # positions placed so far
+    for start, end in spans:
+        ids += item_list[done:start]
+        member_units += unit_list[done:start]
+        member_values += value_list[done:start]
+        w, value = unit_list[start], value_list[start]
+        for size in _piece_sizes(min(end - start, top // w)):
+            pieces[len(ids)] = (len(runs), size)
+            ids.append(item_list[start])
+            member_units.append(size * w)
+            member_values.append(size * value)
+        runs.append(item_list[start:end])
+        done = end
+    ids += item_list[done:]
+    member_units += unit_list[done:]
+    member_values += value_list[done:]
+    steps = dp.Steps(
+        ids=tuple(ids),
+        units=tuple(member_units),
+        values=np.asarray(member_values, dtype=values.dtype),
+        bounds=tuple(range(len(ids) + 1)),
+    )
+    return Bundled(steps, runs, pieces)
+
+
+def _runs(units: np.ndarray, values: np.ndarray) -> list[tuple[int, int]]:
+    """(start, end) positions of each run of at least _SHORTEST_RUN twins in a row."""
+    count = units.size
+    if count < _SHORTEST_RUN:
+        return []
+    same = (units[1:] == units[:-1]) & (values[1:] == values[:-1])
+    if not same.any():
+        return []
+    starts = np.flatnonzero(np.r_[True, ~same])
+    ends = np.r_[starts[1:], count]
+    long = (ends - starts) >= _SHORTEST_RUN
+    return list(zip(starts[long].tolist(), ends[long].tolist(), strict=True))
+
+
+def _piece_sizes(count: int) -> list[int]:
+    """1, 2, 4, ... and the remainder: sums of distinct sizes give every count 0..count."""
+    sizes: list[int] = []
+    size = 1
+    while count > 0:
+        sizes.append(min(size, count))
+        count -= sizes[-1]
+        size *= 2
+    return sizes
+
+
+def bundle(
+    layout: list[list[int]], units: np.ndarray, values: np.ndarray, top: int, *, exact: bool
+) -> Bundled:
+    """Steps for layout (processing order): either-or sets as they are, runs of twins among
+    the single steps as pieces (see bundle_items)."""
+    if all(len(group) == 1 for group in layout):
+        items = np.asarray([group[0] for group in layout], dtype=np.int64)
+        return bundle_items(items, units, values, top, exact=exact)
+    unit_list = units.tolist()
+    ids: list[int] = []
+    member_units: list[int] = []
+    member_values: list[int] = []
+    bounds = [0]
+    runs: list[list[int]] = []
+    pieces: dict[int, tuple[int, int]] = {}
+    s = 0
+    while s < len(layout):
+        end = s + 1
+        if exact and len(layout[s]) == 1:
+            first = layout[s][0]
+            while (
+                end < len(layout)
+                and len(layout[end]) == 1
+                and unit_list[layout[end][0]] == unit_list[first]
+                and values[layout[end][0]] == values[first]
+            ):
+                end += 1
+        if end - s >= _SHORTEST_RUN:
+            run = [group[0] for group in layout[s:end]]
+            w, v = unit_list[run[0]], values[run[0]]
+            for size in _piece_sizes(min(len(run), top // w)):
+                pieces[len(ids)] = (len(runs), size)
+                ids.append(run[0])
+                member_units.append(size * w)
+                member_values.append(size * v)
+                bounds.append(len(ids))
+            runs.append(run)
+        else:
+            for group in layout[s:end]:
+                for i in group:
+                    ids.append(i)
+                    member_units.append(unit_list[i])
+                    member_values.append(values[i])
+                bounds.append(len(ids))
+        s = end
+    steps = dp.Steps(
+        ids=tuple(ids),
+        units=tuple(member_units),
+        values=np.asarray(member_values, dtype=values.dtype),
+        bounds=tuple(bounds),
+    )
+    return Bundled(steps, runs, pieces)
