@@ -23,6 +23,9 @@ DEFAULT_MEMORY_BUDGET_BYTES = 256 * 2**20
 # A few seconds of DP work on a small machine (more with the low-memory method); larger grids
 # are refused with a message, not attempted.
 MAX_CELLS = 4 * 10**9
+# Below this many DP cells the pass costs about what the stop rule's bounds cost to compute
+# (tens of microseconds, scripts/bench_selector.py), so they are not computed.
+BOUNDS_MIN_CELLS = 100_000
 
 
 @dataclass(frozen=True)
@@ -66,8 +69,7 @@ def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
     """Validate problem and scale its values for the DP."""
     checked = check_problem(problem, allow_zero_capacity=allow_zero_capacity)
     scaled = scale_values(checked.values)
-    units = np.asarray(checked.units, dtype=np.int64)
-    return Prepared(checked, scaled.values, scaled.factor, scaled.exact, units)
+    return Prepared(checked, scaled.values, scaled.factor, scaled.exact, checked.unit_array)
 
 
 def run(
@@ -199,7 +201,7 @@ def _run_rows(
             core, units, prepared.scaled, width - 1, exact=prepared.integral
         )
     steps = bundled.steps
-    if allow_reduction and not sets:
+    if allow_reduction and not sets and steps.members * width >= BOUNDS_MIN_CELLS:
         bounds = core_bounds(steps.units, steps.values, capacity, integral=prepared.integral)
         low = bounds.low
         stop = None if bounds.stop is None else dp.StopRule(*bounds.stop)

@@ -73,7 +73,15 @@ def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> n
     if count == 0:
         return np.zeros(0, dtype=np.int64)
     w = np.asarray(units, dtype=np.int64)
-    efforts, per_effort = np.unique(w, return_counts=True)
+    most = int(w.max())
+    if count <= capacity // max(most, 1):
+        return np.arange(count)  # not even the largest effort has more than the capacity holds
+    if most <= 4 * count + 1024:
+        per_effort = np.bincount(w)
+        efforts = np.flatnonzero(per_effort)
+        per_effort = per_effort[efforts]
+    else:
+        efforts, per_effort = np.unique(w, return_counts=True)
     if np.all(per_effort <= capacity // np.maximum(efforts, 1)):
         return np.arange(count)  # no effort has more initiatives than the capacity holds
     v = np.asarray(values)

@@ -34,22 +34,18 @@ def units_down(days: float, resolution: float) -> int:
     return math.floor(q)
 
 
-def multiples(days: Sequence[float], resolution: float) -> list[bool]:
-    """For each entry, whether it is a whole number of resolution steps (vectorised)."""
-    q = np.asarray(days, dtype=np.float64) / resolution
-    return (np.abs(q - np.rint(q)) <= _REL_TOL * np.maximum(1.0, np.abs(q))).tolist()
+def units_up_array(days: np.ndarray, resolution: float) -> tuple[np.ndarray, np.ndarray]:
+    """units_up for many efforts at once (int64), and whether each was a whole number of steps.
 
-
-def units_up_many(days: Sequence[float], resolution: float) -> tuple[int, ...]:
-    """units_up for many efforts at once, exact Python ints even for huge efforts."""
+    For efforts below 2**53 units, where float64 holds every whole number exactly (the
+    validation refuses efforts far below that limit first).
+    """
     q = np.asarray(days, dtype=np.float64) / resolution
-    if q.size == 0:
-        return ()
-    if float(q.max()) >= _EXACT_FLOAT_LIMIT:
-        return tuple(units_up(d, resolution) for d in np.asarray(days, dtype=np.float64).tolist())
+    if q.size and float(q.max()) >= _EXACT_FLOAT_LIMIT:
+        raise ValueError("efforts must be below 2**53 resolution steps")
     nearest = np.rint(q)
     whole = np.abs(q - nearest) <= _REL_TOL * np.maximum(1.0, np.abs(q))
-    return tuple(np.where(whole, nearest, np.ceil(q)).astype(np.int64).tolist())
+    return np.where(whole, nearest, np.ceil(q)).astype(np.int64), whole
 
 
 @dataclass(frozen=True)

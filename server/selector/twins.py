@@ -32,20 +32,44 @@ def twins_first(items: np.ndarray, units: np.ndarray, values: np.ndarray) -> np.
     """Item indices in processing order: each twin moved up to follow the first of its twins."""
     if items.size < 2:
         return items
-    anchors = _anchors(units[items], values[items])
+    u, v = units[items], values[items]
+    if v.dtype.kind in "iu" and int(v.min()) >= 0 and int(u.max()) < 2**31:
+        return _twins_first_by_key(items, (u << 32) | v.astype(np.int64))
+    anchors = _anchors(u, v)
     if anchors is None:
         return items
     return items[np.argsort(anchors, kind="stable")]
 
 
+def _twins_first_by_key(items: np.ndarray, keys: np.ndarray) -> np.ndarray:
+    """twins_first for whole-number (units, value) packed into one int64 key per item.
+
+    One stable sort groups the twins (each group in position order); the groups are then
+    laid out by the position of their first twin without a second sort of all items.
+    """
+    order = np.argsort(keys, kind="stable")
+    ordered = keys[order]
+    starts = np.empty(keys.size, dtype=np.bool_)
+    starts[0] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=starts[1:])
+    if starts.all():
+        return items  # no twins
+    group_start = np.flatnonzero(starts)
+    sizes = np.diff(np.append(group_start, keys.size))
+    by_first = np.argsort(order[group_start])  # groups in order of their first twin
+    out_start = np.empty(group_start.size, dtype=np.int64)
+    out_start[by_first] = np.cumsum(sizes[by_first]) - sizes[by_first]
+    group = np.cumsum(starts) - 1
+    target = out_start[group] + (np.arange(keys.size) - group_start[group])
+    result = np.empty_like(items)
+    result[target] = items[order]
+    return result
+
+
 def _anchors(units: np.ndarray, values: np.ndarray) -> np.ndarray | None:
     """Per position, the position of the first twin of its initiative; None: no twins at all."""
-    if values.dtype.kind in "iu" and int(values.min()) >= 0 and int(units.max()) < 2**31:
-        keys = (units << 32) | values.astype(np.int64)
-        _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
-    else:
-        pairs = np.column_stack([units.astype(np.float64), values.astype(np.float64)])
-        _, first, inverse = np.unique(pairs, axis=0, return_index=True, return_inverse=True)
+    pairs = np.column_stack([units.astype(np.float64), values.astype(np.float64)])
+    _, first, inverse = np.unique(pairs, axis=0, return_index=True, return_inverse=True)
     if first.size == units.size:
         return None
     return first[inverse.reshape(-1)]
@@ -148,10 +172,12 @@ def _runs(units: np.ndarray, values: np.ndarray) -> list[tuple[int, int]]:
     same = (units[1:] == units[:-1]) & (values[1:] == values[:-1])
     if not same.any():
         return []
-    starts = np.flatnonzero(np.r_[True, ~same])
-    ends = np.r_[starts[1:], count]
-    long = (ends - starts) >= _SHORTEST_RUN
-    return list(zip(starts[long].tolist(), ends[long].tolist(), strict=True))
+    breaks = (np.flatnonzero(~same) + 1).tolist()
+    return [
+        (start, end)
+        for start, end in zip([0, *breaks], [*breaks, count], strict=True)
+        if end - start >= _SHORTEST_RUN
+    ]
 
 
 def _piece_sizes(count: int) -> list[int]:

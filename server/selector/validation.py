@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import numbers
 from collections.abc import Sequence
@@ -12,7 +13,7 @@ import numpy as np
 
 from .errors import SelectorInputError
 from .model import Item, Problem
-from .rounding import multiples, units_down, units_up_many
+from .rounding import units_down, units_up_array
 
 # A DP row of this many float64 cells is 80 MB; beyond it the input is refused as absurd.
 MAX_CAPACITY_UNITS = 10_000_000
@@ -38,6 +39,8 @@ class CheckedProblem:
     capacity: float
     resolution: float
     capacity_units: int
+    unit_array: np.ndarray = dataclasses.field(repr=False, compare=False)  # units as int64
+    rounded_up: tuple[int, ...] = ()  # items whose effort was not a whole number of steps
 
 
 def check_number(raw: object, *, key: str | None, field: str, allow_zero: bool = False) -> float:
@@ -355,7 +358,8 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
     pinned, ruled_out = columns.pinned, columns.ruled_out
     needs, group_of = columns.needs, columns.group_of
     _check_absurd(problem.items, columns, resolution)
-    units = units_up_many(columns.effort_array, resolution)
+    unit_array, whole = units_up_array(columns.effort_array, resolution)
+    units = tuple(unit_array.tolist())
     keys = columns.keys
     cycle = find_needs_cycle(keys, needs) if any(needs) else None
     if cycle is not None:
@@ -380,15 +384,14 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
         capacity=capacity,
         resolution=resolution,
         capacity_units=capacity_units,
+        unit_array=unit_array,
+        rounded_up=tuple(np.flatnonzero(~whole).tolist()),
     )
 
 
 def rounded_up_keys(checked: CheckedProblem) -> tuple[str, ...]:
     """Keys whose effort was not already a whole number of resolution steps."""
-    exact = multiples(checked.efforts, checked.resolution)
-    if all(exact):
-        return ()
-    return tuple(key for key, whole in zip(checked.keys, exact, strict=True) if not whole)
+    return tuple(checked.keys[i] for i in checked.rounded_up)
 
 
 def check_budget(memory_budget_bytes: object) -> int:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+import pytest
 from hypothesis import given, settings
 from selector_oracles import (
     brute_force,
@@ -15,7 +16,7 @@ from selector_oracles import (
 )
 from selector_strategies import problems
 
-from server.selector import Problem, Selection, solve
+from server.selector import Problem, Selection, engine, solve
 
 # derandomize keeps CI deterministic; deadline=None because HiGHS start-up varies.
 FEW = settings(max_examples=150, deadline=None, derandomize=True)
@@ -55,6 +56,10 @@ def _check_against_brute_force(problem: Problem, *, exact_tie_rule: bool) -> Non
 @given(problems(max_n=12))
 def test_plain_and_marks_match_brute_force_and_tie_rule(problem: Problem) -> None:
     _check_against_brute_force(problem, exact_tie_rule=True)
+    # Again with the stop rule's bounds computed for every DP, however small.
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(engine, "BOUNDS_MIN_CELLS", 0)
+        _check_against_brute_force(problem, exact_tie_rule=True)
 
 
 @FEW

@@ -8,11 +8,12 @@ full DP (a capacity curve keeps every step in the pass).
 
 from __future__ import annotations
 
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from selector_oracles import brute_force
 
-from server.selector import Item, Problem, default_curve_to, solve
+from server.selector import Item, Problem, default_curve_to, engine, solve
 
 
 @st.composite
@@ -35,9 +36,16 @@ def tie_heavy(draw: st.DrawFn) -> Problem:
 @given(tie_heavy())
 def test_stopped_plans_match_brute_force_and_the_full_dp(problem: Problem) -> None:
     reference = brute_force(problem)
+    expected = tuple(problem.items[i].key for i in reference.chosen)
     plain = solve(problem)
     assert plain.value == reference.value
-    assert tuple(plain.chosen) == tuple(problem.items[i].key for i in reference.chosen)
+    assert tuple(plain.chosen) == expected
+    # Small DPs skip the bounds; with the threshold at zero every pass computes them and
+    # may stop early, which must not change the plan.
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(engine, "BOUNDS_MIN_CELLS", 0)
+        bounded = solve(problem)
+    assert bounded.chosen == expected
     full = solve(problem, curve_to=default_curve_to(problem.capacity))
     assert full.chosen == plain.chosen
 
@@ -61,14 +69,15 @@ def test_subset_sum_stops_once_the_capacity_is_filled_exactly() -> None:
 
 
 def test_stop_rule_ends_a_row_dp_pass_with_the_same_plan() -> None:
-    # Efforts 1-600 days, each once, values within a point of the effort (after Pisinger's
-    # weakly correlated family): no fullest-plan shortcut and no twins, but once the early
-    # rows reach the LP bound the rest cannot change the plan.
-    efforts = [1 + (k * 37) % 600 for k in range(600)]
+    # Efforts 1-2,000 days, each once, values within a point of the effort (after Pisinger's
+    # weakly correlated family): no fullest-plan shortcut and no twins, and a core big
+    # enough for the bounds to be worth computing; once the early rows reach the LP bound
+    # the rest cannot change the plan.
+    efforts = [1 + (k * 37) % 2000 for k in range(2000)]
     items = tuple(Item(f"i{k}", e, max(1, e + (k * 11) % 3 - 1)) for k, e in enumerate(efforts))
-    problem = Problem(items, 300, resolution=1)
+    problem = Problem(items, 3000, resolution=1)
     plain = solve(problem)
-    full = solve(problem, curve_to=300)
+    full = solve(problem, curve_to=3000)
     assert plain.method == full.method == "dp"
     assert plain.chosen == full.chosen
     assert "stopped after" in plain.method_note

@@ -8,11 +8,12 @@ tie rule, and across every path (plan only, capacity curve, explanations, low me
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from selector_oracles import brute_force
 
-from server.selector import Item, Problem, default_curve_to, dp, solve, twins
+from server.selector import Item, Problem, default_curve_to, dp, engine, solve, twins
 from server.selector.engine import step_groups
 
 
@@ -89,6 +90,9 @@ def test_twin_heavy_plans_match_brute_force_and_the_tie_rule_on_every_path(
     assert solve(problem, curve_to=default_curve_to(problem.capacity)).chosen == expected
     assert solve(problem, explain=True).chosen == expected
     assert solve(problem, memory_budget_bytes=16).chosen == expected
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(engine, "BOUNDS_MIN_CELLS", 0)  # the stop rule's bounds on pieces too
+        assert solve(problem).chosen == expected
 
 
 @settings(max_examples=200, deadline=None, derandomize=True)
