@@ -63,12 +63,13 @@ class Outcome:
     row: np.ndarray | None  # last DP row over free capacity units 0..len-1
     decided: Decided
     layout: list[list[int]] | None = None  # DP steps (item indices) when the row DP ran whole
+    decision_rows: int = 0  # rows of the row DP's bit-packed decision table (twins as pieces)
 
 
 def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
     """Validate problem and scale its values for the DP."""
     checked = check_problem(problem, allow_zero_capacity=allow_zero_capacity)
-    scaled = scale_values(checked.values)
+    scaled = scale_values(checked.value_array)
     return Prepared(checked, scaled.values, scaled.factor, scaled.exact, checked.unit_array)
 
 
@@ -180,8 +181,7 @@ def _run_rows(
         _check_cells(free.size, width)
         bundled = twins.bundle(layout, units, prepared.scaled, width - 1, exact=prepared.integral)
     else:
-        # Processing order (twins after the first of them), which the reductions keep.
-        core = twins.twins_first(free, units, prepared.scaled)
+        core = free
         if allow_reduction and width == capacity + 1 and core.size:
             fullest = _try_fullest(prepared, base, core, capacity, core[:0], "", budget_bytes)
             if fullest is not None:
@@ -196,6 +196,11 @@ def _run_rows(
                 )
                 if fullest is not None:
                     return fullest
+        # Processing order (twins after the first of them) of what is left. The reductions
+        # keep or drop twins together (all but the last of a run when cut by effort), so this
+        # is the whole problem's processing order restricted to the core; and as they keep
+        # every optimal plan, the order they saw does not change the plan.
+        core = twins.twins_first(core, units, prepared.scaled)
         _check_cells(core.size, width)
         bundled = twins.bundle_items(
             core, units, prepared.scaled, width - 1, exact=prepared.integral
@@ -229,6 +234,7 @@ def _run_rows(
         cells=result.cells,
         row=result.row if whole else None,
         layout=layout if whole else None,
+        decision_rows=steps.members,
     )
 
 
@@ -244,6 +250,7 @@ def _try_fullest(
     """The fullest plan when every free value is the same multiple of its effort, else None."""
     if not proportional(prepared.units[free], prepared.scaled[free]):
         return None
+    free = twins.twins_first(free, prepared.units, prepared.scaled)  # processing order
     bundled = twins.bundle_items(free, prepared.units, prepared.scaled, capacity, exact=True)
     steps = bundled.steps
     table = dp.table_bytes(steps.members, capacity + 1)
@@ -282,7 +289,7 @@ def _reduce(
 ) -> tuple[np.ndarray, np.ndarray, int, str]:
     """Apply the exact reductions; return fixed-in items, the rest, capacity left, a note.
 
-    free and the rest are item indices in processing order, which the reductions keep.
+    free and the rest are item indices; the rest keep free's order.
     """
     units = prepared.units
     fixed_in = free[:0]

@@ -49,10 +49,11 @@ def reduce_by_bounds(
     if count == 0 or float(w.sum()) <= capacity:
         return Reduction(everything, everything[:0], count)
     order = np.argsort(-(v / w), kind="stable")  # ties keep input order
-    cumulative = np.cumsum(w[order])
+    w_order, v_order = w[order], v[order]
+    cumulative = np.cumsum(w_order)
     critical = int(np.searchsorted(cumulative, capacity, side="right"))
-    ratio = float(v[order[critical]] / w[order[critical]])
-    lower = _greedy_value(w[order], v[order], capacity)
+    ratio = float(v_order[critical] / w_order[critical])
+    lower = _greedy_value(w_order, v_order, capacity, cumulative)
     d = v - ratio * w
     upper = ratio * capacity + float(np.maximum(d, 0.0).sum())
     slack = _TOLERANCE * max(1.0, abs(upper))
@@ -100,13 +101,19 @@ def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> n
     return np.flatnonzero(keep)
 
 
-def _greedy_value(w: np.ndarray, v: np.ndarray, capacity: int) -> float:
-    """Value of the plan that takes initiatives in ratio order whenever they still fit."""
+def _greedy_value(
+    w: np.ndarray, v: np.ndarray, capacity: int, cumulative: np.ndarray | None = None
+) -> float:
+    """Value of the plan that takes initiatives in ratio order whenever they still fit.
+
+    cumulative, when given, is np.cumsum(w).
+    """
     left = float(capacity)
     total = 0.0
     # Take the leading run that fits in one vectorised step, then finish item by item, a
     # chunk at a time: the walk usually ends within a few items, once less than a unit is left.
-    cumulative = np.cumsum(w)
+    if cumulative is None:
+        cumulative = np.cumsum(w)
     run = int(np.searchsorted(cumulative, left, side="right"))
     if run:
         left -= float(cumulative[run - 1])
@@ -152,7 +159,7 @@ def core_bounds(
         return CoreBounds(int(w.sum()), None)  # the only best plan takes everything
     cumulative_w = np.cumsum(w)
     cumulative_v = np.cumsum(v)
-    lower = _greedy_value(w, v, capacity)
+    lower = _greedy_value(w, v, capacity, cumulative_w)
     needed = _least_units_worth(cumulative_w, cumulative_v, w, v, lower * (1 - _TOLERANCE))
     low = 0 if needed is None else max(0, min(capacity, math.floor(needed) - 1))
     if not integral:

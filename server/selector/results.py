@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import operator
 
 from .engine import Outcome, Prepared
 from .model import Curve, Explanation, Rounding, Selection
@@ -71,7 +72,7 @@ def assemble(
     """Turn an outcome into the public Selection."""
     checked = prepared.checked
     chosen = outcome.chosen
-    effort = math.fsum(checked.efforts[i] for i in chosen)
+    effort = math.fsum(checked.effort_array[list(chosen)].tolist())
     infeasibility = None
     excess = None
     if not outcome.feasible:
@@ -81,7 +82,7 @@ def assemble(
         curve = _curve(prepared, outcome, curve_units)
     return Selection(
         feasible=outcome.feasible,
-        chosen=tuple(checked.keys[i] for i in chosen),
+        chosen=_keys_of(checked, chosen),
         value=prepared.total(chosen),
         effort=effort,
         capacity=checked.capacity,
@@ -96,6 +97,13 @@ def assemble(
         cells=outcome.cells,
         forced_by_needs=tuple(checked.keys[i] for i in outcome.decided.forced_by_needs),
     )
+
+
+def _keys_of(checked: CheckedProblem, indices: tuple[int, ...]) -> tuple[str, ...]:
+    """The keys of the given items, in that order."""
+    if len(indices) < 2:
+        return tuple(checked.keys[i] for i in indices)
+    return operator.itemgetter(*indices)(checked.keys)
 
 
 def _curve(prepared: Prepared, outcome: Outcome, curve_units: int) -> Curve:

@@ -40,6 +40,8 @@ class CheckedProblem:
     resolution: float
     capacity_units: int
     unit_array: np.ndarray = dataclasses.field(repr=False, compare=False)  # units as int64
+    value_array: np.ndarray = dataclasses.field(repr=False, compare=False)  # values, float64
+    effort_array: np.ndarray = dataclasses.field(repr=False, compare=False)  # efforts, float64
     rounded_up: tuple[int, ...] = ()  # items whose effort was not a whole number of steps
 
 
@@ -385,6 +387,8 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
         resolution=resolution,
         capacity_units=capacity_units,
         unit_array=unit_array,
+        value_array=columns.value_array,
+        effort_array=columns.effort_array,
         rounded_up=tuple(np.flatnonzero(~whole).tolist()),
     )
 
