@@ -200,9 +200,8 @@ def _run_rows(
         # keep or drop twins together (all but the last of a run when cut by effort), so this
         # is the whole problem's processing order restricted to the core; and as they keep
         # every optimal plan, the order they saw does not change the plan.
-        core = twins.twins_first(core, units, prepared.scaled)
         _check_cells(core.size, width)
-        bundled = twins.bundle_items(
+        core, bundled = twins.ordered_steps(
             core, units, prepared.scaled, width - 1, exact=prepared.integral
         )
     steps = bundled.steps
@@ -250,8 +249,9 @@ def _try_fullest(
     """The fullest plan when every free value is the same multiple of its effort, else None."""
     if not proportional(prepared.units[free], prepared.scaled[free]):
         return None
-    free = twins.twins_first(free, prepared.units, prepared.scaled)  # processing order
-    bundled = twins.bundle_items(free, prepared.units, prepared.scaled, capacity, exact=True)
+    free, bundled = twins.ordered_steps(
+        free, prepared.units, prepared.scaled, capacity, exact=True
+    )  # processing order
     steps = bundled.steps
     table = dp.table_bytes(steps.members, capacity + 1)
     if table > budget_bytes:

@@ -33,6 +33,11 @@ def proportional(units: Sequence[int], values: np.ndarray) -> bool:
     """Whether every value is the same multiple of its units (whole-number int32 values)."""
     if len(units) == 0 or values.dtype != np.int32:
         return False
+    # Most problems are not proportional, and their first few initiatives already show it.
+    w0, v0 = int(units[0]), int(values[0])
+    for w, v in zip(np.asarray(units[1:8]).tolist(), values[1:8].tolist(), strict=True):
+        if v * w0 != w * v0:
+            return False
     w = np.asarray(units, dtype=np.int64)
     v = values.astype(np.int64)
     # Cross-multiplied: int32 values times efforts below 10**7 units stay far inside int64.

@@ -206,15 +206,19 @@ def _columns_fast(items: Sequence[Item]) -> _Columns | None:
     outs = [item.ruled_out for item in items]
     needs = [item.needs for item in items]
     sets = [item.either_or for item in items]
+    try:
+        blank_key = not all(map(str.strip, keys))  # TypeError for a key that is not text
+    except TypeError:
+        return None
     if (
-        set(map(type, keys)) != {str}
+        blank_key
         or len(set(keys)) != count
-        or not all(map(str.strip, keys))
         or not set(map(type, efforts)) <= _PLAIN_NUMBERS
         or not set(map(type, values)) <= _PLAIN_NUMBERS
         or set(map(type, pins)) != {bool}
         or set(map(type, outs)) != {bool}
-        or not set(map(type, needs)) <= {tuple, list}
+        # No needs at all (every one the empty tuple) is the common case, told in one pass.
+        or (needs.count(()) != count and not set(map(type, needs)) <= {tuple, list})
     ):
         return None
     effort_array = np.array(efforts, dtype=np.float64)

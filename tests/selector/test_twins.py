@@ -133,3 +133,28 @@ def test_a_thousand_twins_cost_a_handful_of_rows() -> None:
     assert full.curve is not None
     assert full.curve.values[:4] == (0.0, 2.0, 4.0, 6.0)
     assert solve(problem).chosen == full.chosen
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(
+    st.lists(st.tuples(st.integers(1, 6), st.integers(1, 7)), min_size=0, max_size=120),
+    st.integers(0, 60),
+)
+def test_the_one_pass_order_and_pieces_equal_the_two_step_ones(
+    pairs: list[tuple[int, int]], top: int
+) -> None:
+    # ordered_steps loops over the kinds when they are few and falls back to twins_first and
+    # bundle_items otherwise; either way the order and the steps must be theirs.
+    units = np.array([w for w, _ in pairs], dtype=np.int64)
+    values = np.array([v for _, v in pairs], dtype=np.int32)
+    items = np.arange(len(pairs), dtype=np.int64)[::-1].copy()  # not in position order
+    order, bundled = twins.ordered_steps(items, units, values, top, exact=True)
+    expected_order = twins.twins_first(items, units, values)
+    expected = twins.bundle_items(expected_order, units, values, top, exact=True)
+    assert order.tolist() == expected_order.tolist()
+    assert bundled.steps.ids == expected.steps.ids
+    assert bundled.steps.units == expected.steps.units
+    assert bundled.steps.values.tolist() == expected.steps.values.tolist()
+    assert bundled.steps.values.dtype == expected.steps.values.dtype
+    assert bundled.pieces == expected.pieces
+    assert bundled.runs == expected.runs
