@@ -294,7 +294,7 @@ def _reduce(
     units = prepared.units
     fixed_in = free[:0]
     note = ""
-    reduced = reduce_by_bounds(units[free], prepared.scaled[free], capacity, prepared.integral)
+    reduced = reduce_by_bounds(units[free], prepared.scaled[free], capacity)
     if reduced.fixed:
         fixed_in = free[reduced.fixed_in]
         capacity -= int(units[fixed_in].sum())

@@ -38,16 +38,13 @@ class Reduction:
     fixed: int
 
 
-def reduce_by_bounds(
-    units: Sequence[int], values: np.ndarray, capacity: int, integral: bool
-) -> Reduction:
+def reduce_by_bounds(units: Sequence[int], values: np.ndarray, capacity: int) -> Reduction:
     """Fix what the LP bound decides; the free rest goes to the DP with the capacity left."""
     count = len(units)
     w = np.asarray(units, dtype=np.float64)
     v = np.asarray(values, dtype=np.float64)
-    everything = np.arange(count)
     if count == 0 or float(w.sum()) <= capacity:
-        return Reduction(everything, everything[:0], count)
+        return Reduction(np.arange(count), np.arange(0), count)
     order = np.argsort(-(v / w), kind="stable")  # ties keep input order
     w_order, v_order = w[order], v[order]
     cumulative = np.cumsum(w_order)
@@ -57,13 +54,13 @@ def reduce_by_bounds(
     d = v - ratio * w
     upper = ratio * capacity + float(np.maximum(d, 0.0).sum())
     slack = _TOLERANCE * max(1.0, abs(upper))
-    flipped = upper - np.abs(d) + slack
-    if integral:
-        flipped = np.floor(flipped)
-    decided = flipped < lower
+    # Flipping an initiative bounds the plan by upper - |d| + slack; below lower it is decided.
+    # With whole-number values lower is whole, so rounding that bound down would decide the
+    # same initiatives: no rounding is needed.
+    decided = np.abs(d) > upper + slack - lower
     fixed_in = np.flatnonzero(decided & (d > 0))
     if float(w[fixed_in].sum()) > capacity:
-        return Reduction(everything[:0], everything, 0)
+        return Reduction(np.arange(0), np.arange(count), 0)
     free = np.flatnonzero(~decided)
     return Reduction(fixed_in, free, count - len(free))
 
