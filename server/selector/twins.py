@@ -75,33 +75,16 @@ def ordered_steps(
     kind_units = u[firsts].tolist()
     kind_values = v[firsts].tolist()
     processing: list[int] = []
-    ids: list[int] = []
-    member_units: list[int] = []
-    member_values: list[int] = []
-    runs: list[list[int]] = []
-    pieces: dict[int, tuple[int, int]] = {}
+    builder = _StepsBuilder()
     for k in kinds:
         members = sorted_items[bounds[k] : bounds[k + 1]]
         processing += members
         w, value = kind_units[k], kind_values[k]
         if len(members) < _SHORTEST_RUN:
-            ids += members
-            member_units += [w] * len(members)
-            member_values += [value] * len(members)
-            continue
-        for size in _piece_sizes(min(len(members), top // w)):
-            pieces[len(ids)] = (len(runs), size)
-            ids.append(members[0])
-            member_units.append(size * w)
-            member_values.append(size * value)
-        runs.append(members)
-    steps = dp.Steps(
-        ids=tuple(ids),
-        units=tuple(member_units),
-        values=np.asarray(member_values, dtype=values.dtype),
-        bounds=tuple(range(len(ids) + 1)),
-    )
-    return np.asarray(processing, dtype=np.int64), Bundled(steps, runs, pieces)
+            builder.add_singles(members, [w] * len(members), [value] * len(members))
+        else:
+            builder.add_run(members, w, value, top)
+    return np.asarray(processing, dtype=np.int64), builder.build(values.dtype)
 
 
 def _twins_first_by_key(items: np.ndarray, keys: np.ndarray) -> np.ndarray:
@@ -180,6 +163,48 @@ class Bundled:
         return chosen
 
 
+class _StepsBuilder:
+    """Collects DP steps in processing order: single initiatives, either-or sets and runs."""
+
+    def __init__(self) -> None:
+        self.ids: list[int] = []
+        self.units: list[int] = []
+        self.values: list[int] = []
+        self.bounds = [0]
+        self.runs: list[list[int]] = []
+        self.pieces: dict[int, tuple[int, int]] = {}
+
+    def add_step(self, ids: list[int], units: list[int], values: list[int]) -> None:
+        """One step whose members are ids (one initiative, or an either-or set)."""
+        self.ids += ids
+        self.units += units
+        self.values += values
+        self.bounds.append(len(self.ids))
+
+    def add_singles(self, ids: list[int], units: list[int], values: list[int]) -> None:
+        """A step for each of the initiatives ids."""
+        self.ids += ids
+        self.units += units
+        self.values += values
+        self.bounds += range(self.bounds[-1] + 1, len(self.ids) + 1)
+
+    def add_run(self, run: list[int], units: int, value: int, top: int) -> None:
+        """A run of twins (each of units and value) as pieces, cut to what top can hold."""
+        for size in _piece_sizes(min(len(run), top // units)):
+            self.pieces[len(self.ids)] = (len(self.runs), size)
+            self.add_step([run[0]], [size * units], [size * value])
+        self.runs.append(run)
+
+    def build(self, dtype: np.dtype) -> Bundled:
+        steps = dp.Steps(
+            ids=tuple(self.ids),
+            units=tuple(self.units),
+            values=np.asarray(self.values, dtype=dtype),
+            bounds=tuple(self.bounds),
+        )
+        return Bundled(steps, self.runs, self.pieces)
+
+
 def bundle_items(
     items: np.ndarray, units: np.ndarray, values: np.ndarray, top: int, *, exact: bool
 ) -> Bundled:
@@ -197,34 +222,14 @@ def bundle_items(
         steps = dp.Steps(tuple(items.tolist()), tuple(u.tolist()), v, tuple(range(items.size + 1)))
         return Bundled(steps, [], {})
     item_list, unit_list, value_list = items.tolist(), u.tolist(), v.tolist()
-    ids: list[int] = []
-    member_units: list[int] = []
-    member_values: list[int] = []
-    runs: list[list[int]] = []
-    pieces: dict[int, tuple[int, int]] = {}
+    builder = _StepsBuilder()
     done = 0  # positions placed so far
     for start, end in spans:
-        ids += item_list[done:start]
-        member_units += unit_list[done:start]
-        member_values += value_list[done:start]
-        w, value = unit_list[start], value_list[start]
-        for size in _piece_sizes(min(end - start, top // w)):
-            pieces[len(ids)] = (len(runs), size)
-            ids.append(item_list[start])
-            member_units.append(size * w)
-            member_values.append(size * value)
-        runs.append(item_list[start:end])
+        builder.add_singles(item_list[done:start], unit_list[done:start], value_list[done:start])
+        builder.add_run(item_list[start:end], unit_list[start], value_list[start], top)
         done = end
-    ids += item_list[done:]
-    member_units += unit_list[done:]
-    member_values += value_list[done:]
-    steps = dp.Steps(
-        ids=tuple(ids),
-        units=tuple(member_units),
-        values=np.asarray(member_values, dtype=values.dtype),
-        bounds=tuple(range(len(ids) + 1)),
-    )
-    return Bundled(steps, runs, pieces)
+    builder.add_singles(item_list[done:], unit_list[done:], value_list[done:])
+    return builder.build(values.dtype)
 
 
 def _runs(units: np.ndarray, values: np.ndarray) -> list[tuple[int, int]]:
@@ -263,12 +268,7 @@ def bundle(
         items = np.asarray([group[0] for group in layout], dtype=np.int64)
         return bundle_items(items, units, values, top, exact=exact)
     unit_list = units.tolist()
-    ids: list[int] = []
-    member_units: list[int] = []
-    member_values: list[int] = []
-    bounds = [0]
-    runs: list[list[int]] = []
-    pieces: dict[int, tuple[int, int]] = {}
+    builder = _StepsBuilder()
     s = 0
     while s < len(layout):
         end = s + 1
@@ -283,26 +283,9 @@ def bundle(
                 end += 1
         if end - s >= _SHORTEST_RUN:
             run = [group[0] for group in layout[s:end]]
-            w, v = unit_list[run[0]], values[run[0]]
-            for size in _piece_sizes(min(len(run), top // w)):
-                pieces[len(ids)] = (len(runs), size)
-                ids.append(run[0])
-                member_units.append(size * w)
-                member_values.append(size * v)
-                bounds.append(len(ids))
-            runs.append(run)
+            builder.add_run(run, unit_list[run[0]], values[run[0]], top)
         else:
             for group in layout[s:end]:
-                for i in group:
-                    ids.append(i)
-                    member_units.append(unit_list[i])
-                    member_values.append(values[i])
-                bounds.append(len(ids))
+                builder.add_step(group, [unit_list[i] for i in group], [values[i] for i in group])
         s = end
-    steps = dp.Steps(
-        ids=tuple(ids),
-        units=tuple(member_units),
-        values=np.asarray(member_values, dtype=values.dtype),
-        bounds=tuple(bounds),
-    )
-    return Bundled(steps, runs, pieces)
+    return builder.build(values.dtype)
