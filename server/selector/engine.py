@@ -316,7 +316,10 @@ def _reduce(
 
 def _fitting(decided: Decided, units: np.ndarray, width: int) -> np.ndarray:
     """Free items that fit in width - 1 units and need nothing that does not fit (indices)."""
-    free = np.asarray(decided.free, dtype=np.int64)
+    if len(decided.free) == units.size:  # nothing decided: free is every index, in order
+        free = np.arange(units.size)
+    else:
+        free = np.asarray(decided.free, dtype=np.int64)
     if not decided.free_needs:
         return free[units[free] < width]
     dependents: dict[int, list[int]] = {}
