@@ -196,10 +196,10 @@ def _run_rows(
                 )
                 if fullest is not None:
                     return fullest
-        # Processing order (twins after the first of them) of what is left. The reductions
-        # keep or drop twins together (all but the last of a run when cut by effort), so this
-        # is the whole problem's processing order restricted to the core; and as they keep
-        # every optimal plan, the order they saw does not change the plan.
+        # Processing order (twins after the first of them) of what is left. The LP bound fixes
+        # twins alike and the cut by effort keeps the earliest twins, so this is the whole
+        # problem's processing order restricted to the core; and as the reductions keep every
+        # optimal plan, the order they saw does not change the plan.
         _check_cells(core.size, width)
         core, bundled = twins.ordered_steps(
             core, units, prepared.scaled, width - 1, exact=prepared.integral

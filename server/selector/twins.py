@@ -51,32 +51,20 @@ def ordered_steps(
 ) -> tuple[np.ndarray, Bundled]:
     """twins_first(items, ...) and bundle_items of that order, in one pass where kinds are few."""
     u, v = units[items], values[items]
-    if not (exact and items.size >= _SHORTEST_RUN and v.dtype.kind in "iu"):
+    kinds = _few_kinds(u, v) if exact and items.size >= _SHORTEST_RUN else None
+    if kinds is None:
         order = twins_first(items, units, values)
         return order, bundle_items(order, units, values, top, exact=exact)
-    if int(v.min()) < 0 or int(u.max()) >= 2**31:
-        order = twins_first(items, units, values)
-        return order, bundle_items(order, units, values, top, exact=exact)
-    keys = (u << 32) | v.astype(np.int64)
-    by_key = np.argsort(keys, kind="stable")  # each kind's initiatives stay in input order
-    ordered = keys[by_key]
-    new_kind = np.empty(keys.size, dtype=np.bool_)
-    new_kind[0] = True
-    np.not_equal(ordered[1:], ordered[:-1], out=new_kind[1:])
-    starts = np.flatnonzero(new_kind)
-    if starts.size > _FEW_KINDS:
-        order = twins_first(items, units, values)
-        return order, bundle_items(order, units, values, top, exact=exact)
+    by_key, starts = kinds
     # Kinds in order of their first initiative: the processing order, kind by kind.
     firsts = by_key[starts]
-    kinds = np.argsort(firsts).tolist()
-    bounds = [*starts.tolist(), keys.size]
+    bounds = [*starts.tolist(), items.size]
     sorted_items = items[by_key].tolist()
     kind_units = u[firsts].tolist()
     kind_values = v[firsts].tolist()
     processing: list[int] = []
     builder = _StepsBuilder()
-    for k in kinds:
+    for k in np.argsort(firsts).tolist():
         members = sorted_items[bounds[k] : bounds[k + 1]]
         processing += members
         w, value = kind_units[k], kind_values[k]
@@ -85,6 +73,21 @@ def ordered_steps(
         else:
             builder.add_run(members, w, value, top)
     return np.asarray(processing, dtype=np.int64), builder.build(values.dtype)
+
+
+def _few_kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """Positions sorted by kind (input order within a kind) and where each kind starts, for
+    whole-number values and at most _FEW_KINDS kinds; else None."""
+    if values.dtype.kind not in "iu" or int(values.min()) < 0 or int(units.max()) >= 2**31:
+        return None
+    keys = (units << 32) | values.astype(np.int64)
+    by_key = np.argsort(keys, kind="stable")
+    ordered = keys[by_key]
+    new_kind = np.empty(keys.size, dtype=np.bool_)
+    new_kind[0] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=new_kind[1:])
+    starts = np.flatnonzero(new_kind)
+    return None if starts.size > _FEW_KINDS else (by_key, starts)
 
 
 def _twins_first_by_key(items: np.ndarray, keys: np.ndarray) -> np.ndarray:
