@@ -121,8 +121,6 @@ def run_forward(
       stop but never cause a wrong one.
     """
     last = steps.count if last is None else last
-    if table is not None and steps.bounds[last] - steps.bounds[first] == last - first:
-        return _forward_singles(steps, width, init, table, first, last, low, reach_out, stop)
     dtype = steps.values.dtype
     row = np.zeros(width, dtype=dtype) if init is None else init[:width].copy()
     cand_buf = np.empty(width, dtype=dtype)
@@ -190,75 +188,6 @@ def run_forward(
             applied = s + 1
             break
     if block is not None and filled:
-        table[packed_to : packed_to + filled] = np.packbits(
-            block[:filled], axis=1, bitorder="little"
-        )
-    if reach < top:
-        row[reach + 1 :] = row[reach]
-    return Forward(row, cells, applied)
-
-
-def _forward_singles(
-    steps: Steps,
-    width: int,
-    init: np.ndarray | None,
-    table: np.ndarray,
-    first: int,
-    last: int,
-    low: int,
-    reach_out: list[int] | None,
-    stop: StopRule | None,
-) -> Forward:
-    """run_forward for steps of one member each with a decision table: the same work and
-    results, in a loop with less bookkeeping per step (the common case)."""
-    row = np.zeros(width, dtype=steps.values.dtype) if init is None else init[:width].copy()
-    cand_buf = np.empty(width, dtype=row.dtype)
-    first_member = steps.bounds[first]
-    end_member = steps.bounds[last]
-    units = steps.units[first_member:end_member]
-    values = list(steps.values[first_member:end_member])  # numpy scalars: cheaper in ufuncs
-    top = width - 1
-    reach = 0 if init is None else top
-    after = _units_after(steps, first, last, top) if low > 0 else [0] * len(units)
-    lowest_at = [low - a for a in after] if low > 0 else after
-    reaches = [] if reach_out is None else reach_out
-    block_rows = max(1, min(len(units), _BLOCK_BYTES // max(width, 1)))
-    block = np.empty((block_rows, width), dtype=np.bool_)
-    slots = list(block)
-    filled = 0
-    packed_to = 0
-    cells = 0
-    add, greater, maximum = np.add, np.greater, np.maximum
-    stop_value = None if stop is None else stop.value
-    stop_units = 0 if stop is None else min(stop.units, top)
-    applied = last
-    for k, w in enumerate(units):
-        if w <= top:
-            end = reach + w + 1
-            if end > width:
-                end = width
-            if end > reach + 1:
-                row[reach + 1 : end] = row[reach]
-            lowest = lowest_at[k]
-            begin = w if w > lowest else lowest
-            if begin < end:
-                cand = cand_buf[: end - begin]
-                add(row[begin - w : end - w], values[k], out=cand)
-                target = row[begin:end]
-                greater(cand, target, out=slots[filled][begin:end])
-                maximum(target, cand, out=target)
-                cells += end - begin
-            reach = end - 1
-        reaches.append(reach)
-        filled += 1
-        if filled == block_rows:
-            table[packed_to : packed_to + filled] = np.packbits(block, axis=1, bitorder="little")
-            packed_to += filled
-            filled = 0
-        if stop_value is not None and reach >= stop_units and row.item(stop_units) >= stop_value:
-            applied = first + k + 1
-            break
-    if filled:
         table[packed_to : packed_to + filled] = np.packbits(
             block[:filled], axis=1, bitorder="little"
         )
