@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -36,7 +36,11 @@ class Prepared:
     scaled: np.ndarray
     factor: float
     integral: bool  # DP values are whole numbers with exact sums (see rounding.ScaledValues)
-    units: np.ndarray = field(repr=False, compare=False)  # checked.units as int64
+
+    @property
+    def units(self) -> np.ndarray:
+        """Efforts in units as an int64 array (checked.units)."""
+        return self.checked.unit_array
 
     def total(self, indices: list[int] | tuple[int, ...]) -> float:
         """Plan value of the given items, exact for integer-scaled values."""
@@ -70,7 +74,7 @@ def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
     """Validate problem and scale its values for the DP."""
     checked = check_problem(problem, allow_zero_capacity=allow_zero_capacity)
     scaled = scale_values(checked.value_array)
-    return Prepared(checked, scaled.values, scaled.factor, scaled.exact, checked.unit_array)
+    return Prepared(checked, scaled.values, scaled.factor, scaled.exact)
 
 
 def run(

@@ -33,8 +33,9 @@ def twins_first(items: np.ndarray, units: np.ndarray, values: np.ndarray) -> np.
     if items.size < 2:
         return items
     u, v = units[items], values[items]
-    if v.dtype.kind in "iu" and int(v.min()) >= 0 and int(u.max()) < 2**31:
-        return _twins_first_by_key(items, (u << 32) | v.astype(np.int64))
+    kinds = _kinds(u, v)
+    if kinds is not None:
+        return _by_first_twin(items, *kinds)
     anchors = _anchors(u, v)
     if anchors is None:
         return items
@@ -51,9 +52,12 @@ def ordered_steps(
 ) -> tuple[np.ndarray, Bundled]:
     """twins_first(items, ...) and bundle_items of that order, in one pass where kinds are few."""
     u, v = units[items], values[items]
-    kinds = _few_kinds(u, v) if exact and items.size >= _SHORTEST_RUN else None
+    kinds = _kinds(u, v) if exact and items.size >= _SHORTEST_RUN else None
     if kinds is None:
         order = twins_first(items, units, values)
+        return order, bundle_items(order, units, values, top, exact=exact)
+    if kinds[1].size > _FEW_KINDS:  # many kinds: lay them out vectorised, reusing the sort
+        order = _by_first_twin(items, *kinds)
         return order, bundle_items(order, units, values, top, exact=exact)
     by_key, starts = kinds
     # Kinds in order of their first initiative: the processing order, kind by kind.
@@ -75,9 +79,9 @@ def ordered_steps(
     return np.asarray(processing, dtype=np.int64), builder.build(values.dtype)
 
 
-def _few_kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
-    """Positions sorted by kind (input order within a kind) and where each kind starts, for
-    whole-number values and at most _FEW_KINDS kinds; else None."""
+def _kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """For whole-number values: positions sorted by kind (same units and value), input order
+    within a kind, and where each kind starts in that sort; None for other values."""
     if values.dtype.kind not in "iu" or int(values.min()) < 0 or int(units.max()) >= 2**31:
         return None
     keys = (units << 32) | values.astype(np.int64)
@@ -86,32 +90,22 @@ def _few_kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.nd
     new_kind = np.empty(keys.size, dtype=np.bool_)
     new_kind[0] = True
     np.not_equal(ordered[1:], ordered[:-1], out=new_kind[1:])
-    starts = np.flatnonzero(new_kind)
-    return None if starts.size > _FEW_KINDS else (by_key, starts)
+    return by_key, np.flatnonzero(new_kind)
 
 
-def _twins_first_by_key(items: np.ndarray, keys: np.ndarray) -> np.ndarray:
-    """twins_first for whole-number (units, value) packed into one int64 key per item.
-
-    One stable sort groups the twins (each group in position order); the groups are then
-    laid out by the position of their first twin without a second sort of all items.
-    """
-    order = np.argsort(keys, kind="stable")
-    ordered = keys[order]
-    starts = np.empty(keys.size, dtype=np.bool_)
-    starts[0] = True
-    np.not_equal(ordered[1:], ordered[:-1], out=starts[1:])
-    if starts.all():
+def _by_first_twin(items: np.ndarray, by_key: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """items with the kinds (see _kinds) laid out by the position of their first twin, without
+    a second sort of all items."""
+    if starts.size == items.size:
         return items  # no twins
-    group_start = np.flatnonzero(starts)
-    sizes = np.diff(np.append(group_start, keys.size))
-    by_first = np.argsort(order[group_start])  # groups in order of their first twin
-    out_start = np.empty(group_start.size, dtype=np.int64)
+    sizes = np.diff(np.append(starts, items.size))
+    by_first = np.argsort(by_key[starts])  # kinds in order of their first twin
+    out_start = np.empty(starts.size, dtype=np.int64)
     out_start[by_first] = np.cumsum(sizes[by_first]) - sizes[by_first]
-    group = np.cumsum(starts) - 1
-    target = out_start[group] + (np.arange(keys.size) - group_start[group])
+    kind = np.repeat(np.arange(starts.size), sizes)
+    target = out_start[kind] + (np.arange(items.size) - starts[kind])
     result = np.empty_like(items)
-    result[target] = items[order]
+    result[target] = items[by_key]
     return result
 
 
