@@ -27,6 +27,14 @@ PASTED = "\n".join(
 )
 
 
+def _gangway_and_buoy(page: Page, live_server: LiveServer) -> tuple[int, int]:
+    """A new team with two initiatives, 5 days / 30 and 8 days / 42; their row ids."""
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    quick_add(page, "Buoy sensors", "8", "42")
+    return row_id(page, "Gangway repair"), row_id(page, "Buoy sensors")
+
+
 def _number(page: Page, element_id: str) -> float:
     return float(page.locator(f"#{element_id}").get_attribute("value") or "nan")
 
@@ -116,10 +124,7 @@ def test_force_in_from_the_explanation(app_page: Page, live_server: LiveServer) 
 @pytest.mark.browser
 def test_bad_effort_is_refused_beside_the_field(app_page: Page, live_server: LiveServer) -> None:
     page = app_page
-    set_up_team(page, live_server.url)
-    quick_add(page, "Gangway repair", "5", "30")
-    quick_add(page, "Buoy sensors", "8", "42")
-    gangway = row_id(page, "Gangway repair")
+    gangway, _ = _gangway_and_buoy(page, live_server)
     effort = page.locator(f"#effort-{gangway}")
     for bad, message in (("abc", "Enter a number."), ("-2", "greater than 0")):
         effort = page.locator(f"#effort-{gangway}")
@@ -228,11 +233,7 @@ def test_enter_saves_a_row_once(app_page: Page, live_server: LiveServer) -> None
 def test_typing_while_a_save_is_on_its_way(app_page: Page, live_server: LiveServer) -> None:
     """Nothing typed while the plan is re-solved is lost, and each change is saved once."""
     page = app_page
-    set_up_team(page, live_server.url)
-    quick_add(page, "Gangway repair", "5", "30")
-    quick_add(page, "Buoy sensors", "8", "42")
-    gangway = row_id(page, "Gangway repair")
-    buoy = row_id(page, "Buoy sensors")
+    gangway, buoy = _gangway_and_buoy(page, live_server)
     expect(page.locator("#total-value")).to_have_attribute("value", "72.0")
     saves = RowSaves(page)
     # Hold the first save's answer until the typing below is done (Playwright's Route: a
