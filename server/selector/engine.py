@@ -25,7 +25,7 @@ DEFAULT_MEMORY_BUDGET_BYTES = 256 * 2**20
 MAX_CELLS = 4 * 10**9
 # Below this many DP cells the pass costs about what the stop rule's bounds cost to compute
 # (tens of microseconds, scripts/bench_selector.py), so they are not computed.
-BOUNDS_MIN_CELLS = 100_000
+BOUNDS_MIN_CELLS = 1_000_000
 
 
 @dataclass(frozen=True)

@@ -56,6 +56,8 @@ def ordered_steps(
     if kinds is None:
         order = twins_first(items, units, values)
         return order, bundle_items(order, units, values, top, exact=exact)
+    if kinds[1].size == items.size:  # no twins: input order, one step per initiative
+        return items, _singles(items, u, v)
     if kinds[1].size > _FEW_KINDS:  # many kinds: lay them out vectorised, reusing the sort
         order = _by_first_twin(items, *kinds)
         return order, bundle_items(order, units, values, top, exact=exact)
@@ -216,8 +218,7 @@ def bundle_items(
     v = values[items]
     spans = _runs(u, v) if exact else []
     if not spans:
-        steps = dp.Steps(tuple(items.tolist()), tuple(u.tolist()), v, tuple(range(items.size + 1)))
-        return Bundled(steps, [], {})
+        return _singles(items, u, v)
     item_list, unit_list, value_list = items.tolist(), u.tolist(), v.tolist()
     builder = _StepsBuilder()
     done = 0  # positions placed so far
@@ -227,6 +228,14 @@ def bundle_items(
         done = end
     builder.add_singles(item_list[done:], unit_list[done:], value_list[done:])
     return builder.build(values.dtype)
+
+
+def _singles(items: np.ndarray, units: np.ndarray, values: np.ndarray) -> Bundled:
+    """One step per initiative, in the order of items (units and values already theirs)."""
+    steps = dp.Steps(
+        tuple(items.tolist()), tuple(units.tolist()), values, tuple(range(items.size + 1))
+    )
+    return Bundled(steps, [], {})
 
 
 def _runs(units: np.ndarray, values: np.ndarray) -> list[tuple[int, int]]:

@@ -224,7 +224,8 @@ def _columns_fast(items: Sequence[Item]) -> _Columns | None:
     effort_array = np.array(efforts, dtype=np.float64)
     value_array = np.array(values, dtype=np.float64)
     for column in (effort_array, value_array):
-        if not (np.all(column > 0) and np.all(np.isfinite(column))):
+        # NaN fails both comparisons, so two reductions check positive, finite and a number.
+        if not (column.min() > 0 and column.max() < math.inf):
             return None
     pinned = set(compress(range(count), pins))
     ruled_out = set(compress(range(count), outs))

@@ -69,15 +69,15 @@ def test_subset_sum_stops_once_the_capacity_is_filled_exactly() -> None:
 
 
 def test_stop_rule_ends_a_row_dp_pass_with_the_same_plan() -> None:
-    # Efforts 1-2,000 days, each once, values within a point of the effort (after Pisinger's
+    # Efforts 1-3,000 days, each once, values within a point of the effort (after Pisinger's
     # weakly correlated family): no fullest-plan shortcut and no twins, and a core big
     # enough for the bounds to be worth computing; once the early rows reach the LP bound
     # the rest cannot change the plan.
-    efforts = [1 + (k * 37) % 2000 for k in range(2000)]
+    efforts = [1 + (k * 37) % 3000 for k in range(3000)]
     items = tuple(Item(f"i{k}", e, max(1, e + (k * 11) % 3 - 1)) for k, e in enumerate(efforts))
-    problem = Problem(items, 3000, resolution=1)
+    problem = Problem(items, 6000, resolution=1)
     plain = solve(problem)
-    full = solve(problem, curve_to=3000)
+    full = solve(problem, curve_to=6000)
     assert plain.method == full.method == "dp"
     assert plain.chosen == full.chosen
     assert "stopped after" in plain.method_note
