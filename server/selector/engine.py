@@ -66,8 +66,17 @@ class Outcome:
     free_capacity: int
     row: np.ndarray | None  # last DP row over free capacity units 0..len-1
     decided: Decided
-    layout: list[list[int]] | None = None  # DP steps (item indices) when the row DP ran whole
+    # The row DP's steps when it ran whole: groups of item indices, or an array of single
+    # initiatives in step order (see steps_layout).
+    layout: list[list[int]] | np.ndarray | None = None
     decision_rows: int = 0  # rows of the row DP's bit-packed decision table (twins as pieces)
+
+    def steps_layout(self) -> list[list[int]] | None:
+        """The row DP's steps as groups of item indices, or None when it did not run whole."""
+        if isinstance(self.layout, np.ndarray):
+            # Built only when asked (explanations): a plan or curve alone never needs it.
+            return [[i] for i in self.layout.tolist()]
+        return self.layout
 
 
 def prepare(problem: Problem, *, allow_zero_capacity: bool = False) -> Prepared:
@@ -179,7 +188,7 @@ def _run_rows(
     capacity = base.free_capacity
     low = 0
     stop = None
-    layout: list[list[int]] | None = None
+    layout: list[list[int]] | np.ndarray | None = None
     if sets:
         layout = step_groups(free.tolist(), sets, units, prepared.scaled)
         _check_cells(free.size, width)
@@ -228,7 +237,7 @@ def _run_rows(
         note = f"{len(sets)} either-or sets as multiple-choice steps; " + note
     whole = not reduction_note and low == 0 and not result.stopped  # else exact only in part
     if whole and layout is None:
-        layout = [[i] for i in core.tolist()]
+        layout = core
     return replace(
         base,
         chosen=chosen,

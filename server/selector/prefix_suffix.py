@@ -43,12 +43,13 @@ def forced_plans(
     prepared: Prepared, outcome: Outcome, budget_bytes: int
 ) -> tuple[dict[int, tuple[ForcedPlan, ForcedPlan]], str]:
     """Map each DP initiative to (forced in, forced out); empty with a note when not possible."""
-    if outcome.layout is None or outcome.method not in ("dp", "dp-multiple-choice"):
+    groups = outcome.steps_layout()
+    if groups is None or outcome.method not in ("dp", "dp-multiple-choice"):
         return {}, ""
     capacity = outcome.free_capacity
     width = capacity + 1
     units = list(prepared.checked.units)
-    layout = [[i for i in group if units[i] < width] for group in outcome.layout]
+    layout = [[i for i in group if units[i] < width] for group in groups]
     steps = dp.make_steps([group for group in layout if group], units, prepared.scaled)
     count = steps.count
     if count == 0:
