@@ -14,8 +14,8 @@ better. So among equally good plans of equal effort, the one that leaves out the
 latest in step order (where two plans first differ, counting from the end) is returned.
 Step order is the caller's processing order (see the package docstring and twins.py).
 With integer-scaled values (see rounding.scale_values) every comparison is exact; a pass
-whose cells all stay within int16 runs in int16 (row_dtype) and hands back rows of the
-values' own dtype.
+whose cells all stay within int16, or within the whole numbers float32 holds exactly, runs in
+that dtype (row_dtype) and hands back rows of the values' own dtype.
 """
 
 from __future__ import annotations
@@ -199,17 +199,18 @@ def run_forward(
     return Forward(row.astype(steps.values.dtype, copy=False), cells, applied)
 
 
-# Rows whose every value fits in int16 halve the memory traffic of int32 rows, but the
-# conversions in and out cost a pass each: worth it only over several members.
+# Narrower rows than int32 cost a conversion pass in and out: worth it over several members.
 _INT16_MAX = 2**15 - 1
+_FLOAT32_EXACT = 2**24  # every whole number up to this is a float32
 _NARROW_MIN_MEMBERS = 8
 
 
 def row_dtype(member_values: np.ndarray, init: np.ndarray | None) -> np.dtype:
-    """The dtype the forward pass works in: int16 when whole-number rows cannot pass its range.
+    """The dtype the forward pass works in for whole-number (int32) values.
 
-    No cell can exceed the initial row's largest value plus every member's value, so that sum
-    within int16 keeps every addition and comparison exact.
+    No cell can exceed the initial row's largest value plus every member's value. With that
+    sum within int16's range, or within the whole numbers float32 holds exactly, every
+    addition and comparison of the pass is exact in that dtype.
     """
     dtype = member_values.dtype
     if dtype != np.int32 or member_values.size < _NARROW_MIN_MEMBERS:
@@ -217,7 +218,11 @@ def row_dtype(member_values: np.ndarray, init: np.ndarray | None) -> np.dtype:
     most = int(member_values.sum(dtype=np.int64))
     if init is not None and init.size:
         most += int(init.max())
-    return np.dtype(np.int16) if most <= _INT16_MAX else dtype
+    if most <= _INT16_MAX:
+        return np.dtype(np.int16)  # half the memory traffic of int32
+    if most <= _FLOAT32_EXACT:
+        return np.dtype(np.float32)  # int32's traffic, but numpy's float32 loops run faster
+    return dtype
 
 
 def _units_after(steps: Steps, first: int, last: int, top: int) -> list[int]:
