@@ -203,6 +203,27 @@ def _back(team_id: int, whatif: WhatIf, anchor: str = "") -> Response:
 # --- reading -----------------------------------------------------------------------------------
 
 
+def _after_change(
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+    *,
+    team_id: int,
+    form: FormData,
+    anchor: str = "",
+    extra: dict[str, Any] | None = None,
+) -> Response:
+    """A change is stored: back to the plan page, or the plan re-rendered for htmx and JSON,
+    marking what the change moved in or out of the plan."""
+    params = _multi(form)
+    if not _is_htmx(request) and not _wants_json(request):
+        whatif, _ = parse_whatif(params)
+        return _back(team_id, whatif, anchor)
+    view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
+    return _render(request, templates, view, extra=extra)
+
+
 @router.get("/teams/{team_id}/plan")
 def plan_page(
     team_id: int,
@@ -305,7 +326,6 @@ async def edit_row(
 ) -> Response:
     form = await request.form()
     params = _multi(form)
-    whatif, _ = parse_whatif(params)
     record = initiative_store.get_initiative(session, initiative_id=initiative_id)
     if record.row.team_id != team_id:
         raise NotFoundError(
@@ -327,17 +347,16 @@ async def edit_row(
             current = exc.current
         except LoadlineError as exc:
             errors = {_field(exc.field or "form"): exc.message}
-        else:
-            if not _is_htmx(request) and not _wants_json(request):
-                return _back(team_id, whatif, f"#row-{initiative_id}")
-            view = _view(
-                request, session, settings, team_id, params, previous_chosen=_previous(form)
-            )
-            return _render(request, templates, view)
-    if not errors:
-        if not _is_htmx(request) and not _wants_json(request):
-            return _back(team_id, whatif, f"#row-{initiative_id}")
-        return _render(request, templates, _view(request, session, settings, team_id, params))
+    if not errors:  # stored, or nothing to store
+        return _after_change(
+            request,
+            session,
+            settings,
+            templates,
+            team_id=team_id,
+            form=form,
+            anchor=f"#row-{initiative_id}",
+        )
     if current is not None:
         # Saving again applies the person's values on top of the stored version.
         values = values | {"version": str(current["version"])}
@@ -391,14 +410,16 @@ async def quick_add(
         except LoadlineError as exc:
             errors = {exc.field or "form": exc.message}
         else:
-            if not _is_htmx(request) and not _wants_json(request):
-                return _back(team_id, whatif, "#quick-add")
-            view = _view(
-                request, session, settings, team_id, params, previous_chosen=_previous(form)
-            )
             notice = f"Added “{record.row.title}”."
-            return _render(
-                request, templates, view, extra={"notice": notice, "focus": "quick-title"}
+            return _after_change(
+                request,
+                session,
+                settings,
+                templates,
+                team_id=team_id,
+                form=form,
+                anchor="#quick-add",
+                extra={"notice": notice, "focus": "quick-title"},
             )
     view = _view(request, session, settings, team_id, params)
     first = next((name for name in QUICK_FIELDS if name in errors), "title")
@@ -465,7 +486,6 @@ async def paste_commit(
     text = form.get("text", "")
     text = text if isinstance(text, str) else ""
     params = _multi(form)
-    whatif, _ = parse_whatif(params)
     view = _view(request, session, settings, team_id, params)
     try:
         result = _parse(session, team_id, view, text)
@@ -478,11 +498,16 @@ async def paste_commit(
             extra["paste_error"] = exc.message
         view = _view(request, session, settings, team_id, params)
         return _render(request, templates, view, status_code=422, extra=extra)
-    if not _is_htmx(request) and not _wants_json(request):
-        return _back(team_id, whatif)
-    view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
     notice = f"Added {len(ids)} initiative(s) from the pasted rows."
-    return _render(request, templates, view, extra={"notice": notice, "focus": "notice"})
+    return _after_change(
+        request,
+        session,
+        settings,
+        templates,
+        team_id=team_id,
+        form=form,
+        extra={"notice": notice, "focus": "notice"},
+    )
 
 
 # --- undo --------------------------------------------------------------------------------------
@@ -497,12 +522,10 @@ async def undo(
     templates: TemplatesDep,
 ) -> Response:
     form = await request.form()
-    params = _multi(form)
-    whatif, _ = parse_whatif(params)
     try:
         outcome = undo_last_change(session, team_id=team_id)
     except LoadlineError as exc:
-        view = _view(request, session, settings, team_id, params)
+        view = _view(request, session, settings, team_id, _multi(form))
         status = 404 if isinstance(exc, NotFoundError) else exc.status_code
         return _render(
             request,
@@ -511,7 +534,12 @@ async def undo(
             status_code=status,
             extra={"notice": exc.message, "focus": "notice"},
         )
-    if not _is_htmx(request) and not _wants_json(request):
-        return _back(team_id, whatif)
-    view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
-    return _render(request, templates, view, extra={"notice": outcome.summary, "focus": "notice"})
+    return _after_change(
+        request,
+        session,
+        settings,
+        templates,
+        team_id=team_id,
+        form=form,
+        extra={"notice": outcome.summary, "focus": "notice"},
+    )
