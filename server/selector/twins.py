@@ -58,10 +58,14 @@ def ordered_steps(
         return order, bundle_items(order, units, values, top, exact=exact)
     if kinds[1].size == items.size:  # no twins: input order, one step per initiative
         return items, _singles(items, u, v)
-    if kinds[1].size > _FEW_KINDS:  # many kinds: lay them out vectorised, reusing the sort
-        order = _by_first_twin(items, *kinds)
-        return order, bundle_items(order, units, values, top, exact=exact)
     by_key, starts = kinds
+    if np.diff(starts, append=items.size).max() < _SHORTEST_RUN:
+        # No kind has enough twins for pieces: the processing order, one step per initiative.
+        order = _by_first_twin(items, by_key, starts)
+        return order, _singles(order, units[order], values[order])
+    if starts.size > _FEW_KINDS:  # many kinds: lay them out vectorised, reusing the sort
+        order = _by_first_twin(items, by_key, starts)
+        return order, bundle_items(order, units, values, top, exact=exact)
     # Kinds in order of their first initiative: the processing order, kind by kind.
     firsts = by_key[starts]
     bounds = [*starts.tolist(), items.size]
