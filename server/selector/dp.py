@@ -25,6 +25,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from . import scratch
+
 # Unpacked take-decisions are buffered this many bytes at a time before packing.
 _BLOCK_BYTES = 1 << 20
 
@@ -129,7 +131,7 @@ def run_forward(
     member_values = steps.values[first_member : bounds[last]]
     dtype = row_dtype(member_values, init)
     row = np.zeros(width, dtype=dtype) if init is None else init[:width].astype(dtype)
-    cand_buf = np.empty(width, dtype=dtype)
+    cand_buf = scratch.take(dtype, width)
     # numpy scalars of the row's dtype: cheaper in ufunc calls than Python numbers
     values = list(member_values.astype(dtype, copy=False))
     top = width - 1
@@ -140,7 +142,7 @@ def run_forward(
     block = None
     if table is not None:
         block_rows = max(1, min(bounds[last] - first_member, _BLOCK_BYTES // max(width, 1)))
-        block = np.empty((block_rows, width), dtype=np.bool_)
+        block = scratch.take(np.bool_, (block_rows, width))
         slots = list(block)
     filled = 0
     packed_to = 0
@@ -196,6 +198,10 @@ def run_forward(
         )
     if reach < top:
         row[reach + 1 :] = row[reach]
+    scratch.give_back(cand_buf)
+    if block is not None:
+        del slots
+        scratch.give_back(block)
     return Forward(row.astype(steps.values.dtype, copy=False), cells, applied)
 
 
@@ -311,13 +317,14 @@ def solve_steps(
         low, stop = 0, None
     need = table_bytes(steps.members, width)
     if need <= budget_bytes:
-        table = np.empty((steps.members, (width + 7) // 8), dtype=np.uint8)
+        table = scratch.take(np.uint8, (steps.members, (width + 7) // 8))
         reach: list[int] = []
         row, cells, applied = run_forward(
             steps, width, table=table, low=low, reach_out=reach, stop=stop
         )
         start = least_effort_capacity(row, capacity, low)
         taken, _ = backtrack(steps, table, start, last=applied, reach=reach)
+        scratch.give_back(table)
         note = (
             f"{rows or f'{steps.members} initiatives'} x {width:,} capacity units; decision table "
             f"{_mib(need)} within the {_mib(budget_bytes)} budget"
