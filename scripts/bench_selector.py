@@ -32,7 +32,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from server.selector import Item, Problem, Selection, solve
+from server.selector import Item, Problem, Selection, scratch, solve
 from server.selector.constraints import decide
 from server.selector.engine import Outcome, prepare, run
 from server.selector.results import assemble
@@ -282,6 +282,7 @@ def run_point(instance: Instance, python_ns_per_cell: list[float]) -> Row:
     # here, and again after the whole grid (main); a busy neighbour on the machine for a few
     # seconds then slows only one of them.
     dp_stage_cpu, outcome = dp_stage(problem)
+    scratch.clear()  # so that the DP's pooled buffers count towards the peak too
     tracemalloc.start()
     full_dp(problem)
     _, peak = tracemalloc.get_traced_memory()

@@ -60,3 +60,9 @@ def pooled_bytes() -> int:
     """Bytes the pool holds now."""
     with _lock:
         return sum(b.nbytes for b in _free)
+
+
+def clear() -> None:
+    """Drop every pooled buffer (a memory measurement then sees a solve's whole working set)."""
+    with _lock:
+        _free.clear()

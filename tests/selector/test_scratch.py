@@ -26,7 +26,7 @@ def _problem(seed: int, n: int = 40, capacity_units: int = 20_000) -> Problem:
 
 @pytest.fixture(autouse=True)
 def _empty_pool() -> None:
-    scratch._free.clear()
+    scratch.clear()
 
 
 def test_take_gives_the_shape_and_dtype_and_reuses_what_was_given_back() -> None:
@@ -54,11 +54,13 @@ def test_the_pool_is_bounded_in_count_and_size() -> None:
     assert sorted(b.nbytes for b in scratch._free) == sizes[-scratch.KEEP :]
 
 
-def test_giving_back_twice_keeps_one_copy() -> None:
+def test_giving_back_twice_keeps_one_copy_and_clear_drops_it() -> None:
     array = scratch.take(np.uint8, 4096)
     scratch.give_back(array)
     scratch.give_back(array)
     assert len(scratch._free) == 1
+    scratch.clear()
+    assert scratch.pooled_bytes() == 0
 
 
 def test_threads_solving_at_once_get_the_plans_of_solving_one_by_one() -> None:
