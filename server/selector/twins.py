@@ -59,12 +59,13 @@ def ordered_steps(
     if kinds[1].size == items.size:  # no twins: input order, one step per initiative
         return items, _singles(items, u, v)
     by_key, starts = kinds
-    if np.diff(starts, append=items.size).max() < _SHORTEST_RUN:
-        # No kind has enough twins for pieces: the processing order, one step per initiative.
+    has_runs = np.diff(starts, append=items.size).max() >= _SHORTEST_RUN
+    if not has_runs or starts.size > _FEW_KINDS:
+        # No kind with enough twins for pieces, or many kinds: lay them out vectorised,
+        # reusing the sort.
         order = _by_first_twin(items, by_key, starts)
-        return order, _singles(order, units[order], values[order])
-    if starts.size > _FEW_KINDS:  # many kinds: lay them out vectorised, reusing the sort
-        order = _by_first_twin(items, by_key, starts)
+        if not has_runs:  # one step per initiative
+            return order, _singles(order, units[order], values[order])
         return order, bundle_items(order, units, values, top, exact=exact)
     # Kinds in order of their first initiative: the processing order, kind by kind.
     firsts = by_key[starts]
