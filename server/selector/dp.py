@@ -21,6 +21,7 @@ that dtype (row_dtype) and hands back rows of the values' own dtype.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from itertools import repeat
 from typing import NamedTuple
 
 import numpy as np
@@ -136,14 +137,26 @@ def run_forward(
     values = list(member_values.astype(dtype, copy=False))
     top = width - 1
     reach = 0 if init is None else top  # the row is exact on 0..reach, constant above
-    after = _units_after(steps, first, last, top) if low > 0 else None
-    cells = 0
-    slots: list[np.ndarray] = []
     block = None
     if table is not None:
         block_rows = max(1, min(bounds[last] - first_member, _BLOCK_BYTES // max(width, 1)))
         block = scratch.take(np.bool_, (block_rows, width))
-        slots = list(block)
+    if low <= 0 and stop is None and bounds[last] - first_member == last - first:
+        # Every step one member, nothing to skip or stop at: the common plan, on a lean loop.
+        cells, reach = _forward_singles(
+            units[first_member : bounds[last]],
+            values,
+            row,
+            cand_buf,
+            reach,
+            block,
+            table,
+            reach_out,
+        )
+        return _finish_forward(row, reach, cand_buf, block, steps, cells, last)
+    after = _units_after(steps, first, last, top) if low > 0 else None
+    cells = 0
+    slots: list[np.ndarray] = [] if block is None else list(block)
     filled = 0
     packed_to = 0
     add, greater, maximum = np.add, np.greater, np.maximum
@@ -196,11 +209,72 @@ def run_forward(
         table[packed_to : packed_to + filled] = np.packbits(
             block[:filled], axis=1, bitorder="little"
         )
-    if reach < top:
+    del slots
+    return _finish_forward(row, reach, cand_buf, block, steps, cells, applied)
+
+
+def _forward_singles(
+    units: tuple[int, ...],
+    values: list,
+    row: np.ndarray,
+    cand_buf: np.ndarray,
+    reach: int,
+    block: np.ndarray | None,
+    table: np.ndarray | None,
+    reach_out: list[int] | None,
+) -> tuple[int, int]:
+    """run_forward's pass when each step is one member: return cells and the final reach.
+
+    The same update as run_forward's general loop with source = row and begin = w, without
+    its per-step bookkeeping, which at a few thousand cells per row costs as much as the
+    arithmetic. block, when given, buffers the take-bits that are packed into table.
+    """
+    width = row.size
+    top = width - 1
+    cells = 0
+    add, greater, maximum = np.add, np.greater, np.maximum
+    chunk = len(units) if block is None else block.shape[0]
+    for start in range(0, len(units), max(chunk, 1)):
+        stop = start + chunk
+        slots = repeat(None) if block is None else block
+        # The last chunk can be shorter than the block: slots may outnumber the members.
+        for w, value, slot in zip(units[start:stop], values[start:stop], slots, strict=False):
+            if w <= top:
+                end = reach + w + 1
+                if end > width:
+                    end = width
+                if end > reach + 1:
+                    row[reach + 1 : end] = row[reach]
+                cand = cand_buf[: end - w]
+                add(row[: end - w], value, out=cand)
+                target = row[w:end]
+                if slot is not None:
+                    greater(cand, target, out=slot[w:end])
+                maximum(target, cand, out=target)
+                cells += end - w
+                reach = end - 1
+            if reach_out is not None:
+                reach_out.append(reach)
+        if block is not None and table is not None:
+            filled = min(chunk, len(units) - start)
+            table[start : start + filled] = np.packbits(block[:filled], axis=1, bitorder="little")
+    return cells, reach
+
+
+def _finish_forward(
+    row: np.ndarray,
+    reach: int,
+    cand_buf: np.ndarray,
+    block: np.ndarray | None,
+    steps: Steps,
+    cells: int,
+    applied: int,
+) -> Forward:
+    """Fill the row above its reach, give the scratch buffers back, hand the row back."""
+    if reach < row.size - 1:
         row[reach + 1 :] = row[reach]
     scratch.give_back(cand_buf)
     if block is not None:
-        del slots
         scratch.give_back(block)
     return Forward(row.astype(steps.values.dtype, copy=False), cells, applied)
 
