@@ -44,6 +44,8 @@ def units_up_array(days: np.ndarray, resolution: float) -> tuple[np.ndarray, np.
     if q.size and float(q.max()) >= _EXACT_FLOAT_LIMIT:
         raise ValueError("efforts must be below 2**53 resolution steps")
     nearest = np.rint(q)
+    if (q == nearest).all():  # the usual case, efforts in whole steps: a third of the work
+        return nearest.astype(np.int64), np.ones(q.size, dtype=np.bool_)
     whole = np.abs(q - nearest) <= _REL_TOL * np.maximum(1.0, np.abs(q))
     return np.where(whole, nearest, np.ceil(q)).astype(np.int64), whole
 
@@ -71,7 +73,10 @@ def scale_values(values: Sequence[float]) -> ScaledValues:
         factor = 10.0**decimals
         scaled = raw * factor
         nearest = np.rint(scaled)
-        if np.all(np.abs(scaled - nearest) <= _REL_TOL * np.maximum(1.0, np.abs(scaled))):
+        # Exactly whole (the usual case) is told in one comparison; else allow float noise.
+        if (scaled == nearest).all() or np.all(
+            np.abs(scaled - nearest) <= _REL_TOL * np.maximum(1.0, np.abs(scaled))
+        ):
             total = float(nearest.sum())
             if total < _INT32_LIMIT:
                 return ScaledValues(nearest.astype(np.int32), factor, True)

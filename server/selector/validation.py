@@ -318,6 +318,8 @@ def _check_absurd(items: Sequence[Item], columns: _Columns, resolution: float) -
         (steps, MAX_EFFORT_UNITS, "effort", f"resolution steps of {resolution:g} days"),
         (columns.value_array, MAX_VALUE, "value", "as a value score"),
     ):
+        if column.size == 0 or column.max() <= limit:
+            continue  # one reduction for the usual case; NaN was refused before this
         over = np.flatnonzero(~(column <= limit))
         if over.size:
             i = int(over[0])
@@ -394,7 +396,7 @@ def check_problem(problem: Problem, *, allow_zero_capacity: bool = False) -> Che
         unit_array=unit_array,
         value_array=columns.value_array,
         effort_array=columns.effort_array,
-        rounded_up=tuple(np.flatnonzero(~whole).tolist()),
+        rounded_up=() if whole.all() else tuple(np.flatnonzero(~whole).tolist()),
     )
 
 
