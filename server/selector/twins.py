@@ -59,11 +59,12 @@ def ordered_steps(
     if kinds[1].size == items.size:  # no twins: input order, one step per initiative
         return items, _singles(items, u, v)
     by_key, starts = kinds
-    has_runs = np.diff(starts, append=items.size).max() >= _SHORTEST_RUN
+    sizes = _kind_sizes(starts, items.size)
+    has_runs = sizes.max() >= _SHORTEST_RUN
     if not has_runs or starts.size > _FEW_KINDS:
         # No kind with enough twins for pieces, or many kinds: lay them out vectorised,
         # reusing the sort.
-        order = _by_first_twin(items, by_key, starts)
+        order = _by_first_twin(items, by_key, starts, sizes)
         if not has_runs:  # one step per initiative
             return order, _singles(order, units[order], values[order])
         return order, bundle_items(order, units, values, top, exact=exact)
@@ -100,12 +101,23 @@ def _kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return by_key, np.flatnonzero(new_kind)
 
 
-def _by_first_twin(items: np.ndarray, by_key: np.ndarray, starts: np.ndarray) -> np.ndarray:
+def _kind_sizes(starts: np.ndarray, count: int) -> np.ndarray:
+    """How many initiatives each kind has, from where the kinds start in a sort of count."""
+    sizes = np.empty(starts.size, dtype=np.int64)
+    np.subtract(starts[1:], starts[:-1], out=sizes[:-1])  # not np.diff(append=): its concat
+    sizes[-1] = count - starts[-1]  # costs more than the rest at these sizes
+    return sizes
+
+
+def _by_first_twin(
+    items: np.ndarray, by_key: np.ndarray, starts: np.ndarray, sizes: np.ndarray | None = None
+) -> np.ndarray:
     """items with the kinds (see _kinds) laid out by the position of their first twin, without
-    a second sort of all items."""
+    a second sort of all items. sizes: _kind_sizes(starts, items.size), when already known."""
     if starts.size == items.size:
         return items  # no twins
-    sizes = np.diff(np.append(starts, items.size))
+    if sizes is None:
+        sizes = _kind_sizes(starts, items.size)
     by_first = np.argsort(by_key[starts])  # kinds in order of their first twin
     out_start = np.empty(starts.size, dtype=np.int64)
     out_start[by_first] = np.cumsum(sizes[by_first]) - sizes[by_first]
