@@ -76,6 +76,8 @@ def keep_by_effort(units: Sequence[int], values: np.ndarray, capacity: int) -> n
         return np.arange(count)  # not even the largest effort has more than the capacity holds
     if most <= 4 * count + 1024:
         per_effort = np.bincount(w)
+        if int(per_effort.max()) <= capacity // max(most, 1):
+            return np.arange(count)  # no effort has more than the largest effort's room
         efforts = np.flatnonzero(per_effort)
         per_effort = per_effort[efforts]
     else:
