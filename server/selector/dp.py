@@ -215,7 +215,7 @@ def run_forward(
 
 def _forward_singles(
     units: tuple[int, ...],
-    values: list,
+    values: list[np.generic],
     row: np.ndarray,
     cand_buf: np.ndarray,
     reach: int,
@@ -235,10 +235,11 @@ def _forward_singles(
     add, greater, maximum = np.add, np.greater, np.maximum
     chunk = len(units) if block is None else block.shape[0]
     for start in range(0, len(units), max(chunk, 1)):
-        stop = start + chunk
+        chunk_end = start + chunk
         slots = repeat(None) if block is None else block
         # The last chunk can be shorter than the block: slots may outnumber the members.
-        for w, value, slot in zip(units[start:stop], values[start:stop], slots, strict=False):
+        members = zip(units[start:chunk_end], values[start:chunk_end], slots, strict=False)
+        for w, value, slot in members:
             if w <= top:
                 end = reach + w + 1
                 if end > width:

@@ -28,7 +28,7 @@ def take(dtype: np.dtype | type, shape: int | tuple[int, ...]) -> np.ndarray:
     """An array of dtype and shape with undefined contents, from the pool when one fits."""
     dtype = np.dtype(dtype)
     # math.prod, not np.prod: this runs twice per DP pass and np.prod costs microseconds
-    size = (shape if isinstance(shape, int) else math.prod(shape)) * dtype.itemsize
+    size = (math.prod(shape) if isinstance(shape, tuple) else int(shape)) * dtype.itemsize
     buffer = None
     with _lock:
         best = -1

@@ -103,9 +103,10 @@ def _kinds(units: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarra
 
 def _kind_sizes(starts: np.ndarray, count: int) -> np.ndarray:
     """How many initiatives each kind has, from where the kinds start in a sort of count."""
+    # Not np.diff(starts, append=count): at these sizes its concatenation costs more than this.
     sizes = np.empty(starts.size, dtype=np.int64)
-    np.subtract(starts[1:], starts[:-1], out=sizes[:-1])  # not np.diff(append=): its concat
-    sizes[-1] = count - starts[-1]  # costs more than the rest at these sizes
+    np.subtract(starts[1:], starts[:-1], out=sizes[:-1])
+    sizes[-1] = count - starts[-1]
     return sizes
 
 
