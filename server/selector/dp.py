@@ -133,8 +133,9 @@ def run_forward(
     dtype = row_dtype(member_values, init)
     row = np.zeros(width, dtype=dtype) if init is None else init[:width].astype(dtype)
     cand_buf = scratch.take(dtype, width)
-    # numpy scalars of the row's dtype: cheaper in ufunc calls than Python numbers
-    values = list(member_values.astype(dtype, copy=False))
+    # 0-d views of the row's dtype: cheaper in ufunc calls than numpy scalars or Python numbers
+    value_array = member_values.astype(dtype, copy=False)
+    values = [value_array[m, ...] for m in range(value_array.size)]
     top = width - 1
     reach = 0 if init is None else top  # the row is exact on 0..reach, constant above
     block = None
@@ -215,7 +216,7 @@ def run_forward(
 
 def _forward_singles(
     units: tuple[int, ...],
-    values: list[np.generic],
+    values: list[np.ndarray],
     row: np.ndarray,
     cand_buf: np.ndarray,
     reach: int,
