@@ -6,7 +6,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, slots=True)  # slots: faster field reads for large plans
 class Item:
     """One candidate initiative for one team.
 
