@@ -5,24 +5,20 @@ from __future__ import annotations
 from typing import Any
 
 from fastapi import APIRouter, Request
-from fastapi.responses import RedirectResponse, Response
+from fastapi.responses import Response
 
 from server.access import SESSION_COOKIE, is_loopback, safe_next
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError
+from server.routes.forms import form_text, see_other
 from server.store import users as user_store
 from server.store.users import ROLES, SESSION_HOURS
 
 router = APIRouter(include_in_schema=False)
 
 
-def _text(form: Any, name: str) -> str:
-    value = form.get(name, "")
-    return value if isinstance(value, str) else ""
-
-
 def _signed_in_response(request: Request, token: str, target: str) -> Response:
-    response = RedirectResponse(safe_next(target), status_code=303)
+    response = see_other(safe_next(target))
     response.set_cookie(
         SESSION_COOKIE,
         token,
@@ -43,8 +39,8 @@ def login_page(request: Request, templates: TemplatesDep, next: str = "/") -> Re
 @router.post("/login")
 async def login(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
     form = await request.form()
-    username, password = _text(form, "username").strip(), _text(form, "password")
-    target = safe_next(_text(form, "next"))
+    username, password = form_text(form, "username"), form_text(form, "password", strip=False)
+    target = safe_next(form_text(form, "next"))
     address = request.client.host if request.client else "unknown"
     try:
         user = user_store.authenticate(
@@ -66,7 +62,7 @@ def logout(request: Request, session: SessionDep) -> Response:
     token = request.cookies.get(SESSION_COOKIE)
     if token:
         user_store.end_session(session, token=token)
-    response = RedirectResponse("/login", status_code=303)
+    response = see_other("/login")
     response.delete_cookie(SESSION_COOKIE)
     return response
 
@@ -88,9 +84,10 @@ def setup_page(request: Request, session: SessionDep, templates: TemplatesDep) -
 async def setup(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
     _first_run_allowed(request, session)
     form = await request.form()
-    username, password = _text(form, "username"), _text(form, "password")
+    username = form_text(form, "username", strip=False)
+    password = form_text(form, "password", strip=False)
     try:
-        if password != _text(form, "password_again"):
+        if password != form_text(form, "password_again", strip=False):
             raise LoadlineError("The two passwords differ.", field="password_again")
         user = user_store.create_user(session, username=username, password=password, role="admin")
     except LoadlineError as exc:
@@ -116,9 +113,9 @@ def users_page(request: Request, session: SessionDep, templates: TemplatesDep) -
 @router.post("/users")
 async def add_user(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
     form = await request.form()
-    values = {"username": _text(form, "username"), "role": _text(form, "role")}
+    values = {"username": form_text(form, "username", strip=False), "role": form_text(form, "role")}
     try:
-        user_store.create_user(session, password=_text(form, "password"), **values)
+        user_store.create_user(session, password=form_text(form, "password", strip=False), **values)
     except LoadlineError as exc:
         context = _users_context(session) | {
             "form": values,
@@ -127,7 +124,7 @@ async def add_user(request: Request, session: SessionDep, templates: TemplatesDe
         return templates.TemplateResponse(
             request, "users.html", context, status_code=exc.status_code
         )
-    return RedirectResponse("/users", status_code=303)
+    return see_other("/users")
 
 
 @router.post("/users/{user_id}")
@@ -139,12 +136,12 @@ async def change_user(
         user_store.set_role(
             session,
             user_id=user_id,
-            role=_text(form, "role"),
-            disabled=_text(form, "disabled") == "on",
+            role=form_text(form, "role"),
+            disabled=form_text(form, "disabled") == "on",
         )
     except LoadlineError as exc:
         context = _users_context(session) | {"errors": {"form": exc.message}}
         return templates.TemplateResponse(
             request, "users.html", context, status_code=exc.status_code
         )
-    return RedirectResponse("/users", status_code=303)
+    return see_other("/users")

@@ -10,12 +10,13 @@ from __future__ import annotations
 from typing import Any
 
 from fastapi import APIRouter, Request
-from fastapi.responses import RedirectResponse, Response
+from fastapi.responses import Response
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
 from server.planning.team_capacity import capacity_of
+from server.routes.forms import form_text, see_other
 from server.schemas import (
     INITIATIVE_STATES,
     AvailabilityCreate,
@@ -34,17 +35,8 @@ from server.validation import parse_form
 router = APIRouter(include_in_schema=False)
 
 
-def _see_other(url: str) -> RedirectResponse:
-    return RedirectResponse(url, status_code=303)
-
-
-def _text(form: FormData, name: str) -> str:
-    value = form.get(name, "")
-    return value.strip() if isinstance(value, str) else ""
-
-
 def _optional(form: FormData, name: str) -> str | None:
-    return _text(form, name) or None
+    return form_text(form, name) or None
 
 
 def _render(
@@ -89,24 +81,24 @@ def home(request: Request, session: SessionDep, templates: TemplatesDep) -> Resp
 @router.post("/teams")
 async def add_team(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
     form = await request.form()
-    values = {"name": _text(form, "name")}
+    values = {"name": form_text(form, "name")}
     team_in, errors = parse_form(TeamCreate, values)
     if team_in is not None:
         db_team, errors = _store_or_errors(lambda: team_store.create_team(session, team_in=team_in))
         if db_team is not None:
-            return _see_other(f"/teams/{db_team.id}")
+            return see_other(f"/teams/{db_team.id}")
     context = _home_context(session) | {"team_form": values, "team_errors": errors}
     return _render(templates, request, "home.html", context, status_code=422)
 
 
 def _period_values(form: FormData) -> dict[str, Any]:
-    raw_dates = _text(form, "non_working_dates").replace(",", " ").split()
+    raw_dates = form_text(form, "non_working_dates").replace(",", " ").split()
     return {
-        "name": _text(form, "name"),
-        "kind": _text(form, "kind"),
-        "start_date": _text(form, "start_date"),
-        "end_date": _text(form, "end_date"),
-        "weekmask": _text(form, "weekmask") or "1111100",
+        "name": form_text(form, "name"),
+        "kind": form_text(form, "kind"),
+        "start_date": form_text(form, "start_date"),
+        "end_date": form_text(form, "end_date"),
+        "weekmask": form_text(form, "weekmask") or "1111100",
         "non_working_dates": raw_dates,
     }
 
@@ -121,8 +113,8 @@ async def add_period(request: Request, session: SessionDep, templates: Templates
             lambda: period_store.create_period(session, period_in=period_in)
         )
         if db_period is not None:
-            return _see_other("/")
-    shown = values | {"non_working_dates": _text(form, "non_working_dates")}
+            return see_other("/")
+    shown = values | {"non_working_dates": form_text(form, "non_working_dates")}
     context = _home_context(session) | {"period_form": shown, "period_errors": _flatten(errors)}
     return _render(templates, request, "home.html", context, status_code=422)
 
@@ -192,17 +184,17 @@ async def add_member(
     form = await request.form()
     values = {
         "team_id": team_id,
-        "name": _text(form, "name"),
-        "allocation": _text(form, "allocation"),
+        "name": form_text(form, "name"),
+        "allocation": form_text(form, "allocation"),
     }
     member_in, errors = parse_form(MemberCreate, values)
-    period_id = _optional_int(_text(form, "period_id"))
+    period_id = _optional_int(form_text(form, "period_id"))
     if member_in is not None:
         db_member, errors = _store_or_errors(
             lambda: team_store.create_member(session, member_in=member_in)
         )
         if db_member is not None:
-            return _see_other(_team_url(team_id, period_id))
+            return see_other(_team_url(team_id, period_id))
     context = _team_context(session, team_id, period_id) | {
         "member_form": values,
         "member_errors": errors,
@@ -215,11 +207,11 @@ async def set_availability(
     team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
     form = await request.form()
-    period_id = _optional_int(_text(form, "period_id"))
+    period_id = _optional_int(form_text(form, "period_id"))
     values = {
-        "member_id": _text(form, "member_id"),
+        "member_id": form_text(form, "member_id"),
         "period_id": period_id,
-        "days_off": _text(form, "days_off") or "0",
+        "days_off": form_text(form, "days_off") or "0",
         "allocation": _optional(form, "allocation"),
     }
     availability_in, errors = parse_form(AvailabilityCreate, values)
@@ -232,7 +224,7 @@ async def set_availability(
                 lambda: team_store.set_availability(session, availability_in=availability_in)
             )
             if row is not None:
-                return _see_other(_team_url(team_id, period_id))
+                return see_other(_team_url(team_id, period_id))
     context = _team_context(session, team_id, period_id) | {
         "availability_form": values,
         "availability_errors": errors,
@@ -245,10 +237,10 @@ async def set_capacity(
     team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
     form = await request.form()
-    period_id = _optional_int(_text(form, "period_id"))
+    period_id = _optional_int(form_text(form, "period_id"))
     values = {
-        "focus_factor": _text(form, "focus_factor"),
-        "reserve_pct": _text(form, "reserve_pct"),
+        "focus_factor": form_text(form, "focus_factor"),
+        "reserve_pct": form_text(form, "reserve_pct"),
     }
     settings_in, errors = parse_form(CapacitySettingsIn, values)
     if settings_in is not None and period_id is not None:
@@ -256,7 +248,7 @@ async def set_capacity(
         period_store.set_capacity_settings(
             session, team_id=team_id, period_id=period_id, settings_in=settings_in
         )
-        return _see_other(_team_url(team_id, period_id))
+        return see_other(_team_url(team_id, period_id))
     if period_id is None:
         errors = {"period_id": "Choose a period first."}
     context = _team_context(session, team_id, period_id) | {
@@ -328,20 +320,20 @@ def initiatives_page(
 
 def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
     """Form fields -> the API's initiative input (blank optional fields become null)."""
-    period = _text(form, "period_id")
-    effort: dict[str, Any] = {"likely": _text(form, "effort.likely")}
-    if _text(form, "effort.low") or _text(form, "effort.high"):
+    period = form_text(form, "period_id")
+    effort: dict[str, Any] = {"likely": form_text(form, "effort.likely")}
+    if form_text(form, "effort.low") or form_text(form, "effort.high"):
         effort |= {"low": _optional(form, "effort.low"), "high": _optional(form, "effort.high")}
     confidence = _optional(form, "confidence")
     return {
         "team_id": team_id,
         "period_id": None if period in {"", initiative_store.BACKLOG} else period,
-        "title": _text(form, "title"),
-        "notes": form.get("notes", "") if isinstance(form.get("notes", ""), str) else "",
+        "title": form_text(form, "title"),
+        "notes": form_text(form, "notes", strip=False),
         "effort": effort,
-        "value": _text(form, "value"),
+        "value": form_text(form, "value"),
         "confidence": _percent_to_share(confidence),
-        "state": _text(form, "state") or "candidate",
+        "state": form_text(form, "state") or "candidate",
         "either_or": _optional(form, "either_or"),
         "needs": [v for v in form.getlist("needs") if isinstance(v, str) and v],
     }
@@ -384,9 +376,9 @@ async def add_initiative(
             lambda: initiative_store.create_initiative(session, initiative_in=initiative_in)
         )
         if record is not None:
-            period = _text(form, "period_id") or initiative_store.BACKLOG
-            return _see_other(f"/teams/{team_id}/initiatives?period={period}")
-    context = _initiatives_context(session, team_id, _text(form, "period_id") or None)
+            period = form_text(form, "period_id") or initiative_store.BACKLOG
+            return see_other(f"/teams/{team_id}/initiatives?period={period}")
+    context = _initiatives_context(session, team_id, form_text(form, "period_id") or None)
     context |= {"form": form_echo(form), "errors": errors}
     return _render(templates, request, "initiatives.html", context, status_code=422)
 
@@ -450,7 +442,7 @@ async def edit_initiative(
     team_id = context["record"].row.team_id
     values = initiative_values(form, team_id)
     values.pop("team_id")
-    values["version"] = _text(form, "version")
+    values["version"] = form_text(form, "version")
     update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
     if update_in is not None:
         try:
@@ -462,8 +454,8 @@ async def edit_initiative(
             current = getattr(exc, "current", None)
             context = _edit_context(session, initiative_id) | {"current": current}
         else:
-            period = _text(form, "period_id") or initiative_store.BACKLOG
-            return _see_other(f"/teams/{team_id}/initiatives?period={period}")
+            period = form_text(form, "period_id") or initiative_store.BACKLOG
+            return see_other(f"/teams/{team_id}/initiatives?period={period}")
     context |= {"form": form_echo(form), "errors": errors}
     status = 409 if context.get("current") else 422
     return _render(templates, request, "initiative_edit.html", context, status_code=status)
@@ -474,4 +466,4 @@ async def delete_initiative(initiative_id: int, session: SessionDep) -> Response
     record = initiative_store.get_initiative(session, initiative_id=initiative_id)
     period = str(record.row.period_id) if record.row.period_id else initiative_store.BACKLOG
     initiative_store.delete_initiative(session, initiative_id=initiative_id)
-    return _see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")
+    return see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")

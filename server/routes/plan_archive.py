@@ -14,7 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 from fastapi import APIRouter, Query, Request
-from fastapi.responses import RedirectResponse, Response
+from fastapi.responses import Response
 from pydantic import TypeAdapter, ValidationError
 from starlette.datastructures import FormData, UploadFile
 
@@ -50,6 +50,7 @@ from server.routes.api_plans import (
     plan_export,
     plan_summary,
 )
+from server.routes.forms import form_text, see_other
 from server.schemas import Title
 from server.store import plans as store
 from server.store.periods import get_period, list_periods
@@ -59,15 +60,6 @@ router = APIRouter(include_in_schema=False)
 
 _TITLE = TypeAdapter(Title)
 MAX_UPLOAD_CHARS = 1_500_000
-
-
-def _see_other(url: str) -> RedirectResponse:
-    return RedirectResponse(url, status_code=303)
-
-
-def _text(form: FormData, name: str) -> str:
-    value = form.get(name, "")
-    return value.strip() if isinstance(value, str) else ""
 
 
 def _int(raw: str) -> int | None:
@@ -133,14 +125,14 @@ async def save_plan(
 ) -> Response:
     """Save the live plan (or a scenario) of a team in a period as a frozen snapshot."""
     form = await request.form()
-    scenario_id = _int(_text(form, "scenario_id"))
+    scenario_id = _int(form_text(form, "scenario_id"))
     scenario = store.get_scenario(session, scenario_id=scenario_id) if scenario_id else None
     # A scenario belongs to one team and period: those win over whatever the form says.
-    team_id = scenario.team_id if scenario else _int(_text(form, "team_id"))
-    period_id = scenario.period_id if scenario else _int(_text(form, "period_id"))
+    team_id = scenario.team_id if scenario else _int(form_text(form, "team_id"))
+    period_id = scenario.period_id if scenario else _int(form_text(form, "period_id"))
     if team_id is None or period_id is None:
         raise InputError("team_id and period_id: choose the team and the period.", field="team_id")
-    name, errors = _name(_text(form, "name"))
+    name, errors = _name(form_text(form, "name"))
     if name is not None:
         changes = changes_from_json(scenario.changes) if scenario else ScenarioChanges()
         try:
@@ -160,11 +152,11 @@ async def save_plan(
                 name=name,
                 snapshot=snapshot,
                 scenario_changes=changes.to_json(),
-                actor=_actor(_text(form, "created_by")),
+                actor=_actor(form_text(form, "created_by")),
             )
-            return _see_other(f"/plans/{db_plan.id}")
+            return see_other(f"/plans/{db_plan.id}")
     context = _save_context(session, team_id, period_id, scenario_id)
-    context |= {"form": {"name": _text(form, "name")}, "errors": errors}
+    context |= {"form": {"name": form_text(form, "name")}, "errors": errors}
     return _render(templates, request, "plans/save.html", context, status_code=422)
 
 
@@ -228,8 +220,8 @@ def export_plan(plan_id: PathId, fmt: ExportFormat, session: SessionDep) -> Resp
 @router.post("/plans/{plan_id}/publish")
 async def publish_plan(plan_id: PathId, request: Request, session: SessionDep) -> Response:
     form = await request.form()
-    store.publish_plan(session, plan_id=plan_id, actor=_actor(_text(form, "created_by")))
-    return _see_other(f"/plans/{plan_id}#links")
+    store.publish_plan(session, plan_id=plan_id, actor=_actor(form_text(form, "created_by")))
+    return see_other(f"/plans/{plan_id}#links")
 
 
 @router.post("/publications/{publication_id}/revoke")
@@ -238,9 +230,9 @@ async def revoke_publication(
 ) -> Response:
     form = await request.form()
     db_publication = store.revoke_publication(
-        session, publication_id=publication_id, actor=_actor(_text(form, "created_by"))
+        session, publication_id=publication_id, actor=_actor(form_text(form, "created_by"))
     )
-    return _see_other(f"/plans/{db_publication.plan_id}#links")
+    return see_other(f"/plans/{db_publication.plan_id}#links")
 
 
 # --- comparison ----------------------------------------------------------------------------
@@ -256,7 +248,7 @@ def compare_page(
     ids = parse_plan_ids(plans)
     canonical = "/compare?plans=" + ",".join(str(i) for i in ids)
     if len(plans) > 1:  # ticked boxes arrive as plans=1&plans=2: answer with the stable URL
-        return _see_other(canonical)
+        return see_other(canonical)
     comparison = compare(store.get_plans(session, plan_ids=ids))
     names = {p.label: p.name for p in comparison.plans}
     context = {
@@ -347,10 +339,10 @@ async def create_scenario(
     settings: SettingsDep,
 ) -> Response:
     form = await request.form()
-    period_id = _int(_text(form, "period_id"))
+    period_id = _int(form_text(form, "period_id"))
     if period_id is None:
         raise InputError("period_id: choose a period.", field="period_id")
-    name, errors = _name(_text(form, "name"))
+    name, errors = _name(form_text(form, "name"))
     changes, change_errors = _read_changes(session, form, team_id, period_id)
     errors |= change_errors
     if name is not None and changes is not None and not errors:
@@ -360,9 +352,9 @@ async def create_scenario(
             period_id=period_id,
             name=name,
             changes=changes.to_json(),
-            actor=_actor(_text(form, "created_by")),
+            actor=_actor(form_text(form, "created_by")),
         )
-        return _see_other(f"/scenarios/{db_scenario.id}")
+        return see_other(f"/scenarios/{db_scenario.id}")
     context = _scenarios_context(session, team_id, period_id, settings)
     context |= {"form": _echo(form), "errors": errors}
     return _render(templates, request, "plans/scenarios.html", context, status_code=422)
@@ -446,7 +438,7 @@ async def update_scenario(
 ) -> Response:
     form = await request.form()
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
-    name, errors = _name(_text(form, "name"))
+    name, errors = _name(form_text(form, "name"))
     changes, change_errors = _read_changes(
         session, form, db_scenario.team_id, db_scenario.period_id
     )
@@ -457,9 +449,9 @@ async def update_scenario(
             scenario_id=scenario_id,
             name=name,
             changes=changes.to_json(),
-            actor=_actor(_text(form, "created_by")),
+            actor=_actor(form_text(form, "created_by")),
         )
-        return _see_other(f"/scenarios/{scenario_id}")
+        return see_other(f"/scenarios/{scenario_id}")
     context = _scenario_context(session, scenario_id, settings)
     context |= {"form": _echo(form), "errors": errors}
     return _render(templates, request, "plans/scenario.html", context, status_code=422)
@@ -470,8 +462,9 @@ async def delete_scenario(scenario_id: PathId, request: Request, session: Sessio
     form = await request.form()
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
     target = f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
-    store.delete_scenario(session, scenario_id=scenario_id, actor=_actor(_text(form, "created_by")))
-    return _see_other(target)
+    actor = _actor(form_text(form, "created_by"))
+    store.delete_scenario(session, scenario_id=scenario_id, actor=actor)
+    return see_other(target)
 
 
 # --- importing a plan CSV ------------------------------------------------------------------
@@ -501,7 +494,7 @@ async def _uploaded_text(form: FormData) -> str:
             return raw.decode("utf-8")
         except UnicodeDecodeError as exc:
             raise InputError("csv: the file is not UTF-8 text.", field="csv") from exc
-    return form.get("csv", "") if isinstance(form.get("csv", ""), str) else ""  # type: ignore[return-value]
+    return form_text(form, "csv", strip=False)
 
 
 @router.post("/teams/{team_id}/plan-import")
@@ -515,7 +508,7 @@ async def import_plan(
 async def _import_from_form(
     team_id: int, form: FormData, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
-    period_id = _int(_text(form, "period_id"))
+    period_id = _int(form_text(form, "period_id"))
     errors: dict[str, str] = {}
     try:
         if period_id is None:
@@ -532,18 +525,17 @@ async def _import_from_form(
             period_id=period_id,
             imported=parsed,
             scenario_name=f"Imported: {parsed.plan_name or 'plan'}"[:200],
-            actor=_actor(_text(form, "created_by")),
+            actor=_actor(form_text(form, "created_by")),
         )
     except LoadlineError as exc:
         errors = {exc.field or "form": exc.message}
     else:
-        return _see_other(f"/scenarios/{outcome.scenario.id}")
+        return see_other(f"/scenarios/{outcome.scenario.id}")
     context = _import_context(session, team_id)
-    pasted = form.get("csv", "")
     context |= {
         "form": {
-            "period_id": _text(form, "period_id"),
-            "csv": pasted if isinstance(pasted, str) else "",
+            "period_id": form_text(form, "period_id"),
+            "csv": form_text(form, "csv", strip=False),
         },
         "errors": errors,
     }

@@ -33,6 +33,7 @@ from server.planning.plan_view import (
     plan_json,
 )
 from server.planning.undo import undo_last_change
+from server.routes.forms import form_text, see_other
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
 from server.store.periods import list_periods
@@ -46,11 +47,6 @@ QUICK_FIELDS = ("title", "effort", "value")
 
 def _multi(data: ImmutableMultiDict[str, Any] | FormData) -> dict[str, list[str]]:
     return {key: [v for v in data.getlist(key) if isinstance(v, str)] for key in data}
-
-
-def _text(form: FormData, name: str) -> str:
-    value = form.get(name, "")
-    return value.strip() if isinstance(value, str) else ""
 
 
 def _is_htmx(request: Request) -> bool:
@@ -197,7 +193,7 @@ def _previous(form: FormData) -> frozenset[int] | None:
 
 
 def _back(team_id: int, whatif: WhatIf, anchor: str = "") -> Response:
-    return RedirectResponse(plan_url(team_id, whatif, anchor), status_code=303)
+    return see_other(plan_url(team_id, whatif, anchor))
 
 
 # --- reading -----------------------------------------------------------------------------------
@@ -279,9 +275,10 @@ def explain_fragment(
 
 
 def _row_values(form: FormData) -> dict[str, str]:
-    values = {name: _text(form, name) for name in (*ROW_FIELDS, "version")}
+    values = {name: form_text(form, name) for name in (*ROW_FIELDS, "version")}
     # "Pin it" and the like are buttons of the row's form that name the state to set.
-    return values | ({"state": _text(form, "set_state")} if _text(form, "set_state") else {})
+    state = form_text(form, "set_state")
+    return values | ({"state": state} if state else {})
 
 
 def _required(values: dict[str, Any]) -> dict[str, Any]:
@@ -387,7 +384,7 @@ async def quick_add(
     form = await request.form()
     params = _multi(form)
     whatif, _ = parse_whatif(params)
-    values = {name: _text(form, name) for name in QUICK_FIELDS}
+    values = {name: form_text(form, name) for name in QUICK_FIELDS}
     create_in, refused = parse_form(
         InitiativeCreate,
         _required(
@@ -451,8 +448,7 @@ async def paste_preview(
     templates: TemplatesDep,
 ) -> Response:
     form = await request.form()
-    text = form.get("text", "")
-    text = text if isinstance(text, str) else ""
+    text = form_text(form, "text", strip=False)
     view = _view(request, session, settings, team_id, _multi(form))
     try:
         result = _parse(session, team_id, view, text)
@@ -483,8 +479,7 @@ async def paste_commit(
     templates: TemplatesDep,
 ) -> Response:
     form = await request.form()
-    text = form.get("text", "")
-    text = text if isinstance(text, str) else ""
+    text = form_text(form, "text", strip=False)
     params = _multi(form)
     view = _view(request, session, settings, team_id, params)
     try:
