@@ -7,7 +7,6 @@ what-if is stored. Edits (effort, value, state) are real changes and go through 
 
 from __future__ import annotations
 
-import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -15,6 +14,7 @@ from urllib.parse import urlencode
 
 from sqlmodel import Session
 
+from server.message_titles import conflict_with_titles, with_titles
 from server.models import Period, Team
 from server.planning.curve_chart import (
     CurveChart,
@@ -246,24 +246,6 @@ def effort_text(record: InitiativeRecord, team_id: int) -> str:
     if line.low is not None and line.high is not None:
         return f"{_plain(line.low)}/{_plain(line.likely)}/{_plain(line.high)}"
     return _plain(line.likely)
-
-
-_QUOTED_KEY = re.compile(r"initiative '(\d+)'")
-
-
-def with_titles(text: str, titles: Mapping[str, str], keys: Sequence[str] = ()) -> str:
-    """Name initiatives by title in a selector message that names them by key."""
-    text = _QUOTED_KEY.sub(lambda m: f"“{titles.get(m[1], m[1])}”", text)
-    if keys:
-        joined = ", ".join(keys)
-        named = ", ".join(f"“{titles.get(k, k)}”" for k in keys)
-        for before, after in (
-            (f"displace {joined}.", f"displace {named}."),
-            (f"; {joined} would take its place", f"; {named} would take its place"),
-            (f"includes {joined}, needed", f"includes {named}, needed"),
-        ):
-            text = text.replace(before, after)
-    return text
 
 
 def _explanation(row: PlanRow, plan: LivePlan, titles: Mapping[str, str]) -> ExplanationView | None:
@@ -544,7 +526,7 @@ def build_plan_view(
                     options=replace(whatif.options(resolution), explain=True),
                 )
         except SelectorInputError as exc:
-            message = _no_plan_message(session, exc, team_id, period.id or 0, whatif)
+            message = no_plan_message(session, exc, team_id, period.id or 0, whatif)
     records = (
         [row.record for row in plan.rows]
         if plan is not None
@@ -629,9 +611,10 @@ def build_plan_view(
     )
 
 
-def _no_plan_message(
+def no_plan_message(
     session: Session, exc: SelectorInputError, team_id: int, period_id: int, whatif: WhatIf
 ) -> str:
+    """Why there is no plan, naming initiatives by title and saying what to change."""
     records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
     titles = {str(r.row.id): r.row.title for r in records}
     if exc.field == "capacity":
@@ -639,7 +622,10 @@ def _no_plan_message(
             "This team has no capacity in this period yet (no members, or everyone is away): "
             "add members and their availability on the team page to get a plan."
         )
-    text = with_titles(exc.message, titles)
+    if exc.field in {"either_or", "needs"}:
+        text = conflict_with_titles(exc.message, titles)
+    else:
+        text = with_titles(exc.message, titles)
     if whatif.forcing:
         return f"This what-if cannot be planned: {text} Clear the forcing to see the plan."
     return f"These initiatives cannot be planned as they stand: {text}"

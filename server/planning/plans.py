@@ -210,6 +210,41 @@ def _need_status(
     return passed, blocked, warnings
 
 
+def _block_pinned_dependents(
+    records: list[InitiativeRecord], passed: dict[int, list[int]], blocked: dict[int, list[str]]
+) -> None:
+    """Block pinned work that needs, inside this plan, something blocked.
+
+    The selector leaves out candidates that need what cannot be chosen, but a pin on such work
+    would contradict the block; so the block reaches pinned dependents here, with the title of
+    the need that carries it.
+    """
+    titles = {r.row.id or 0: r.row.title for r in records}
+    pinned = {r.row.id or 0 for r in records if r.row.state == "pinned"}
+    changed = True
+    while changed:
+        changed = False
+        for rid in sorted(pinned - blocked.keys()):
+            stuck = [n for n in passed.get(rid, []) if n in blocked]
+            if stuck:
+                blocked[rid] = [titles[n] for n in stuck]
+                changed = True
+
+
+def _blocked_explanation(
+    explanation: Explanation | None, needs: tuple[str, ...]
+) -> Explanation | None:
+    """A blocked initiative goes to the selector as ruled out: say it is blocked, and why."""
+    prefix = "Ruled out: never in the plan;"
+    if explanation is None or not needs or not explanation.reason.startswith(prefix):
+        return explanation
+    named = ", ".join(f"“{t}”" for t in needs)
+    reason = f"Blocked: it needs {named}, which cannot be chosen in this plan;" + (
+        explanation.reason[len(prefix) :].replace("allowed in,", "were it free,")
+    )
+    return replace(explanation, reason=reason)
+
+
 def _problem(
     records: list[InitiativeRecord],
     estimates: list[ThreePoint],
@@ -221,11 +256,22 @@ def _problem(
 ) -> tuple[Problem, list[float]]:
     """The selector's problem for these rows, and each row's planned effort in days."""
     efforts = _planned_efforts(estimates, records, team_id, options.confidence)
+    # A blocked member of an either-or set that holds a pin is kept out by the pin; marking
+    # it ruled out as well would contradict the pin.
+    pinned_sets = {
+        r.row.either_or
+        for r in records
+        if r.row.either_or is not None
+        and (r.row.state == "pinned" or (r.row.id or 0) in options.forced_in)
+        and (r.row.id or 0) not in blocked
+        and (r.row.id or 0) not in options.forced_out
+    }
     items = []
     for record, effort in zip(records, efforts, strict=True):
         rid = record.row.id or 0
         forced_in = rid in options.forced_in
-        forced_out = rid in options.forced_out or rid in blocked
+        kept_out_by_pin = rid in blocked and record.row.either_or in pinned_sets
+        forced_out = rid in options.forced_out or (rid in blocked and not kept_out_by_pin)
         state = record.row.state
         items.append(
             Item(
@@ -256,6 +302,14 @@ def plan_for(
     )
     records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
     passed, blocked, warnings = _need_status(session, records, period)
+    _block_pinned_dependents(records, passed, blocked)
+    warnings.extend(
+        f"“{r.row.title}” is pinned but cannot be in this plan: it needs "
+        + ", ".join(f"“{t}”" for t in blocked[r.row.id or 0])
+        + ", which cannot be chosen here. The pin stays; it counts once that need is met."
+        for r in records
+        if r.row.state == "pinned" and (r.row.id or 0) in blocked
+    )
     estimates = [_estimate(r, team_id, team.default_spread) for r in records]
     problem, efforts = _problem(
         records, estimates, passed, blocked, options, breakdown.capacity_days, team_id
@@ -288,7 +342,9 @@ def plan_for(
                 forced=forced,
                 blocked_by=tuple(blocked.get(rid, [])),
                 other_teams=others,
-                explanation=explanations.get(str(rid)),
+                explanation=_blocked_explanation(
+                    explanations.get(str(rid)), tuple(blocked.get(rid, []))
+                ),
             )
         )
     cross = [row for row in rows if row.other_teams]

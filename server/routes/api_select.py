@@ -9,6 +9,8 @@ from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field, StringConstraints, model_validator
 
 from server.deps import SessionDep
+from server.errors import ConflictError
+from server.planning.plan_view import WhatIf, no_plan_message
 from server.planning.plans import PlanOptions, plan_for
 from server.routes.responses import ERRORS
 from server.schemas import MAX_EFFORT_DAYS, MAX_VALUE
@@ -152,7 +154,9 @@ def select(request_in: SelectRequest) -> Any:
 
 @router.get(
     "/teams/{team_id}/periods/{period_id}/plan",
-    description="The live plan of a team in a period: the same data as the plan page.",
+    responses=ERRORS,
+    description="The live plan of a team in a period: the same data as the plan page. 409 when "
+    "the stored initiatives or capacity give no plan (the message says why and what to change).",
 )
 def live_plan(
     team_id: int,
@@ -160,9 +164,17 @@ def live_plan(
     session: SessionDep,
     confidence: float | None = Query(None, gt=0, lt=1, description="Plan at this quantile."),
 ) -> dict[str, Any]:
-    plan = plan_for(
-        session, team_id=team_id, period_id=period_id, options=PlanOptions(confidence=confidence)
-    )
+    try:
+        plan = plan_for(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            options=PlanOptions(confidence=confidence),
+        )
+    except SelectorInputError as exc:  # stored marks no plan can honour: say which, not 500
+        whatif = WhatIf(period_id=period_id)
+        message = no_plan_message(session, exc, team_id, period_id, whatif)
+        raise ConflictError(message, field=exc.field) from exc
     return {
         "team": {"id": plan.team.id, "name": plan.team.name},
         "period": {"id": plan.period.id, "name": plan.period.name},

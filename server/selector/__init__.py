@@ -12,6 +12,8 @@ Python API, dataclasses in and out:
   initiative. Bad input raises SelectorInputError (.key, .field); pinned work over capacity
   is a Selection with feasible=False, infeasibility and excess_days, not an exception.
 - chosen_at(problem, capacity_days) -> Selection at any point of the capacity curve.
+- check_marks(items) raises SelectorInputError when pins, rule-outs, needs and either-or sets
+  contradict each other whatever the capacity (for refusing such marks before storing them).
 - solve_joint(items, capacities, *, resolution=0.5) -> JointSelection for initiatives that
   spend several teams' capacity.
 - selection_to_dict / joint_selection_to_dict: JSON-ready dictionaries.
@@ -60,7 +62,7 @@ from .model import (
     Selection,
 )
 from .serialize import joint_selection_to_dict, selection_to_dict
-from .solve import DEFAULT_CURVE_MARGIN, chosen_at, default_curve_to, solve
+from .solve import DEFAULT_CURVE_MARGIN, check_marks, chosen_at, default_curve_to, solve
 from .validation import MAX_CAPACITY_UNITS
 
 __all__ = [
@@ -76,6 +78,7 @@ __all__ = [
     "Rounding",
     "Selection",
     "SelectorInputError",
+    "check_marks",
     "chosen_at",
     "default_curve_to",
     "joint_selection_to_dict",

@@ -3,15 +3,16 @@
 from __future__ import annotations
 
 import numbers
+from collections.abc import Sequence
 from dataclasses import replace
 
 from .constraints import decide, raise_conflict
 from .engine import DEFAULT_MEMORY_BUDGET_BYTES, prepare, run
 from .errors import SelectorInputError
 from .explain import explain_outcome
-from .model import Problem, Selection
+from .model import Item, Problem, Selection
 from .results import assemble
-from .validation import check_budget, check_curve_to
+from .validation import check_budget, check_curve_to, check_problem
 
 DEFAULT_CURVE_MARGIN = 0.25
 
@@ -55,6 +56,17 @@ def chosen_at(problem: Problem, capacity_days: float) -> Selection:
         memory_budget_bytes=DEFAULT_MEMORY_BUDGET_BYTES,
         allow_zero_capacity=True,
     )
+
+
+def check_marks(items: Sequence[Item]) -> None:
+    """Raise SelectorInputError when the items' marks contradict each other for any capacity.
+
+    The marks are pins, rule-outs, needs and either-or sets; efforts and values play no part
+    (each item counts as 1 day worth 1). Keys, needs and sets are checked as solve checks them.
+    """
+    neutral = tuple(replace(item, effort=1.0, value=1.0) for item in items)
+    checked = check_problem(Problem(items=neutral, capacity=1.0), allow_zero_capacity=True)
+    raise_conflict(checked, decide(checked))
 
 
 def _solve(

@@ -14,6 +14,7 @@ from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, SQLModel, col, func, select
 
 from server.errors import InputError, StaleVersionError
+from server.message_titles import conflict_with_titles
 from server.models import EffortLine, Initiative, Need, Period, Team, utcnow
 from server.schemas import (
     EffortIn,
@@ -23,6 +24,8 @@ from server.schemas import (
     InitiativeUpdate,
     TeamEffortIn,
 )
+from server.selector import Item, SelectorInputError
+from server.selector import check_marks as selector_check_marks
 from server.store import audit
 from server.store._common import get_or_404
 
@@ -424,6 +427,7 @@ def create_initiatives(
     lines = [line for record in records for line in record.efforts.values()]
     _insert_rows(session, lines, ("initiative_id", "team_id"))
     add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
+    check_marks(session, records)
     # Built from what was stored, so the entries need no read-back of the rows.
     entries = [
         audit.entry(
@@ -439,6 +443,57 @@ def create_initiatives(
     ]
     audit.record_many(session, entries)
     return records
+
+
+def check_marks(
+    session: Session, records: Iterable[InitiativeRecord], *, field: str | None = None
+) -> None:
+    """Refuse pins, rule-outs, needs and either-or sets that no plan could honour.
+
+    Run after writing the initiatives, before the commit: each plan they take part in (their
+    own team's and every team they carry effort for, in their period) is reloaded and checked
+    as the selector would check it, with the needs inside that plan. Raises InputError naming
+    the initiatives by title; field, when given, is the one the message belongs to (e.g. the
+    state someone just set), else the selector's own (either_or or needs).
+    """
+    _check_plans(session, _plans_of(records), field)
+
+
+def _plans_of(records: Iterable[InitiativeRecord]) -> set[tuple[int, int]]:
+    """The (team, period) plans these initiatives take part in."""
+    return {
+        (team_id, record.row.period_id)
+        for record in records
+        if record.row.period_id is not None
+        for team_id in record.efforts
+    }
+
+
+def _check_plans(session: Session, plans: set[tuple[int, int]], field: str | None) -> None:
+    for team_id, period_id in sorted(plans):
+        records = list_initiatives(
+            session, team_id=team_id, period_id=period_id, involving_team=True
+        )
+        inside = {str(r.row.id) for r in records}
+        items = [
+            Item(
+                key=str(r.row.id),
+                effort=1.0,
+                value=1.0,
+                pinned=r.row.state == "pinned",
+                ruled_out=r.row.state == "ruled_out",
+                needs=tuple(str(n) for n in r.needs if str(n) in inside),
+                either_or=r.row.either_or,
+            )
+            for r in records
+        ]
+        try:
+            selector_check_marks(items)
+        except SelectorInputError as exc:
+            titles = {str(r.row.id): r.row.title for r in records}
+            raise InputError(
+                conflict_with_titles(exc.message, titles), field=field or exc.field
+            ) from exc
 
 
 def add_needs(session: Session, *, needs: Iterable[tuple[int, int]]) -> None:
@@ -507,6 +562,16 @@ def update_initiative(
         session.add(db_row)
     try:
         session.flush()
+        if changes & {"state", "either_or", "needs", "period_id", "other_efforts"}:
+            try:
+                check_marks(
+                    session,
+                    [get_initiative(session, initiative_id=initiative_id)],
+                    field="state" if "state" in changes else None,
+                )
+            except InputError:
+                session.rollback()
+                raise
         after = get_initiative(session, initiative_id=initiative_id).to_public()
         audit.record(
             session,

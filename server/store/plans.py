@@ -26,7 +26,7 @@ from server.planning.scenarios import ScenarioChanges
 from server.planning.snapshots import Snapshot
 from server.store import audit
 from server.store._common import get_or_404
-from server.store.initiatives import add_needs, create_initiatives
+from server.store.initiatives import add_needs, check_marks, create_initiatives
 from server.store.periods import get_period
 from server.store.teams import get_team
 
@@ -328,6 +328,7 @@ def import_plan(
             session,
             needs=[(ids[row.key], ids[needed]) for row in imported.rows for needed in row.needs],
         )
+        check_marks(session, records)  # again, with the needs between the file's rows
         changes = ScenarioChanges(
             capacity_days=imported.capacity_days,
             confidence=imported.confidence,

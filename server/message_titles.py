@@ -1,0 +1,43 @@
+"""Selector messages name initiatives by key (their database id): reword them with titles.
+
+Used where a selector message reaches a person: the plan page, and the store when it refuses
+marks (pins, rule-outs, needs, either-or sets) that no plan could honour.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping, Sequence
+
+_QUOTED_KEY = re.compile(r"initiative '(\d+)'")
+# A conflict message starts "initiative '<key>': <field>: " and goes on either with its own
+# subject ("pinned '3' needs ruled-out '4'") or without one ("is pinned, but so is '5' ...").
+_CONFLICT_PREFIX = re.compile(r"^initiative '(\d+)': (?:either_or|needs):? ")
+_BARE_KEY = re.compile(r"'(\d+)'")
+
+
+def with_titles(text: str, titles: Mapping[str, str], keys: Sequence[str] = ()) -> str:
+    """Name initiatives by title in a selector message that names them by key."""
+    text = _QUOTED_KEY.sub(lambda m: f"“{titles.get(m[1], m[1])}”", text)
+    if keys:
+        joined = ", ".join(keys)
+        named = ", ".join(f"“{titles.get(k, k)}”" for k in keys)
+        for before, after in (
+            (f"displace {joined}.", f"displace {named}."),
+            (f"; {joined} would take its place", f"; {named} would take its place"),
+            (f"includes {joined}, needed", f"includes {named}, needed"),
+        ):
+            text = text.replace(before, after)
+    return text
+
+
+def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
+    """A selector's marks conflict as a sentence about titles, without keys or field names."""
+    match = _CONFLICT_PREFIX.match(text)
+    if match is not None:
+        rest = text[match.end() :]
+        subject = f"“{titles.get(match[1], match[1])}” " if rest.startswith("is ") else ""
+        text = subject + rest
+    # Only keys of known initiatives: an either-or set may be named with digits too.
+    text = _BARE_KEY.sub(lambda m: f"“{titles[m[1]]}”" if m[1] in titles else m[0], text)
+    return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")
