@@ -17,6 +17,7 @@ from server.schemas import MAX_EFFORT_DAYS, MAX_VALUE
 from server.selector import (
     Item,
     Problem,
+    Selection,
     SelectorInputError,
     default_curve_to,
     selection_to_dict,
@@ -29,15 +30,26 @@ MAX_ITEMS = 5000
 # One request may ask for at most this many DP cells (items x capacity units): well under a
 # second of work, so one caller cannot tie up a worker.
 MAX_CELLS = 200_000_000
-Key = Annotated[str, StringConstraints(min_length=1, max_length=120)]
+# At most this many points on a capacity curve (capacity units from 0 to curve_to): about
+# 2 MB of JSON, a hundred times a usual quarter's curve at half-day resolution.
+MAX_CURVE_POINTS = 100_000
+# Keys are trimmed, so "a" and "a " are one key (a duplicate), and hold no control characters.
+Key = Annotated[
+    str,
+    StringConstraints(
+        strip_whitespace=True, min_length=1, max_length=120, pattern=r"^[^\x00-\x1f\x7f]+$"
+    ),
+]
+# Strict: true, false and numbers written as text are refused, not read as 1, 0 or a number.
+Number = Annotated[float, Field(strict=True, allow_inf_nan=False)]
 
 
 class SelectItem(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     key: Key
-    effort: float = Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False, description="Days.")
-    value: float = Field(gt=0, le=MAX_VALUE, allow_inf_nan=False)
+    effort: Number = Field(gt=0, le=MAX_EFFORT_DAYS, description="Days.")
+    value: Number = Field(gt=0, le=MAX_VALUE)
     pinned: bool = False
     ruled_out: bool = False
     needs: list[Key] = Field(default_factory=list, max_length=200)
@@ -47,17 +59,30 @@ class SelectItem(BaseModel):
 class SelectRequest(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
-    capacity: float = Field(gt=0, le=1_000_000, allow_inf_nan=False, description="Days.")
-    resolution: float = Field(0.5, gt=0, le=10, allow_inf_nan=False, description="Days.")
+    capacity: Number = Field(gt=0, le=1_000_000, description="Days.")
+    resolution: Number = Field(0.5, gt=0, le=10, description="Days.")
     items: list[SelectItem] = Field(max_length=MAX_ITEMS)
     curve: bool = Field(False, description="Add the capacity curve up to capacity + 25 %.")
-    curve_to: float | None = Field(
-        None, gt=0, le=1_000_000, allow_inf_nan=False, description="Curve end, in days."
+    curve_to: Number | None = Field(
+        None, gt=0, le=1_000_000, description="Curve end, in days: at least the capacity."
     )
     explain: bool = Field(False, description="Add one explanation per item.")
 
     @model_validator(mode="after")
     def _bounded_work(self) -> SelectRequest:
+        if self.curve_to is not None:
+            if self.curve_to < self.capacity:
+                raise ValueError(
+                    f"curve_to: {self.curve_to:g} days is below the capacity of "
+                    f"{self.capacity:g} days; the curve runs from 0 past the capacity"
+                )
+            points = self.curve_to / self.resolution + 1
+            if points > MAX_CURVE_POINTS:
+                raise ValueError(
+                    f"curve_to: a curve to {self.curve_to:g} days at a {self.resolution:g}-day "
+                    f"resolution has {points:,.0f} points, more than one request may ask "
+                    f"({MAX_CURVE_POINTS:,}); use a nearer curve_to or a coarser resolution"
+                )
         units = max(self.capacity, self.curve_to or 0) / self.resolution
         if units * max(len(self.items), 1) > MAX_CELLS:
             raise ValueError(
@@ -108,6 +133,7 @@ class SelectResponse(BaseModel):
     forced_by_needs: list[str]
     cells: int
     curve: CurveOut | None = None
+    curve_note: str | None = Field(None, description="Why a curve that was asked for is absent.")
     explanations: list[ExplanationOut] | None = None
 
 
@@ -149,7 +175,20 @@ def select(request_in: SelectRequest) -> Any:
         selection = solve(problem, curve_to=curve_to, explain=request_in.explain)
     except SelectorInputError as exc:
         return _selector_error(exc, [item.key for item in items])
-    return selection_to_dict(selection)
+    answer = selection_to_dict(selection)
+    if curve_to is not None and selection.curve is None:
+        answer["curve_note"] = _no_curve_reason(selection)
+    return answer
+
+
+def _no_curve_reason(selection: Selection) -> str:
+    if not selection.feasible:
+        return "No capacity curve: pinned work alone does not fit the capacity."
+    return (
+        f"No capacity curve: the curve is read from the dynamic program's last row, and this "
+        f"problem was solved by {selection.method} (needs combined with either-or sets, or "
+        "effort for several teams), which finds the best plan at one capacity only."
+    )
 
 
 @router.get(

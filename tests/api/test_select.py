@@ -187,3 +187,67 @@ def test_ids_too_large_for_the_database_are_unknown_not_errors(
     response = client.get(path)
     assert response.status_code == 404
     assert "too large" in response.text
+
+
+@pytest.mark.parametrize(
+    ("change", "field"),
+    [
+        ({"capacity": True}, "capacity"),  # not read as 1 day
+        ({"capacity": "10"}, "capacity"),  # a number written as text
+        ({"resolution": False}, "resolution"),
+        ({"curve_to": 5}, "curve_to"),  # below the capacity of 10
+        ({"curve_to": 100_000, "resolution": 0.5}, "curve_to"),  # 200,001 points
+    ],
+)
+def test_numbers_are_numbers_and_the_curve_is_bounded(
+    client: TestClient, change: dict, field: str
+) -> None:
+    body = {"capacity": 10, "items": [{"key": "a", "effort": 2, "value": 3}]} | change
+    response = client.post("/api/v1/select", json=body)
+    assert response.status_code == 422, response.text
+    assert field in " ".join(str(e.get("field") or e["loc"]) for e in response.json()["detail"])
+
+
+def test_item_numbers_are_strict_too(client: TestClient) -> None:
+    for bad in (True, "2"):
+        body = {"capacity": 10, "items": [{"key": "a", "effort": bad, "value": 3}]}
+        response = client.post("/api/v1/select", json=body)
+        assert response.status_code == 422
+        assert response.json()["detail"][0]["loc"][-1] == "effort"
+
+
+def test_keys_are_trimmed_and_free_of_control_characters(client: TestClient) -> None:
+    twins = [{"key": "a", "effort": 1, "value": 1}, {"key": "a ", "effort": 1, "value": 2}]
+    response = client.post("/api/v1/select", json={"capacity": 5, "items": twins})
+    assert response.status_code == 422
+    assert "used by more than one initiative" in response.text
+    for bad in ("a\x00b", "tab\there", "line\nbreak"):
+        item = {"key": bad, "effort": 1, "value": 1}
+        response = client.post("/api/v1/select", json={"capacity": 5, "items": [item]})
+        assert response.status_code == 422, bad
+    spaced = {"key": "  padded  ", "effort": 1, "value": 1}
+    answer = client.post("/api/v1/select", json={"capacity": 5, "items": [spaced]}).json()
+    assert answer["chosen"] == ["padded"]
+
+
+def test_a_curve_asked_for_but_not_computed_says_why(client: TestClient) -> None:
+    # needs together with an either-or set: solved by HiGHS, which gives no curve
+    items = [
+        {"key": "a", "effort": 2, "value": 5, "either_or": "s"},
+        {"key": "b", "effort": 3, "value": 6, "either_or": "s"},
+        {"key": "c", "effort": 2, "value": 4, "needs": ["a", "b"]},
+    ]
+    answer = client.post("/api/v1/select", json={"capacity": 6, "items": items, "curve": True})
+    assert answer.status_code == 200, answer.text
+    body = answer.json()
+    assert body["method"] == "milp-highs"
+    assert body["curve"] is None
+    assert "milp-highs" in body["curve_note"]
+    plain = [{"key": "a", "effort": 2, "value": 5}]
+    body = client.post("/api/v1/select", json={"capacity": 6, "items": plain, "curve": True}).json()
+    assert body["curve"] is not None
+    assert body["curve_note"] is None
+    over = [{"key": "a", "effort": 8, "value": 5, "pinned": True}]
+    body = client.post("/api/v1/select", json={"capacity": 6, "items": over, "curve": True}).json()
+    assert body["curve"] is None
+    assert "pinned work alone" in body["curve_note"]
