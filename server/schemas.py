@@ -20,6 +20,7 @@ from pydantic import (
 )
 
 from server.models import NAME_MAX, NOTES_MAX, TITLE_MAX
+from server.text_rules import VISIBLE_TEXT, WEEKMASK
 
 MAX_PERIOD_DAYS = 400
 MAX_EFFORT_DAYS = 10_000.0
@@ -35,8 +36,18 @@ def _not_a_boolean(value: Any) -> Any:
 
 _NUMBER = BeforeValidator(_not_a_boolean)
 WholeNumber = Annotated[int, _NUMBER]
-Name = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=NAME_MAX)]
-Title = Annotated[str, StringConstraints(strip_whitespace=True, min_length=1, max_length=TITLE_MAX)]
+Name = Annotated[
+    str,
+    StringConstraints(
+        strip_whitespace=True, min_length=1, max_length=NAME_MAX, pattern=VISIBLE_TEXT
+    ),
+]
+Title = Annotated[
+    str,
+    StringConstraints(
+        strip_whitespace=True, min_length=1, max_length=TITLE_MAX, pattern=VISIBLE_TEXT
+    ),
+]
 Notes = Annotated[str, StringConstraints(max_length=NOTES_MAX)]
 Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), _NUMBER]
 DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False), _NUMBER]
@@ -45,7 +56,7 @@ ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False), _NUMBER]
 Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False), _NUMBER]
 ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False), _NUMBER]
 EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False), _NUMBER]
-Weekmask = Annotated[str, StringConstraints(pattern=r"^[01]{7}$")]
+Weekmask = Annotated[str, StringConstraints(pattern=WEEKMASK)]
 PeriodKind = Literal["sprint", "quarter"]
 InitiativeState = Literal["candidate", "pinned", "ruled_out"]
 INITIATIVE_STATES: tuple[str, ...] = ("candidate", "pinned", "ruled_out")

@@ -8,6 +8,8 @@ from typing import Any, TypeVar
 
 from pydantic import BaseModel, ValidationError
 
+from server.text_rules import VISIBLE_TEXT, WEEKMASK
+
 ModelT = TypeVar("ModelT", bound=BaseModel)
 _PREFIXED = re.compile(r"^(?:Value error, )?(?P<field>[a-z_]+): (?P<message>.+)$", re.DOTALL)
 _LOCATION_WORDS = {"body", "query", "path", "form"}
@@ -32,7 +34,53 @@ def field_and_message(error: Mapping[str, Any]) -> tuple[str, str]:
         message = "Enter a number."
     elif error.get("type") == "finite_number":
         message = "Enter a finite number."
+    else:
+        message = _plain_words(error) or message
     return field, message
+
+
+# Messages for the usual pydantic error types, phrased for the person at the form.
+_PATTERN_MESSAGES = {
+    VISIBLE_TEXT: "Use visible characters only (no line breaks, tabs or control characters).",
+    WEEKMASK: "Enter seven digits, Monday first: 1 for a working day, 0 for a day off.",
+}
+
+
+def _plain_words(error: Mapping[str, Any]) -> str | None:
+    kind = str(error.get("type", ""))
+    ctx = error.get("ctx") or {}
+
+    def bound(name: str) -> str:
+        value = ctx.get(name)
+        return f"{value:,g}" if isinstance(value, int | float) else str(value)
+
+    if kind == "string_too_short":
+        least = ctx.get("min_length", 1)
+        return "Enter some text." if least == 1 else f"Enter at least {least} characters."
+    if kind == "string_too_long":
+        return f"Keep it to {ctx.get('max_length')} characters at most."
+    if kind == "string_pattern_mismatch":
+        return _PATTERN_MESSAGES.get(
+            str(ctx.get("pattern")), "This text is not in the form expected."
+        )
+    if kind == "greater_than":
+        return f"Enter a number above {bound('gt')}."
+    if kind == "greater_than_equal":
+        return f"Enter a number of at least {bound('ge')}."
+    if kind == "less_than":
+        return f"Enter a number below {bound('lt')}."
+    if kind == "less_than_equal":
+        return f"Enter a number of at most {bound('le')}."
+    if kind in {"date_parsing", "date_from_datetime_parsing", "date_type"}:
+        return "Enter a date as YYYY-MM-DD (for example 2027-03-01)."
+    if kind in {"bool_parsing", "bool_type"}:
+        return "Enter true or false."
+    if kind in {"string_type"}:
+        return "Enter text."
+    if kind in {"literal_error", "enum"}:
+        expected = ctx.get("expected")
+        return f"Choose one of {expected}." if expected else None
+    return None
 
 
 def api_errors(errors: Sequence[Mapping[str, Any]]) -> list[dict[str, Any]]:

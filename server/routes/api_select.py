@@ -23,6 +23,7 @@ from server.selector import (
     selection_to_dict,
     solve,
 )
+from server.text_rules import VISIBLE_TEXT
 
 router = APIRouter(prefix="/api/v1", tags=["selector"], responses=ERRORS)
 
@@ -33,12 +34,10 @@ MAX_CELLS = 200_000_000
 # At most this many points on a capacity curve (capacity units from 0 to curve_to): about
 # 2 MB of JSON, a hundred times a usual quarter's curve at half-day resolution.
 MAX_CURVE_POINTS = 100_000
-# Keys are trimmed, so "a" and "a " are one key (a duplicate), and hold no control characters.
+# Keys are trimmed, so "a" and "a " are one key (a duplicate), and are visible text.
 Key = Annotated[
     str,
-    StringConstraints(
-        strip_whitespace=True, min_length=1, max_length=120, pattern=r"^[^\x00-\x1f\x7f]+$"
-    ),
+    StringConstraints(strip_whitespace=True, min_length=1, max_length=120, pattern=VISIBLE_TEXT),
 ]
 # Strict: true, false and numbers written as text are refused, not read as 1, 0 or a number.
 Number = Annotated[float, Field(strict=True, allow_inf_nan=False)]

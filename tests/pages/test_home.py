@@ -86,7 +86,7 @@ def test_a_form_without_its_token_is_refused_and_stores_nothing(
 
 @pytest.mark.parametrize(
     ("typed", "message"),
-    [("", "at least 1 character"), ("   ", "at least 1 character"), ("t" * 81, "at most 80")],
+    [("", "Enter some text"), ("   ", "Enter some text"), ("t" * 81, "80 characters at most")],
 )
 def test_a_bad_team_name_is_shown_again_with_the_message(
     form_client: TestClient, session: Session, typed: str, message: str
@@ -131,9 +131,9 @@ def test_adding_a_period(form_client: TestClient, session: Session) -> None:
         ({"start_date": ""}, "start_date", "date"),
         ({"non_working_dates": "2027-04-01"}, "non_working_dates", "outside the period"),
         ({"non_working_dates": "2027-03-40"}, "non_working_dates", "date"),
-        ({"weekmask": "11111"}, "weekmask", "pattern"),
+        ({"weekmask": "11111"}, "weekmask", "seven digits"),
         ({"kind": "month"}, "kind", "sprint"),
-        ({"name": "p" * 81}, "name", "at most 80"),
+        ({"name": "p" * 81}, "name", "80 characters at most"),
     ],
 )
 def test_a_bad_period_is_shown_again_with_the_values_kept(

@@ -141,8 +141,8 @@ def test_adding_to_the_backlog_with_a_single_estimate(
 @pytest.mark.parametrize(
     ("change", "field", "message"),
     [
-        ({"title": ""}, "title", "at least 1 character"),
-        ({"title": "i" * 201}, "title", "at most 200"),
+        ({"title": ""}, "title", "Enter some text"),
+        ({"title": "i" * 201}, "title", "200 characters at most"),
         (
             {"effort.likely": "abc", "effort.low": "", "effort.high": ""},
             "effort.likely",
@@ -151,17 +151,17 @@ def test_adding_to_the_backlog_with_a_single_estimate(
         (
             {"effort.likely": "-3", "effort.low": "", "effort.high": ""},
             "effort.likely",
-            "greater than 0",
+            "above 0",
         ),
         ({"effort.likely": "", "effort.low": "", "effort.high": ""}, "effort.likely", "number"),
         ({"effort.low": "6"}, "effort.low", "above the likely"),
         ({"effort.high": "4"}, "effort.high", "below the likely"),
         ({"effort.high": ""}, "effort.high", "low and high together"),
         ({"value": "abc"}, "value", "Enter a number"),
-        ({"value": "0"}, "value", "greater than 0"),
+        ({"value": "0"}, "value", "above 0"),
         ({"confidence": "150"}, "confidence", "at most 100"),
         ({"confidence": "sure"}, "confidence", "percentage"),
-        ({"either_or": "e" * 81}, "either_or", "at most 80"),
+        ({"either_or": "e" * 81}, "either_or", "80 characters at most"),
     ],
 )
 def test_a_bad_initiative_form_is_shown_again(
@@ -254,9 +254,9 @@ def test_a_stale_edit_shows_both_versions(
 @pytest.mark.parametrize(
     ("change", "field", "message"),
     [
-        ({"effort.likely": "-3", "effort.low": "", "effort.high": ""}, "effort.likely", "greater"),
+        ({"effort.likely": "-3", "effort.low": "", "effort.high": ""}, "effort.likely", "above"),
         ({"effort.low": "6"}, "effort.low", "above the likely"),
-        ({"title": " "}, "title", "at least 1 character"),
+        ({"title": " "}, "title", "Enter some text"),
     ],
 )
 def test_a_bad_edit_is_shown_again_and_changes_nothing(

@@ -86,7 +86,7 @@ def test_errors_name_the_line_and_the_field() -> None:
     errors = {row.line: row.errors for row in result.rows}
     assert errors[1] == {}
     assert errors[2] == {"effort": "Enter a number."}
-    assert "greater than 0" in errors[3]["effort"]
+    assert "above 0" in errors[3]["effort"]
     assert errors[4] == {"value": "This field is required."}
     assert "not a state" in errors[5]["state"]
     assert "formula" in errors[6]["title"]

@@ -517,7 +517,7 @@ def test_inline_edit_without_script_redirects_back(
     ("effort", "message"),
     [
         ("abc", "Enter a number."),
-        ("-2", "greater than 0"),
+        ("-2", "above 0"),
         ("3/2/8", "low estimate is above the likely one"),
     ],
 )

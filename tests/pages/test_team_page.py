@@ -116,10 +116,10 @@ def test_setting_days_off_through_the_form(
     ("days_off", "allocation", "field", "message"),
     [
         ("11", "", "days_off", "more than the 10 working days"),
-        ("-1", "", "days_off", "greater than or equal to 0"),
+        ("-1", "", "days_off", "at least 0"),
         ("abc", "", "days_off", "Enter a number"),
         ("nan", "", "days_off", "finite number"),
-        ("1", "1.5", "allocation", "less than or equal to 1"),
+        ("1", "1.5", "allocation", "at most 1"),
     ],
 )
 def test_bad_days_off_are_shown_again_in_the_member_row(
@@ -190,10 +190,10 @@ def test_adding_a_member_through_the_form(
 @pytest.mark.parametrize(
     ("name", "allocation", "field", "message"),
     [
-        ("", "1", "name", "at least 1 character"),
+        ("", "1", "name", "Enter some text"),
         ("Ola", "1", "name", "already has a member"),
-        ("Eli", "2", "allocation", "less than or equal to 1"),
-        ("Eli", "0", "allocation", "greater than 0"),
+        ("Eli", "2", "allocation", "at most 1"),
+        ("Eli", "0", "allocation", "above 0"),
         ("Eli", "full", "allocation", "Enter a number"),
     ],
 )

@@ -310,7 +310,7 @@ def test_scenario_pages_create_show_change_and_save(
     )
     assert refused.status_code == 422
     assert 'value="2"' in refused.text  # the typed value is kept
-    assert "less than or equal to 1" in refused.text
+    assert "at most 1" in refused.text
     assert counts(session) == before
 
     saved = form_client.post(
