@@ -29,6 +29,19 @@ from server.store._common import get_or_404
 BACKLOG = "backlog"
 
 
+def title_key(title: str) -> str:
+    """How titles are compared to find the same initiative twice: trimmed, ignoring case."""
+    return title.strip().lower()
+
+
+def title_keys_in(session: Session, *, team_id: int, period_id: int) -> frozenset[str]:
+    """The `title_key` of each of the team's initiatives in the period."""
+    query = select(Initiative.title).where(
+        Initiative.team_id == team_id, Initiative.period_id == period_id
+    )
+    return frozenset(title_key(title) for title in session.exec(query))
+
+
 @dataclass
 class InitiativeRecord:
     """An initiative with its effort lines and needs loaded."""
