@@ -25,7 +25,7 @@ from sqlmodel import Session
 from server.errors import InputError
 from server.schemas import InitiativeCreate
 from server.store import audit
-from server.store.initiatives import create_initiatives
+from server.store.initiatives import create_initiatives, title_key
 from server.validation import parse_form
 
 MAX_ROWS = 500
@@ -259,7 +259,7 @@ def _parse_row(
     initiative_in, refused = parse_form(InitiativeCreate, values)
     for name, message in refused.items():
         errors.setdefault(_field_of(name), message)
-    key = title.strip().lower()
+    key = title_key(title)
     notes: list[str] = []
     if key and key in seen:
         errors.setdefault("title", f"The same title as line {seen[key]}.")

@@ -8,6 +8,9 @@ further back:
   follow the new id);
 - a paste is reverted as a whole (all its rows are deleted).
 
+An initiative that another one needs by now is not deleted: the undo is refused with the
+dependants named (the store's rule for every deletion).
+
 The undo itself is recorded as an `initiative.undo` entry naming the entry it reverted and the
 entries its own changes wrote, and the reverted entry gets `undone_at`. Changes an undo makes
 are never offered for undoing themselves (that would be redo, which this does not offer).
@@ -30,6 +33,7 @@ from server.store import audit
 from server.store.initiatives import (
     create_initiative,
     delete_initiative,
+    delete_initiatives,
     get_initiative,
     update_initiative,
 )
@@ -175,12 +179,10 @@ def _revert(
     if entry.action == "initiative.paste":
         ids = [_current_id(history, int(i)) for i in (entry.after or {}).get("initiative_ids", [])]
         present = [i for i in ids if _exists(session, i)]
-        # Each delete commits on its own; the marks go with the last one, so an interrupted
-        # undo leaves the paste on offer to finish removing it.
-        for initiative_id in present[:-1]:
-            delete_initiative(session, initiative_id=initiative_id, actor=actor)
+        # One commit for all the rows and the marks: needs between pasted rows go with them,
+        # and a row another initiative needs by now refuses the whole undo.
         marker = _mark(session, entry, team_id, actor, None)
-        delete_initiative(session, initiative_id=present[-1], actor=actor)
+        delete_initiatives(session, initiative_ids=present, actor=actor)
         return marker, f"Removed the {len(present)} pasted initiative(s) again."
     if entry.action == "initiative.update":
         initiative_id = _current_id(history, entry.entity_id or 0)

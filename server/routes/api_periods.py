@@ -50,5 +50,9 @@ def update_period(period_id: int, period_in: PeriodUpdate, session: SessionDep) 
 
 @router.delete("/periods/{period_id}", status_code=status.HTTP_204_NO_CONTENT)
 def delete_period(period_id: int, session: SessionDep) -> None:
-    """Delete a period; its initiatives move to the unscheduled backlog."""
+    """Delete a period nothing uses any more.
+
+    Refused (409, naming what is left) while initiatives, availability entries, scenarios or
+    saved plans refer to it. The teams' capacity settings of the period go with it.
+    """
     store.delete_period(session, period_id=period_id)

@@ -620,7 +620,9 @@ def save_scenario_as_plan(
     status_code=status.HTTP_201_CREATED,
     description="Import a plan CSV exported by Loadline into a team and period: creates the "
     "initiatives and a scenario with the plan's capacity; solving it on an empty team gives "
-    "the same plan. All or nothing.",
+    "the same plan. All or nothing. Refused (422, field csv) while any of the file's titles "
+    "is already one of the team's initiatives in the period (ignoring case and surrounding "
+    "spaces), so a plan is not imported twice.",
 )
 def import_plan(team_id: PathId, import_in: ImportIn, session: SessionDep) -> ImportPublic:
     parsed = exports.parse_plan_csv(import_in.csv)

@@ -462,8 +462,16 @@ async def edit_initiative(
 
 
 @router.post("/initiatives/{initiative_id}/delete")
-async def delete_initiative(initiative_id: int, session: SessionDep) -> Response:
+async def delete_initiative(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
     record = initiative_store.get_initiative(session, initiative_id=initiative_id)
     period = str(record.row.period_id) if record.row.period_id else initiative_store.BACKLOG
-    initiative_store.delete_initiative(session, initiative_id=initiative_id)
+    try:
+        initiative_store.delete_initiative(session, initiative_id=initiative_id)
+    except LoadlineError as exc:  # e.g. still needed: the edit page again, with the reason
+        context = _edit_context(session, initiative_id) | {"delete_error": exc.message}
+        return _render(
+            templates, request, "initiative_edit.html", context, status_code=exc.status_code
+        )
     return see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")

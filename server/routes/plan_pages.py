@@ -433,7 +433,7 @@ async def quick_add(
 
 
 def _parse(session: SessionDep, team_id: int, view: PlanView, text: str) -> PasteResult:
-    existing = frozenset(row.title.strip().lower() for row in view.rows)
+    existing = frozenset(initiative_store.title_key(row.title) for row in view.rows)
     return parse_paste(
         text, team_id=team_id, period_id=view.whatif.period_id, existing_titles=existing
     )

@@ -13,7 +13,7 @@ from sqlalchemy.orm import make_transient_to_detached
 from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, SQLModel, col, func, select
 
-from server.errors import InputError, StaleVersionError
+from server.errors import ConflictError, InputError, StaleVersionError
 from server.message_titles import conflict_with_titles
 from server.models import EffortLine, Initiative, Need, Period, Team, utcnow
 from server.schemas import (
@@ -30,6 +30,19 @@ from server.store import audit
 from server.store._common import get_or_404
 
 BACKLOG = "backlog"
+
+
+def title_key(title: str) -> str:
+    """How titles are compared to find the same initiative twice: trimmed, ignoring case."""
+    return title.strip().lower()
+
+
+def title_keys_in(session: Session, *, team_id: int, period_id: int) -> frozenset[str]:
+    """The `title_key` of each of the team's initiatives in the period."""
+    query = select(Initiative.title).where(
+        Initiative.team_id == team_id, Initiative.period_id == period_id
+    )
+    return frozenset(title_key(title) for title in session.exec(query))
 
 
 @dataclass
@@ -596,20 +609,88 @@ def update_initiative(
     return get_initiative(session, initiative_id=initiative_id)
 
 
-def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:
-    record = get_initiative(session, initiative_id=initiative_id)
-    audit.record(
-        session,
-        actor=actor,
-        action="initiative.delete",
-        entity="initiative",
-        entity_id=initiative_id,
-        team_id=record.row.team_id,
-        summary=f"Deleted “{record.row.title}”",
-        before=record.to_public().model_dump(mode="json"),
-    )
-    session.delete(record.row)
+def _and_list(parts: Sequence[str]) -> str:
+    return parts[0] if len(parts) == 1 else f"{', '.join(parts[:-1])} and {parts[-1]}"
+
+
+def _refuse_if_needed(session: Session, records: Sequence[InitiativeRecord]) -> None:
+    """Refuse to delete initiatives that others still need (ConflictError naming them).
+
+    The database would drop those needs without a version step or an audit entry, and the
+    dependants could then be chosen without what they need. Needs among `records` themselves
+    go with them.
+    """
+    doomed = {record.row.id or 0: record.row for record in records}
+    ids = sorted(doomed)
+    needed_by: dict[int, list[Initiative]] = defaultdict(list)
+    for start in range(0, len(ids), _IN_CHUNK):
+        query = (
+            select(Need.needed_id, Initiative)
+            .join(Initiative, col(Initiative.id) == Need.initiative_id)
+            .where(col(Need.needed_id).in_(ids[start : start + _IN_CHUNK]))
+        )
+        for needed_id, dependant in session.exec(query):
+            if dependant.id not in doomed:
+                needed_by[needed_id].append(dependant)
+    if not needed_by:
+        return
+    # Another team's dependant is named with its team, or it is hard to find.
+    foreign = {
+        dependant.team_id
+        for needed_id, dependants in needed_by.items()
+        for dependant in dependants
+        if dependant.team_id != doomed[needed_id].team_id
+    }
+    teams = {
+        team.id: team.name
+        for team in session.exec(select(Team).where(col(Team.id).in_(sorted(foreign))))
+    }
+    parts = []
+    for needed_id in ids:
+        owner = doomed[needed_id].team_id
+        # The owning team's dependants first, each team's in its list order.
+        dependants = sorted(
+            needed_by.get(needed_id, []),
+            key=lambda d: (d.team_id != owner, d.team_id, d.position, d.id or 0),
+        )
+        if not dependants:
+            continue
+        names = [
+            repr(d.title) + (f" (team {teams[d.team_id]})" if d.team_id in teams else "")
+            for d in dependants[:_LISTED]
+        ]
+        if len(dependants) > _LISTED:
+            names.append(f"{len(dependants) - _LISTED} more")
+        parts.append(f"{doomed[needed_id].title!r} is needed by {_and_list(names)}")
+    advice = "remove it from their needs first" if len(parts) == 1 else "remove those needs first"
+    raise ConflictError(f"{'; '.join(parts)}; {advice}.", field="initiative_id")
+
+
+def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor: str = "") -> None:
+    """Delete initiatives together, with an `initiative.delete` audit entry each, in one commit.
+
+    Refused, with nothing deleted, while an initiative not among them needs one of them.
+    """
+    records = [get_initiative(session, initiative_id=i) for i in dict.fromkeys(initiative_ids)]
+    _refuse_if_needed(session, records)
+    for record in records:
+        audit.record(
+            session,
+            actor=actor,
+            action="initiative.delete",
+            entity="initiative",
+            entity_id=record.row.id,
+            team_id=record.row.team_id,
+            summary=f"Deleted “{record.row.title}”",
+            before=record.to_public().model_dump(mode="json"),
+        )
+        session.delete(record.row)
     session.commit()
+
+
+def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:
+    """Delete one initiative; refused while another initiative needs it."""
+    delete_initiatives(session, initiative_ids=[initiative_id], actor=actor)
 
 
 _UNTRACKED = {"version", "updated_at", "created_at"}

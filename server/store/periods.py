@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import datetime as dt
+from typing import Any
 
 from pydantic import ValidationError
-from sqlmodel import Session, func, select
+from sqlmodel import Session, SQLModel, col, func, select
 
 from server.capacity import (
     DEFAULT_FOCUS_FACTOR,
@@ -13,8 +14,17 @@ from server.capacity import (
     working_days,
 )
 from server.errors import ConflictError, InputError
-from server.models import CapacitySettings, Period, Team
+from server.models import (
+    Availability,
+    CapacitySettings,
+    Initiative,
+    Period,
+    SavedPlan,
+    Scenario,
+    Team,
+)
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
+from server.store import audit
 from server.store._common import commit_or_conflict, get_or_404
 from server.validation import field_and_message
 
@@ -88,8 +98,93 @@ def update_period(session: Session, *, period_id: int, period_in: PeriodUpdate) 
     return db_period
 
 
-def delete_period(session: Session, *, period_id: int) -> None:
-    session.delete(get_period(session, period_id=period_id))
+def _count(session: Session, model: type[SQLModel], column: Any, period_id: int) -> int:
+    query = select(func.count()).select_from(model).where(column == period_id)
+    return int(session.exec(query).one())
+
+
+def _and_list(parts: list[str]) -> str:
+    return parts[0] if len(parts) == 1 else f"{', '.join(parts[:-1])} and {parts[-1]}"
+
+
+def _uses_message(session: Session, db_period: Period) -> str | None:
+    """What still refers to the period, in words, or None when nothing does."""
+    period_id = db_period.id or 0
+    per_team = session.exec(
+        select(Team.name, func.count())
+        .join(Initiative, col(Initiative.team_id) == Team.id)
+        .where(Initiative.period_id == period_id)
+        .group_by(Team.name)
+        .order_by(Team.name)
+    ).all()
+    initiatives = sum(int(count) for _, count in per_team)
+    availability = _count(session, Availability, Availability.period_id, period_id)
+    scenarios = _count(session, Scenario, Scenario.period_id, period_id)
+    plans = _count(session, SavedPlan, SavedPlan.period_id, period_id)
+    if not (initiatives or availability or scenarios or plans):
+        return None
+    uses, steps = [], []
+    if initiatives:
+        teams = ", ".join(f"{name} {count}" for name, count in per_team)
+        uses.append(f"{initiatives} initiative(s) ({teams})")
+        steps.append("move the initiatives to another period or to the backlog")
+    if availability:
+        uses.append(f"{availability} availability entry(ies)")
+        steps.append("delete the availability entries")
+    if scenarios:
+        uses.append(f"{scenarios} scenario(s)")
+        steps.append("delete the scenarios")
+    if plans:
+        uses.append(f"{plans} saved plan(s)")
+    message = f"Period {db_period.name!r} still has {_and_list(uses)}."
+    if steps:
+        message += f" To delete it, {_and_list(steps)} first."
+    if plans:
+        message += " Saved plans are never changed, so a period they refer to is kept."
+    return message
+
+
+def delete_period(session: Session, *, period_id: int, actor: str = "") -> None:
+    """Delete a period that nothing refers to any more; refuse (ConflictError) otherwise.
+
+    The database would otherwise move its initiatives to the backlog, delete its availability
+    entries and scenarios and cut saved plans loose from it, without a word. The teams'
+    capacity settings of the period go with it; the audit entry keeps them.
+    """
+    db_period = get_period(session, period_id=period_id)
+    message = _uses_message(session, db_period)
+    if message is not None:
+        raise ConflictError(message, field="period_id")
+    settings = list(
+        session.exec(select(CapacitySettings).where(CapacitySettings.period_id == period_id))
+    )
+    audit.record(
+        session,
+        actor=actor,
+        action="period.delete",
+        entity="period",
+        entity_id=period_id,
+        summary=f"Deleted period “{db_period.name}”",
+        before={
+            "name": db_period.name,
+            "kind": db_period.kind,
+            "start_date": db_period.start_date.isoformat(),
+            "end_date": db_period.end_date.isoformat(),
+            "weekmask": db_period.weekmask,
+            "non_working_dates": list(db_period.non_working_dates),
+            "capacity_settings": [
+                {
+                    "team_id": row.team_id,
+                    "focus_factor": row.focus_factor,
+                    "reserve_pct": row.reserve_pct,
+                }
+                for row in settings
+            ],
+        },
+    )
+    for row in settings:
+        session.delete(row)
+    session.delete(db_period)
     session.commit()
 
 

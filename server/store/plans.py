@@ -19,14 +19,20 @@ from sqlalchemy import event
 from sqlmodel import Session, col, func, select
 
 from server.actor import current_actor
-from server.errors import ConflictError, NotFoundError
-from server.models import Initiative, Publication, SavedPlan, Scenario, utcnow
+from server.errors import ConflictError, InputError, NotFoundError
+from server.models import Initiative, Period, Publication, SavedPlan, Scenario, Team, utcnow
 from server.planning.exports import ImportedPlan
 from server.planning.scenarios import ScenarioChanges
 from server.planning.snapshots import Snapshot
 from server.store import audit
 from server.store._common import get_or_404
-from server.store.initiatives import add_needs, check_marks, create_initiatives
+from server.store.initiatives import (
+    add_needs,
+    check_marks,
+    create_initiatives,
+    title_key,
+    title_keys_in,
+)
 from server.store.periods import get_period
 from server.store.teams import get_team
 
@@ -295,6 +301,28 @@ def find_published(session: Session, *, token: str) -> tuple[Publication, SavedP
 # --- importing an exported plan ------------------------------------------------------------
 
 
+# Clashing titles named in the refusal of an import; the rest are counted.
+_CLASHES_LISTED = 5
+
+
+def _refuse_title_clashes(
+    session: Session, db_team: Team, db_period: Period, titles: Sequence[str]
+) -> None:
+    existing = title_keys_in(session, team_id=db_team.id or 0, period_id=db_period.id or 0)
+    clashes = [title for title in titles if title_key(title) in existing]
+    if not clashes:
+        return
+    named = ", ".join(repr(title) for title in clashes[:_CLASHES_LISTED])
+    if len(clashes) > _CLASHES_LISTED:
+        named += f" and {len(clashes) - _CLASHES_LISTED} more"
+    raise InputError(
+        f"csv: {len(clashes)} title(s) of the file are already initiatives of {db_team.name} "
+        f"in {db_period.name}: {named}. Nothing was imported; import into another period or "
+        "team, or rename or remove those initiatives first.",
+        field="csv",
+    )
+
+
 @dataclass(frozen=True)
 class ImportOutcome:
     initiative_ids: dict[str, int]  # key in the file -> new initiative id
@@ -311,9 +339,16 @@ def import_plan(
     scenario_name: str,
     actor: str = "",
 ) -> ImportOutcome:
-    """Create the file's initiatives, their needs and a scenario, all or nothing."""
-    get_team(session, team_id=team_id)
-    get_period(session, period_id=period_id)
+    """Create the file's initiatives, their needs and a scenario, all or nothing.
+
+    Refused while any of the file's titles is already one of the team's initiatives in the
+    period (compared as the paste does): importing a plan again would double it.
+    """
+    db_team = get_team(session, team_id=team_id)
+    db_period = get_period(session, period_id=period_id)
+    _refuse_title_clashes(
+        session, db_team, db_period, [row.initiative.title for row in imported.rows]
+    )
     initiatives_in = [
         row.initiative.model_copy(update={"team_id": team_id, "period_id": period_id})
         for row in imported.rows

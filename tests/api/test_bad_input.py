@@ -405,6 +405,11 @@ CASES: dict[str, Case] = {
         "GET", "/api/v1/initiatives?period_id=first", None, 422, "period_id"
     ),
     "list scope unknown": Case("GET", "/api/v1/initiatives?scope=everything", None, 422, "scope"),
+    # --- deleting what is still used --------------------------------------------------------
+    "delete a needed initiative": Case(
+        "DELETE", "/api/v1/initiatives/$initiative", None, 409, "initiative_id"
+    ),
+    "delete a period in use": Case("DELETE", "/api/v1/periods/$period", None, 409, "period_id"),
 }
 
 

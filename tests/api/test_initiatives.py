@@ -10,9 +10,9 @@ from fastapi import FastAPI
 from fastapi.testclient import TestClient
 from sqlmodel import Session
 
-from server.errors import StaleVersionError
+from server.errors import ConflictError, StaleVersionError
 from server.schemas import InitiativeUpdate
-from server.store.initiatives import get_initiative, update_initiative
+from server.store.initiatives import delete_initiatives, get_initiative, update_initiative
 from tests.api.conftest import Snapshot, Workspace
 from tests.api.support import error_fields, error_text
 
@@ -228,8 +228,75 @@ def test_a_longer_needs_cycle_is_refused(
     assert fine.json()["needs"] == sorted([workspace.dependant, workspace.initiative])
 
 
-def test_deleting_a_needed_initiative_drops_the_need(
+def test_deleting_a_needed_initiative_is_refused_naming_who_needs_it(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Lighthouse's initiative needs Quay wall too; it is named with its team.
+    _create(
+        client,
+        team_id=workspace.other_team,
+        title="Beacon on the quay",
+        effort=1,
+        value=2,
+        needs=[workspace.initiative],
+    )
+    before = snapshot()
+    response = client.delete(f"/api/v1/initiatives/{workspace.initiative}")
+    assert response.status_code == 409
+    assert error_fields(response) == ["initiative_id"]
+    assert error_text(response) == (
+        "'Quay wall' is needed by 'Crane rail' and 'Beacon on the quay' (team Lighthouse); "
+        "remove it from their needs first."
+    )
+    assert snapshot() == before  # the needs, versions and audit trail are as they were
+    dependant = client.get(f"/api/v1/initiatives/{workspace.dependant}").json()
+    assert (dependant["needs"], dependant["version"]) == ([workspace.initiative], 1)
+
+
+def test_an_initiative_needed_by_many_names_the_first_ten(
     client: TestClient, workspace: Workspace
 ) -> None:
+    for number in range(11):  # with Crane rail, twelve initiatives need Quay wall
+        _create(
+            client,
+            team_id=workspace.team,
+            title=f"Bollard {number}",
+            effort=1,
+            value=1,
+            needs=[workspace.initiative],
+        )
+    response = client.delete(f"/api/v1/initiatives/{workspace.initiative}")
+    assert response.status_code == 409
+    message = error_text(response)
+    assert "'Crane rail', 'Bollard 0', " in message
+    assert "'Bollard 8' and 2 more; remove it" in message
+    assert "Bollard 9" not in message
+
+
+def test_once_nothing_needs_it_an_initiative_can_be_deleted(
+    client: TestClient, workspace: Workspace
+) -> None:
+    # Deleting the dependant is fine (it needs, it is not needed); then its need is gone too.
+    assert client.delete(f"/api/v1/initiatives/{workspace.dependant}").status_code == 204
     assert client.delete(f"/api/v1/initiatives/{workspace.initiative}").status_code == 204
-    assert client.get(f"/api/v1/initiatives/{workspace.dependant}").json()["needs"] == []
+    assert client.get(f"/api/v1/initiatives/{workspace.initiative}").status_code == 404
+    deleted = client.get("/api/v1/audit", params={"entity": "initiative"}).json()
+    assert [(e["action"], e["entity_id"]) for e in deleted[:2]] == [
+        ("initiative.delete", workspace.initiative),
+        ("initiative.delete", workspace.dependant),
+    ]
+
+
+def test_initiatives_deleted_together_may_need_each_other(
+    session: Session, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Crane rail needs Quay wall: Quay wall alone is refused, both together are deleted.
+    before = snapshot()
+    with pytest.raises(ConflictError, match="'Quay wall' is needed by 'Crane rail'"):
+        delete_initiatives(session, initiative_ids=[workspace.initiative])
+    assert snapshot() == before
+    delete_initiatives(session, initiative_ids=[workspace.initiative, workspace.dependant])
+    after = snapshot()
+    assert after["initiative"] == after["initiative_need"] == []
+    deleted = [row for row in after["audit_entry"] if "initiative.delete" in row]
+    assert len(deleted) == 2

@@ -8,7 +8,7 @@ import pytest
 from fastapi.testclient import TestClient
 
 from tests.api.conftest import Snapshot, Workspace
-from tests.api.support import error_fields
+from tests.api.support import error_fields, error_text
 
 SPRINT_2 = {
     "name": "Sprint 2",
@@ -99,14 +99,110 @@ def test_moving_dates_away_from_a_non_working_date_is_422(
     assert snapshot() == before
 
 
-def test_deleting_a_period_moves_its_initiatives_to_the_backlog(
+def _audit_actions(client: TestClient) -> list[str]:
+    return [e["action"] for e in client.get("/api/v1/audit").json()]
+
+
+def test_deleting_a_period_in_use_is_refused_and_changes_nothing(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Lighthouse has work in the period too: the refusal names each team's count.
+    client.post(
+        "/api/v1/initiatives",
+        json={
+            "team_id": workspace.other_team,
+            "period_id": workspace.period,
+            "title": "Beacon",
+            "effort": 1,
+            "value": 2,
+        },
+    )
+    before = snapshot()
+    response = client.delete(f"/api/v1/periods/{workspace.period}")
+    assert response.status_code == 409
+    assert error_fields(response) == ["period_id"]
+    message = error_text(response)
+    assert "'Sprint 1' still has 3 initiative(s) (Harbour 2, Lighthouse 1)" in message
+    assert "1 availability entry(ies)" in message
+    assert "move the initiatives to another period or to the backlog" in message
+    assert snapshot() == before
+    initiative = client.get(f"/api/v1/initiatives/{workspace.initiative}").json()
+    assert initiative["period_id"] == workspace.period
+    assert "period.delete" not in _audit_actions(client)
+
+
+def _use_scenario(client: TestClient, team: int, period: int) -> None:
+    body = {"name": "Short", "team_id": team, "period_id": period}
+    assert client.post("/api/v1/scenarios", json=body).status_code == 201
+
+
+def _use_saved_plan(client: TestClient, team: int, period: int) -> None:
+    body = {"name": "Baseline", "team_id": team, "period_id": period}
+    assert client.post("/api/v1/plans", json=body).status_code == 201
+
+
+def _use_availability(client: TestClient, member: int, period: int) -> None:
+    body = {"member_id": member, "period_id": period, "days_off": 1}
+    assert client.post("/api/v1/availability", json=body).status_code == 201
+
+
+@pytest.mark.parametrize(
+    ("use", "words"),
+    [
+        (
+            lambda c, ws, p: _use_availability(c, ws.member, p),
+            ["1 availability entry(ies)", "delete the availability entries first"],
+        ),
+        (
+            lambda c, ws, p: _use_scenario(c, ws.team, p),
+            ["1 scenario(s)", "delete the scenarios first"],
+        ),
+        (
+            lambda c, ws, p: _use_saved_plan(c, ws.team, p),
+            ["1 saved plan(s)", "Saved plans are never changed"],
+        ),
+    ],
+    ids=["availability", "scenario", "saved plan"],
+)
+def test_each_use_of_a_period_alone_refuses_its_deletion(
+    client: TestClient,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    use: Callable[[TestClient, Workspace, int], None],
+    words: list[str],
+) -> None:
+    period = client.post("/api/v1/periods", json=SPRINT_2).json()
+    use(client, workspace, period["id"])
+    before = snapshot()
+    response = client.delete(f"/api/v1/periods/{period['id']}")
+    assert response.status_code == 409
+    assert error_fields(response) == ["period_id"]
+    message = error_text(response)
+    assert "initiative" not in message  # only what is there is named
+    for word in words:
+        assert word in message
+    assert snapshot() == before
+
+
+def test_a_period_emptied_of_its_uses_can_be_deleted_and_is_audited(
     client: TestClient, workspace: Workspace
 ) -> None:
+    for initiative in (workspace.initiative, workspace.dependant):
+        moved = client.patch(
+            f"/api/v1/initiatives/{initiative}", json={"version": 1, "period_id": None}
+        )
+        assert moved.status_code == 200, moved.text
+    assert client.delete(f"/api/v1/availability/{workspace.availability}").status_code == 204
+
     assert client.delete(f"/api/v1/periods/{workspace.period}").status_code == 204
-    initiative = client.get(f"/api/v1/initiatives/{workspace.initiative}").json()
-    assert initiative["period_id"] is None
+    assert client.get(f"/api/v1/periods/{workspace.period}").status_code == 404
     backlog = client.get(f"/api/v1/initiatives?team_id={workspace.team}&backlog=true").json()
     assert {i["id"] for i in backlog} == {workspace.initiative, workspace.dependant}
-    # Availability in the period goes with it; the member stays.
-    assert client.get(f"/api/v1/availability/{workspace.availability}").status_code == 404
-    assert client.get(f"/api/v1/members/{workspace.member}").status_code == 200
+    # The capacity settings went with the period; the audit entry keeps what they were.
+    (entry,) = client.get("/api/v1/audit", params={"entity": "period"}).json()
+    assert (entry["action"], entry["entity_id"]) == ("period.delete", workspace.period)
+    assert entry["summary"] == "Deleted period “Sprint 1”"
+    assert entry["before"]["name"] == "Sprint 1"
+    assert entry["before"]["capacity_settings"] == [
+        {"team_id": workspace.team, "focus_factor": 0.7, "reserve_pct": 15.0}
+    ]

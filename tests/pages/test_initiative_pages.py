@@ -298,13 +298,33 @@ def test_deleting_through_the_form(
     assert without_token.status_code == 403
     assert _titles(session) == ["Crane rail", "Quay wall"]
 
-    response = _post(form_client, f"/initiatives/{stored.quay}/delete", {})
+    response = _post(form_client, f"/initiatives/{stored.crane}/delete", {})
     assert response.status_code == 303
     assert (
         response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
     )
-    assert _titles(session) == ["Crane rail"]
-    assert _record(session, stored.crane).needs == []
+    assert _titles(session) == ["Quay wall"]
+    # Nothing needs Quay wall any more, so it can go too.
+    assert _post(form_client, f"/initiatives/{stored.quay}/delete", {}).status_code == 303
+    assert _titles(session) == []
+
+
+def test_deleting_a_needed_initiative_through_the_form_shows_why_not(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    response = _post(form_client, f"/initiatives/{stored.quay}/delete", {})
+    assert response.status_code == 409
+    page = parse(response.text)
+    ids_are_unique_and_labels_point_at_fields(page)
+    refusal = Form(page, f"/initiatives/{stored.quay}/delete").errors()
+    assert refusal == ["'Quay wall' is needed by 'Crane rail'; remove it from their needs first."]
+    # The edit form is shown again with the stored values; nothing was changed.
+    edit = Form(page, f"/initiatives/{stored.quay}")
+    assert (edit.value("title"), edit.value("version")) == ("Quay wall", "1")
+    assert edit.errors() == []
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+    crane = _record(session, stored.crane)
+    assert (crane.needs, crane.row.version) == ([stored.quay], 2)
 
 
 def test_unknown_initiative_pages_are_404(form_client: TestClient) -> None:

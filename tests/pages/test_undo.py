@@ -6,8 +6,9 @@ import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, col, select
 
-from server.errors import NotFoundError
+from server.errors import ConflictError, NotFoundError
 from server.models import AuditEntry, Initiative
+from server.planning.paste import commit_paste, parse_paste
 from server.planning.undo import last_change, undo_last_change
 from server.schemas import EffortIn, InitiativeUpdate
 from server.store.initiatives import delete_initiative, get_initiative, update_initiative
@@ -124,6 +125,51 @@ def test_undo_is_per_team(session: Session) -> None:
     undo_last_change(session, team_id=harbour.id or 0)
     assert _fresh(session, mine) is None
     assert session.exec(select(Initiative).where(Initiative.title == "Lamp")).one()
+
+
+def test_undoing_a_creation_that_another_team_now_needs_is_refused(session: Session) -> None:
+    harbour = make_team(session, "Harbour")
+    lighthouse = make_team(session, "Lighthouse")
+    period = make_period(session)
+    quay = make_initiative(session, harbour, period, "Quay wall", 5, 40).row.id or 0
+    make_initiative(session, lighthouse, period, "Lamp", 2, 10, needs=[quay])
+    with pytest.raises(ConflictError, match=r"'Quay wall' is needed by 'Lamp' \(team Lighthouse\)"):
+        undo_last_change(session, team_id=harbour.id or 0)
+    assert _fresh(session, quay) is not None
+    assert _entries(session, "initiative.undo") == []
+    (created, _) = _entries(session, "initiative.create")
+    assert created.undone_at is None
+
+
+def test_undoing_a_paste_removes_every_row_or_none(
+    form_client: TestClient, session: Session
+) -> None:
+    harbour = make_team(session, "Harbour")
+    lighthouse = make_team(session, "Lighthouse")
+    period = make_period(session)
+    pasted = parse_paste(
+        "Tide gauge\t2\t10\nPilot boat\t3\t12",
+        team_id=harbour.id or 0,
+        period_id=period.id,
+    )
+    gauge, boat = commit_paste(session, pasted)
+    lamp = make_initiative(session, lighthouse, period, "Lamp", 2, 10, needs=[boat]).row.id or 0
+
+    url = f"/teams/{harbour.id}/plan/undo"
+    refused = post_form(form_client, url, {"period_id": str(period.id)}, **HX)
+    assert refused.status_code == 409
+    notice = parse_html(refused.text).by_id("notice").text()
+    assert "'Pilot boat' is needed by 'Lamp' (team Lighthouse)" in notice
+    # Neither pasted row was deleted, not even the one nothing needs.
+    assert _fresh(session, gauge) is not None
+    assert _fresh(session, boat) is not None
+    assert _entries(session, "initiative.delete") == []
+
+    delete_initiative(session, initiative_id=lamp)
+    undone = post_form(form_client, url, {"period_id": str(period.id)}, **HX)
+    assert undone.status_code == 200
+    assert "Removed the 2 pasted initiative(s) again" in undone.text
+    assert (_fresh(session, gauge), _fresh(session, boat)) == (None, None)
 
 
 def test_undo_button_on_the_plan(form_client: TestClient, session: Session) -> None:

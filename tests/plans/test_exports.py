@@ -10,6 +10,7 @@ import json
 import re
 
 import pytest
+from fastapi import FastAPI
 from fastapi.testclient import TestClient
 from hypothesis import given
 from hypothesis import strategies as st
@@ -29,11 +30,14 @@ from server.planning.exports import (
     restore,
 )
 from server.store import plans as store
+from tests.api.conftest import read_snapshot
 from tests.factories import make_member, make_period, make_team
+from tests.pages.parsed_page import Form, parse
 from tests.plans.conftest import (
     Workspace,
     add_initiative,
     counts,
+    edit,
     error_fields,
     error_text,
     save_live,
@@ -235,6 +239,84 @@ def test_import_page_uploads_a_file_and_opens_the_scenario(
     )
     assert pasted.status_code == 422
     assert "no capacity_days row" in pasted.text
+
+
+def test_importing_a_plan_where_its_titles_already_are_is_refused(
+    app: FastAPI, session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    # The export holds all six initiatives of the team's period, Depot dashboard pinned.
+    edit(session, workspace.id_of("Depot dashboard"), state="pinned")
+    plan = save_live(client, workspace)
+    exported = client.get(f"/api/v1/plans/{plan['id']}/export.csv").text
+    before = read_snapshot(app.state.engine)
+    again = client.post(
+        f"/api/v1/teams/{workspace.team_id}/plan-imports",
+        json={"period_id": workspace.period_id, "csv": exported},
+    )
+    assert again.status_code == 422, again.text
+    assert error_fields(again) == ["csv"]
+    assert error_text(again) == (
+        "csv: 6 title(s) of the file are already initiatives of Harbour in Sprint of Harbour: "
+        "'Route search', 'Stop alerts', 'Fare capping', 'Depot dashboard', 'Offline "
+        "timetable' and 1 more. Nothing was imported; import into another period or team, or "
+        "rename or remove those initiatives first."
+    )
+    assert read_snapshot(app.state.engine) == before  # no initiative, scenario or audit entry
+
+    # The same file goes into another period of the team, and into another team's period.
+    later = make_period(session, name="Later sprint")
+    for team_id, period_id in (
+        (workspace.team_id, later.id),
+        (make_team(session, "Empty").id, workspace.period_id),
+    ):
+        elsewhere = client.post(
+            f"/api/v1/teams/{team_id}/plan-imports",
+            json={"period_id": period_id, "csv": exported},
+        )
+        assert elsewhere.status_code == 201, elsewhere.text
+
+
+def test_import_titles_clash_ignoring_case_and_spaces(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    plan = save_live(client, workspace)
+    exported = client.get(f"/api/v1/plans/{plan['id']}/export.csv").text
+    other = make_team(session, "Lighthouse")
+    add_initiative(session, other, workspace.period, "STOP ALERTS", 1.0, 1.0)
+    add_initiative(session, other, workspace.period, "Stop alert", 1.0, 1.0)  # not the same
+    spaced = exported.replace('"Fare capping"', '"  Fare capping  "')
+    add_initiative(session, other, workspace.period, "fare capping", 1.0, 1.0)
+    before = counts(session)
+    response = client.post(
+        f"/api/v1/teams/{other.id}/plan-imports",
+        json={"period_id": workspace.period_id, "csv": spaced},
+    )
+    assert response.status_code == 422, response.text
+    assert "2 title(s) of the file are already initiatives of Lighthouse" in error_text(response)
+    assert ": 'Stop alerts', 'Fare capping'. Nothing was imported" in error_text(response)
+    assert counts(session) == before
+
+
+def test_import_page_refuses_a_plan_already_in_the_period_and_keeps_the_form(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    plan = save_live(form_client, workspace)
+    exported = form_client.get(f"/plans/{plan['id']}/export.csv").text
+    before = counts(session)
+    response = form_client.post(
+        f"/teams/{workspace.team_id}/plan-import",
+        data={
+            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
+            "period_id": str(workspace.period_id),
+            "csv": exported,
+        },
+    )
+    assert response.status_code == 422
+    form = Form(parse(response.text), f"/teams/{workspace.team_id}/plan-import")
+    assert "6 title(s) of the file are already initiatives of Harbour" in form.error("file")
+    assert form.value("period_id") == str(workspace.period_id)
+    assert form.value("csv").strip() == exported.strip()
+    assert counts(session) == before
 
 
 def _good_csv(client: TestClient, ws: Workspace) -> str:
