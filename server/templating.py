@@ -28,11 +28,31 @@ def percent(value: float | None, digits: int = 0) -> str:
     return f"{value * 100:.{digits}f} %"
 
 
+# Errors not tied to one input: shown without a field label.
+_FORM_WIDE = {"form", "body"}
+
+
+def bare_message(message: str, field: str) -> str:
+    """The message without the "field: " its layer put in front (the page shows the label)."""
+    for prefix in (f"{field}: ", f"{field.replace('_', ' ')}: "):
+        if message.startswith(prefix):
+            return message[len(prefix) :]
+    return message
+
+
+def error_line(field: str, message: str) -> str:
+    """One line for an error of the whole form: "days off: ...", or the message alone."""
+    text = bare_message(message, field)
+    return text if field in _FORM_WIDE else f"{field.replace('_', ' ')}: {text}"
+
+
 def configure_templates(templates: Jinja2Templates) -> None:
     env = templates.env
     env.filters["days"] = days
     env.filters["number"] = number
     env.filters["percent"] = percent
+    env.filters["bare_message"] = bare_message
+    env.filters["error_line"] = error_line
     env.globals["STATE_LABELS"] = STATE_LABELS
     env.trim_blocks = True
     env.lstrip_blocks = True

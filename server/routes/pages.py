@@ -215,6 +215,17 @@ async def set_availability(
         "allocation": _optional(form, "allocation"),
     }
     availability_in, errors = parse_form(AvailabilityCreate, values)
+    if availability_in is None and "days_off" not in errors and period_id is not None:
+        # Another field was refused: still say whether the days off fit, not one error a time.
+        try:
+            days_off = float(values["days_off"])
+        except ValueError:
+            days_off = None
+        if days_off is not None:
+            _, too_many = _store_or_errors(
+                lambda: team_store.check_days_off(session, period_id=period_id, days_off=days_off)
+            )
+            errors = too_many | errors
     if availability_in is not None:
         member = team_store.get_member(session, member_id=availability_in.member_id)
         if member.team_id != team_id:

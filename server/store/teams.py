@@ -141,6 +141,11 @@ def get_availability(session: Session, *, availability_id: int) -> Availability:
     return get_or_404(session, Availability, availability_id, "availability")
 
 
+def check_days_off(session: Session, *, period_id: int, days_off: float) -> None:
+    """Refuse more days off than the period has working days (InputError on days_off)."""
+    _check_days_off(get_or_404(session, Period, period_id, "period"), days_off)
+
+
 def _check_days_off(period: Period, days_off: float) -> None:
     limit = period_working_days(period)
     if days_off > limit:

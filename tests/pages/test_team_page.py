@@ -151,6 +151,26 @@ def test_bad_days_off_are_shown_again_in_the_member_row(
     assert _days_off(session, team.ola) == [2]
 
 
+def test_every_bad_availability_field_is_named_once(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/availability"
+    data = {
+        "member_id": str(team.ola),
+        "period_id": str(team.period),
+        "days_off": "70",
+        "allocation": "1.5",
+    }
+    response = _post(form_client, url, data)
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    errors = Form(parse(response.text), url, member_id=str(team.ola)).errors()  # type: ignore[attr-defined]
+    assert len(errors) == 2
+    assert "days off: 70 days off is more than the 10 working days" in " ".join(errors)
+    assert "allocation: Enter a number of at most 1." in errors
+    assert not any("days_off" in e for e in errors)  # the label once, in words
+    assert _days_off(session, team.ola) == [2]
+
+
 def test_availability_for_a_member_of_another_team_is_refused(
     form_client: TestClient, session: Session, team: Team
 ) -> None:
