@@ -176,7 +176,7 @@ def parse_whatif(params: Mapping[str, Sequence[str]]) -> tuple[WhatIf, dict[str,
             errors["delta"] = f"“{delta_text}” is not a number of days."
         else:
             if not 0 < delta <= 10_000:
-                errors["delta"] = "Enter a number of days above 0."
+                errors["delta"] = "Enter a number of days above 0 and at most 10,000."
                 delta = None
     order = _first(params, "order") or "plan"
     if order not in ORDERS:
@@ -391,6 +391,9 @@ def capacity_bar(plan: LivePlan) -> CapacityBar:
     capacity = selection.capacity
     headroom = max(0.0, capacity - selection.effort)
     over = max(0.0, selection.effort - capacity)
+    if not selection.feasible and selection.excess_days is not None:
+        # The overrun the message states: efforts rounded up, capacity down to the resolution.
+        over = selection.excess_days
     scale = BAR_UNITS / max(capacity, selection.effort, 1e-9)
     segments = []
     x = 0.0

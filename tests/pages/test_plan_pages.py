@@ -321,6 +321,23 @@ def test_pinned_over_capacity_says_by_how_much(form_client: TestClient, session:
     assert "2.5 days over" in overrun.text()
     assert plan.selection.infeasibility in overrun.text()
     assert "Over capacity by" in root.find(cls="capacity-bar").text()  # type: ignore[union-attr]
+    assert "No plan was searched for: pinned work alone does not fit." in root.text()
+    assert "Found by" not in root.text()
+
+
+def test_the_bar_states_the_same_overrun_as_the_message(
+    form_client: TestClient, session: Session
+) -> None:
+    """Efforts round up to the 0.5-day resolution: 7.2 + 5.1 days plan as 7.5 + 5.5 = 13."""
+    team = make_team(session)
+    period = make_period(session)
+    _capacity(session, team, period, 1)  # 10 days
+    make_initiative(session, team, period, "Quay wall", 7.2, 10, state="pinned")
+    make_initiative(session, team, period, "Crane rail", 5.1, 10, state="pinned")
+    root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
+    assert "3.0 days over" in root.find(cls="overrun").text()  # type: ignore[union-attr]
+    bar = root.find(cls="capacity-bar").text()  # type: ignore[union-attr]
+    assert "Over capacity by 3 days" in " ".join(bar.split())
 
 
 def test_rounding_and_needs_warnings(form_client: TestClient, session: Session) -> None:
@@ -468,6 +485,9 @@ def test_curve_is_accessible_and_matches_brute_force(
     custom = page(form_client, setup.url + "&delta=5")
     plus5 = brute_force(ROWS, 25.0)[0] - brute_force(ROWS, 20.0)[0]
     assert f"5 more days would add {plus5:g} value" in custom.by_id("readout-plus").text()
+    for bad in ("0", "100000"):
+        response = form_client.get(setup.url + f"&delta={bad}")
+        assert "Enter a number of days above 0 and at most 10,000." in response.text, bad
 
 
 # --- inline edits ----------------------------------------------------------------------------
