@@ -10,7 +10,15 @@ import pytest
 from playwright.sync_api import Browser, Page, Request, Response, Route, expect
 
 from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
-from tests.browser.flows import decision, quick_add, row_id, screenshot, set_up_team
+from tests.browser.flows import (
+    add_team,
+    decision,
+    quick_add,
+    row_id,
+    screenshot,
+    set_up_team,
+    unique,
+)
 
 pytestmark = pytest.mark.browser
 
@@ -278,3 +286,17 @@ def test_large_plan_explains_a_row_when_opened(app_page: Page, live_server: Live
     expect(page.locator(f"#explain-{task} .reason")).to_be_visible()
     expect(page.locator(f"#explain-{task} data.value-if-in")).to_have_count(1)
     screenshot(page, "plan-large-explained")
+
+
+@pytest.mark.browser
+def test_long_unbroken_names_do_not_widen_the_page(app_page: Page, live_server: LiveServer) -> None:
+    """A pasted link as a title, a long team name: the page wraps them instead of scrolling."""
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Harbour" + "x" * 180, "2", "5")
+    overflow = "document.documentElement.scrollWidth - window.innerWidth"
+    assert page.evaluate(overflow) <= 0
+    add_team(page, live_server.url, unique("T" * 70))
+    page.goto(live_server.url + "/")
+    assert page.evaluate(overflow) <= 0
+    screenshot(page, "long-names-home")
