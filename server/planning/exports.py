@@ -73,8 +73,12 @@ def _number(value: object) -> object:
     """Numbers as a spreadsheet would show them (3, not 3.0); None as an empty cell."""
     if value is None:
         return ""
-    if isinstance(value, float) and value.is_integer() and abs(value) < 1e15:
-        return int(value)
+    if isinstance(value, float):
+        # Float noise from arithmetic (21.599999999999998 for 18 x 1.2) is not a figure
+        # anyone entered: ten significant digits keep every real one.
+        value = float(f"{value:.10g}")
+        if value.is_integer() and abs(value) < 1e15:
+            return int(value)
     return value
 
 

@@ -424,3 +424,13 @@ def test_download_names_are_plain_ascii(workspace: Workspace, client: TestClient
     disposition = response.headers["content-disposition"]
     assert disposition.isascii()
     assert disposition == f'attachment; filename="plan-{plan["id"]}--bergang--Q2------.md"'
+
+
+def test_csv_numbers_carry_no_float_noise() -> None:
+    from server.planning.exports import _number
+
+    assert _number(18 * 1.2) == 21.6  # 21.599999999999998 in binary floating point
+    assert _number(0.1 + 0.2) == 0.3
+    assert _number(3.0) == 3
+    assert _number(0.9907120743034057) == 0.9907120743  # a real ratio keeps ten digits
+    assert _number(None) == ""
