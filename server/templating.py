@@ -2,7 +2,12 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from fastapi.templating import Jinja2Templates
+from jinja2 import pass_context
+
+from server.access import allowed
 
 STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
 
@@ -28,11 +33,21 @@ def percent(value: float | None, digits: int = 0) -> str:
     return f"{value * 100:.{digits}f} %"
 
 
+@pass_context
+def may(context: Any, path: str, method: str = "POST") -> bool:
+    """Whether the signed-in person may send this request: the access table decides, so a
+    page offers a control only to those whose request would be accepted."""
+    request = context.get("request")
+    user = getattr(request.state, "user", None) if request is not None else None
+    return allowed(user, method, path)
+
+
 def configure_templates(templates: Jinja2Templates) -> None:
     env = templates.env
     env.filters["days"] = days
     env.filters["number"] = number
     env.filters["percent"] = percent
     env.globals["STATE_LABELS"] = STATE_LABELS
+    env.globals["may"] = may
     env.trim_blocks = True
     env.lstrip_blocks = True
