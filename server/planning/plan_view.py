@@ -77,6 +77,18 @@ class WhatIf:
     def query(self) -> str:
         return urlencode(self.params())
 
+    def scenario_query(self) -> str:
+        """The period and the what-if as fields of the scenario form (see
+        planning.scenarios.parse_changes_form), to start a scenario from this view."""
+        out: list[tuple[str, str]] = []
+        if self.period_id is not None:
+            out.append(("period_id", str(self.period_id)))
+        out += [(f"forced.{i}", "in") for i in self.forced_in]
+        out += [(f"forced.{i}", "out") for i in self.forced_out]
+        if self.confidence_pct is not None:
+            out.append(("confidence", f"P{_plain(self.confidence_pct)}"))
+        return urlencode(out)
+
     def force_in(self, initiative_id: int) -> WhatIf:
         return replace(
             self,
