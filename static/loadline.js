@@ -44,10 +44,15 @@
       return;
     }
     var config = event.detail.requestConfig;
-    var spot = refusalSpot(config ? config.elt : event.detail.elt);
+    var elt = config ? config.elt : event.detail.elt;
+    var spot = refusalSpot(elt);
     if (!spot) {
       return;
     }
+    // Shown here, so not an error for htmx to log; the request is over all the same.
+    event.detail.shouldSwap = false;
+    event.detail.isError = false;
+    unanswered(elt);
     var note = spot.querySelector(".refusal");
     if (!note) {
       note = document.createElement("p");
@@ -238,17 +243,20 @@
     }
   });
 
-  // A save that got no answer was not stored: the same values may be sent again.
+  // A save that got no answer (or a refusal) was not stored: the same values may be sent again.
+  function unanswered(elt) {
+    if (isRowForm(elt)) {
+      delete sent[elt.id];
+    }
+    if (inPlan(elt)) {
+      busy = false;
+      sendPending();
+    }
+  }
+
   ["htmx:sendError", "htmx:timeout", "htmx:responseError"].forEach(function (name) {
     document.addEventListener(name, function (event) {
-      var elt = event.detail.elt;
-      if (isRowForm(elt)) {
-        delete sent[elt.id];
-      }
-      if (inPlan(elt)) {
-        busy = false;
-        sendPending();
-      }
+      unanswered(event.detail.elt);
     });
   });
   // A newer request replaced it (a link, a view change): try again once that one has settled.
