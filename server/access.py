@@ -20,6 +20,8 @@ from starlette.responses import JSONResponse, PlainTextResponse, RedirectRespons
 
 from server.actor import current_actor
 from server.models import UserAccount
+from server.refusals import is_api as _is_api
+from server.refusals import refusal
 from server.security import ASGIApp, Receive, Scope, Send
 from server.store import users as user_store
 
@@ -52,6 +54,12 @@ def required_role(method: str, path: str) -> str | None:
     if any(word in path for word in _PUBLICATION_WORDS):
         return "editor"
     return "viewer" if method in SAFE_METHODS else "editor"
+
+
+def allowed(user: SignedIn | None, method: str, path: str) -> bool:
+    """Whether this person may send this request: pages ask it before offering a control."""
+    role = required_role(method, path)
+    return role is None or (user is not None and user.can(role))
 
 
 def is_loopback(host: str | None) -> bool:
@@ -112,7 +120,7 @@ class AccessControl:
         return None
 
     def _refusal(self, request: Request, user: SignedIn | None, role: str) -> Response | None:
-        is_api = request.url.path.startswith("/api/") or request.url.path == "/openapi.json"
+        is_api = _is_api(request)
         if user is None:
             if is_api:
                 return JSONResponse(
@@ -129,9 +137,9 @@ class AccessControl:
             return RedirectResponse(f"/login?next={_next(request)}", status_code=303)
         if not user.can(role):
             message = f"Your role ({user.role}) may not do this; it needs {role}."
-            if is_api:
-                return JSONResponse({"detail": {"message": message}}, status_code=403)
-            return PlainTextResponse(message, status_code=403)
+            if not is_api:
+                message += " An administrator can change your role."
+            return refusal(request, message, 403)
         if is_api and user.via != "bearer" and request.method not in SAFE_METHODS:
             # A browser's cookies ride along on cross-site requests; demand the page's token.
             sent = request.headers.get("x-csrf-token", "")

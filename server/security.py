@@ -16,6 +16,8 @@ from starlette.datastructures import MutableHeaders
 from starlette.requests import Request
 from starlette.responses import PlainTextResponse
 
+from server.refusals import refusal
+
 Scope = MutableMapping[str, Any]
 Message = MutableMapping[str, Any]
 Receive = Callable[[], Awaitable[Message]]
@@ -97,7 +99,11 @@ class RequestGuard:
     async def _reject(
         self, scope: Scope, receive: Receive, send: Send, status: int, text: str
     ) -> None:
-        await PlainTextResponse(text, status_code=status)(scope, receive, send)
+        if _is_api(scope["path"]):
+            await PlainTextResponse(text, status_code=status)(scope, receive, send)
+            return
+        # A page request: the message in the site layout (or beside the form, for htmx).
+        await refusal(Request(scope), text, status)(scope, receive, send)
 
     def _with_headers(self, send: Send, new_browser_id: str | None, path: str) -> Send:
         async def wrapped(message: Message) -> None:

@@ -2,7 +2,12 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from fastapi.templating import Jinja2Templates
+from jinja2 import pass_context
+
+from server.access import allowed
 
 STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
 
@@ -46,6 +51,15 @@ def error_line(field: str, message: str) -> str:
     return text if field in _FORM_WIDE else f"{field.replace('_', ' ')}: {text}"
 
 
+@pass_context
+def may(context: Any, path: str, method: str = "POST") -> bool:
+    """Whether the signed-in person may send this request: the access table decides, so a
+    page offers a control only to those whose request would be accepted."""
+    request = context.get("request")
+    user = getattr(request.state, "user", None) if request is not None else None
+    return allowed(user, method, path)
+
+
 def configure_templates(templates: Jinja2Templates) -> None:
     env = templates.env
     env.filters["days"] = days
@@ -54,5 +68,6 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["bare_message"] = bare_message
     env.filters["error_line"] = error_line
     env.globals["STATE_LABELS"] = STATE_LABELS
+    env.globals["may"] = may
     env.trim_blocks = True
     env.lstrip_blocks = True

@@ -25,6 +25,44 @@
     }
   });
 
+  // A refusal (403: the role may not make this change, or the form's token has expired) stores
+  // nothing and is not swapped in: its message goes beside the form that asked, in the row's
+  // save cell for a row, so it is never lost. What was typed stays in the fields.
+  function refusalSpot(elt) {
+    var form = elt && elt.tagName === "FORM" ? elt : elt && elt.form;
+    var source = form || elt;
+    if (!source || !source.closest) {
+      return null;
+    }
+    var row = source.closest("tr");
+    return (row && row.querySelector(".col-save")) || source;
+  }
+
+  document.addEventListener("htmx:beforeSwap", function (event) {
+    var xhr = event.detail.xhr;
+    if (xhr.status !== 403) {
+      return;
+    }
+    var config = event.detail.requestConfig;
+    var elt = config ? config.elt : event.detail.elt;
+    var spot = refusalSpot(elt);
+    if (!spot) {
+      return;
+    }
+    // Shown here, so not an error for htmx to log; the request is over all the same.
+    event.detail.shouldSwap = false;
+    event.detail.isError = false;
+    unanswered(elt);
+    var note = spot.querySelector(".refusal");
+    if (!note) {
+      note = document.createElement("p");
+      note.className = "field-error refusal";
+      note.setAttribute("role", "alert");
+      spot.appendChild(note);
+    }
+    note.textContent = (xhr.responseText || "").trim().slice(0, 500) || "This change was refused.";
+  });
+
   function inPlan(el) {
     return Boolean(el && el.closest && el.closest("#plan"));
   }
@@ -205,17 +243,20 @@
     }
   });
 
-  // A save that got no answer was not stored: the same values may be sent again.
+  // A save that got no answer (or a refusal) was not stored: the same values may be sent again.
+  function unanswered(elt) {
+    if (isRowForm(elt)) {
+      delete sent[elt.id];
+    }
+    if (inPlan(elt)) {
+      busy = false;
+      sendPending();
+    }
+  }
+
   ["htmx:sendError", "htmx:timeout", "htmx:responseError"].forEach(function (name) {
     document.addEventListener(name, function (event) {
-      var elt = event.detail.elt;
-      if (isRowForm(elt)) {
-        delete sent[elt.id];
-      }
-      if (inPlan(elt)) {
-        busy = false;
-        sendPending();
-      }
+      unanswered(event.detail.elt);
     });
   });
   // A newer request replaced it (a link, a view change): try again once that one has settled.

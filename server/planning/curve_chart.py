@@ -7,6 +7,7 @@ point), so it is drawn as steps, not as a line through the points.
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -14,6 +15,7 @@ from functools import lru_cache
 
 from server.planning.plans import selection_at
 from server.selector import Curve, Problem, Selection
+from server.selector.rounding import units_down, units_up
 
 WIDTH = 640.0
 HEIGHT = 260.0
@@ -57,6 +59,11 @@ class CurveChart:
     today_step: int  # index of the step today's capacity falls in
     first_days: float  # below this (the pinned work) no plan fits
     last_days: float
+    # A sample (not every breakpoint known): points solved, exact; the value between two
+    # points lies in the box they span (more capacity never lowers it), drawn instead of steps.
+    sampled: bool = False
+    points: tuple[tuple[float, float], ...] = ()
+    ranges_path: str = ""
 
 
 @dataclass(frozen=True)
@@ -123,26 +130,92 @@ def value_at(curve: Curve, capacity_days: float) -> float | None:
     return best
 
 
+# Solves the curve of a binary-program plan may take. Each finds one whole step of the curve,
+# so this many cover any plan with fewer breakpoints (the demo's have up to about 40).
+MAX_CURVE_SOLVES = 96
+SAMPLES = 16
+
+
+@dataclass(frozen=True)
+class ProbedCurve:
+    """A curve read by solving at chosen capacities.
+
+    complete: every breakpoint was found, so `curve` has a point for every resolution step (as
+    the DP's last row does). Otherwise `curve` holds only the capacities solved, each exact:
+    between two of them the value lies between theirs, and may change more than once.
+    """
+
+    curve: Curve
+    complete: bool
+    solves: int
+
+
+def _units_of(problem: Problem, selection: Selection) -> int:
+    """The chosen work in whole resolution steps, rounded up as the selector rounds it."""
+    effort = {item.key: item.effort for item in problem.items}
+    return sum(units_up(effort[key], problem.resolution) for key in selection.chosen)
+
+
 @lru_cache(maxsize=32)
-def sampled_curve(problem: Problem, curve_to: float, samples: int = 16) -> Curve:
-    """The curve at about `samples` capacities, each point exact, for plans found by methods
-    that do not give the whole curve at once (the binary program). Cached: what-if toggles and
-    reloads ask for the same problem again."""
+def probed_curve(
+    problem: Problem, curve_to: float, max_solves: int = MAX_CURVE_SOLVES
+) -> ProbedCurve:
+    """The exact curve of a plan whose method gives no whole curve at once (the binary program).
+
+    More capacity never lowers the best value, so a plan solved at capacity c, whose chosen work
+    takes u steps, is the best from u up to c: one solve finds a whole step. Walking down from
+    the end of the curve, each solve at one step below the last found step either finds the
+    next breakpoint or reaches the capacity where no plan fits (or 0). When a plan has more
+    breakpoints than max_solves, the rest of the curve is read at evenly spaced capacities and
+    the result says it is a sample. Cached: what-if toggles and reloads ask again.
+    """
     r = problem.resolution
-    step = max(r, math.ceil(curve_to / samples / r) * r)
-    capacities = {k * step for k in range(int(curve_to // step) + 1)} | {problem.capacity}
-    days: list[float] = []
-    values: list[float] = []
-    for capacity in sorted(capacities):
-        selection = selection_at(problem, capacity)
+    top = units_down(curve_to, r)
+    values: dict[int, float] = {}
+    solves = 0
+    c = top
+    complete = False
+    while solves < max_solves:
+        if c < 0:
+            complete = True
+            break
+        selection = selection_at(problem, c * r)
+        solves += 1
+        if not selection.feasible:
+            complete = True  # below the pinned work: no capacity under c fits either
+            break
+        low = _units_of(problem, selection)
+        for k in range(low, c + 1):
+            values[k] = selection.value
+        c = low - 1
+    if complete:
+        steps = sorted(values)
+        return ProbedCurve(
+            Curve(tuple(k * r for k in steps), tuple(values[k] for k in steps)), True, solves
+        )
+    # Too many breakpoints: both ends of each step found, and samples of the capacities below
+    # (today's among them, so its value is read, not guessed).
+    known = {k: v for k, v in values.items() if values.get(k - 1) != v or values.get(k + 1) != v}
+    step = max(1, math.ceil(c / SAMPLES))
+    today = units_down(problem.capacity, r)
+    for k in sorted({*range(0, c + 1, step), c, *([today] if today <= c else [])}):
+        selection = selection_at(problem, k * r)
+        solves += 1
         if selection.feasible:
-            days.append(capacity)
-            values.append(selection.value)
-    return Curve(capacity_days=tuple(days), values=tuple(values))
+            known[k] = selection.value
+    steps = sorted(known)
+    return ProbedCurve(
+        Curve(tuple(k * r for k in steps), tuple(known[k] for k in steps)), False, solves
+    )
 
 
-def build_chart(curve: Curve, capacity_days: float, deltas: Sequence[float] = ()) -> CurveChart:
-    """Scales, step path, ticks and today's marker for a curve."""
+def build_chart(
+    curve: Curve, capacity_days: float, deltas: Sequence[float] = (), *, sampled: bool = False
+) -> CurveChart:
+    """Scales, step path, ticks and today's marker for a curve.
+
+    sampled: the curve holds only some capacities (ProbedCurve.complete is False), so it is
+    drawn as its points and the boxes between them, and its table lists every point."""
     days = curve.capacity_days
     values = curve.values
     x_low = 0.0
@@ -160,13 +233,24 @@ def build_chart(curve: Curve, capacity_days: float, deltas: Sequence[float] = ()
     def y_of(v: float) -> float:
         return round(base_y - v * y_scale, 2)
 
-    steps = curve_steps(curve)
-    parts = [f"M{x_of(steps[0].capacity_days)},{y_of(steps[0].value)}"]
-    for step in steps[1:]:
-        parts.append(f"H{x_of(step.capacity_days)}V{y_of(step.value)}")
-    parts.append(f"H{x_of(days[-1])}")
-    line = "".join(parts)
-    area = f"{line}V{base_y}H{x_of(steps[0].capacity_days)}Z"
+    points: tuple[tuple[float, float], ...] = ()
+    ranges = ""
+    if sampled:
+        steps = tuple(Step(d, v) for d, v in zip(days, values, strict=True))
+        points = tuple((x_of(d), y_of(v)) for d, v in zip(days, values, strict=True))
+        pairs = list(itertools.pairwise(points))
+        # Equal neighbours: the value is known all the way between them (a level line).
+        line = "".join(f"M{a[0]},{a[1]}H{b[0]}" for a, b in pairs if a[1] == b[1])
+        ranges = "".join(f"M{a[0]},{a[1]}H{b[0]}V{b[1]}H{a[0]}Z" for a, b in pairs if a[1] != b[1])
+        area = ""
+    else:
+        steps = curve_steps(curve)
+        parts = [f"M{x_of(steps[0].capacity_days)},{y_of(steps[0].value)}"]
+        for step in steps[1:]:
+            parts.append(f"H{x_of(step.capacity_days)}V{y_of(step.value)}")
+        parts.append(f"H{x_of(days[-1])}")
+        line = "".join(parts)
+        area = f"{line}V{base_y}H{x_of(steps[0].capacity_days)}Z"
     today_value = value_at(curve, capacity_days)
     marks = tuple(
         (f"{'+' if d > 0 else '−'}{abs(d):g} d", x_of(capacity_days + d))
@@ -193,6 +277,9 @@ def build_chart(curve: Curve, capacity_days: float, deltas: Sequence[float] = ()
         today_step=max(0, sum(1 for s in steps if s.capacity_days <= capacity_days + 1e-9) - 1),
         first_days=days[0],
         last_days=days[-1],
+        sampled=sampled,
+        points=points,
+        ranges_path=ranges,
     )
 
 

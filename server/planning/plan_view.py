@@ -16,13 +16,14 @@ from sqlmodel import Session
 
 from server.message_titles import conflict_with_titles, with_titles
 from server.models import Period, Team
+from server.planning import curve_chart
 from server.planning.curve_chart import (
     CurveChart,
     Readout,
     build_chart,
     default_delta,
+    probed_curve,
     readout,
-    sampled_curve,
 )
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
 from server.planning.undo import last_change
@@ -76,6 +77,18 @@ class WhatIf:
 
     def query(self) -> str:
         return urlencode(self.params())
+
+    def scenario_query(self) -> str:
+        """The period and the what-if as fields of the scenario form (see
+        planning.scenarios.parse_changes_form), to start a scenario from this view."""
+        out: list[tuple[str, str]] = []
+        if self.period_id is not None:
+            out.append(("period_id", str(self.period_id)))
+        out += [(f"forced.{i}", "in") for i in self.forced_in]
+        out += [(f"forced.{i}", "out") for i in self.forced_out]
+        if self.confidence_pct is not None:
+            out.append(("confidence", f"P{_plain(self.confidence_pct)}"))
+        return urlencode(out)
 
     def force_in(self, initiative_id: int) -> WhatIf:
         return replace(
@@ -463,7 +476,8 @@ class PlanView:
     chart: CurveChart | None
     readouts: tuple[Readout, ...]
     delta_days: float | None
-    curve_sampled: bool  # True: the curve was read at sample capacities, not every step
+    curve_sampled: bool  # True: the curve holds only sample capacities, not every breakpoint
+    curve_probed: bool  # True: found by solving at capacities (binary program), not the DP
     risk: RiskView | None
     undo_summary: str | None
     titles: Mapping[str, str]
@@ -557,7 +571,7 @@ def build_plan_view(
     totals = bar = chart = risk = None
     readouts: tuple[Readout, ...] = ()
     delta = None
-    curve_sampled = False
+    curve_sampled = curve_probed = False
     warnings: tuple[str, ...] = ()
     if plan is not None:
         selection = plan.selection
@@ -582,15 +596,21 @@ def build_plan_view(
         risk = _risk(plan, whatif)
         curve = selection.curve
         if curve is None and selection.feasible and selection.capacity > 0:
-            curve = sampled_curve(plan.problem, default_curve_to(selection.capacity))
-            curve_sampled = True
+            probed = probed_curve(
+                plan.problem,
+                default_curve_to(selection.capacity),
+                curve_chart.MAX_CURVE_SOLVES,  # read here, so a test can lower it
+            )
+            curve = probed.curve
+            curve_probed = True
+            curve_sampled = not probed.complete
         if selection.feasible and curve is not None and curve.values:
             delta = whatif.delta_days or default_delta(selection.capacity, resolution)
             readouts = (
                 readout(plan.problem, selection, delta, titles),
                 readout(plan.problem, selection, -delta, titles),
             )
-            chart = build_chart(curve, selection.capacity, (delta, -delta))
+            chart = build_chart(curve, selection.capacity, (delta, -delta), sampled=curve_sampled)
     return PlanView(
         team=team,
         period=period,
@@ -607,6 +627,7 @@ def build_plan_view(
         readouts=readouts,
         delta_days=delta,
         curve_sampled=curve_sampled,
+        curve_probed=curve_probed,
         risk=risk,
         undo_summary=last.summary if last is not None else None,
         titles=titles,
@@ -726,7 +747,8 @@ def _curve_json(view: PlanView) -> dict[str, Any] | None:
     if view.plan is None or view.chart is None:
         return None
     return {
-        # From each step's capacity on, until the next step, the best value is its value.
+        # From each step's capacity on, until the next step, the best value is its value;
+        # when "sampled", the steps are sample capacities only, each exact.
         "steps": [
             {"capacity_days": step.capacity_days, "value": step.value} for step in view.chart.steps
         ],

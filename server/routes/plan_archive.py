@@ -314,6 +314,12 @@ def scenarios_page(
     period_id: QueryId = None,
 ) -> Response:
     context = _scenarios_context(session, team_id, period_id, settings)
+    # A what-if brought from the live plan starts the form; the post checks it like any value.
+    context["form"] = {
+        key: value
+        for key, value in request.query_params.items()
+        if key == "confidence" or (key.startswith("forced.") and value in ("in", "out"))
+    }
     return _render(templates, request, "plans/scenarios.html", context)
 
 

@@ -20,6 +20,7 @@ from fastapi.responses import JSONResponse, RedirectResponse, Response
 from markupsafe import Markup
 from starlette.datastructures import FormData, ImmutableMultiDict
 
+from server.access import allowed
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError, StaleVersionError
 from server.planning.paste import PasteResult, commit_paste, effort_fields, parse_paste
@@ -123,8 +124,16 @@ class RowCache:
         return markup
 
 
-def _row_cache(request: Request, view: PlanView, focus: str | None) -> RowCache:
+def can_edit(request: Request, team_id: int) -> bool:
+    """Whether this person's role may change the plan's initiatives (the access table)."""
+    return allowed(
+        getattr(request.state, "user", None), "POST", f"/teams/{team_id}/plan/initiatives"
+    )
+
+
+def _row_cache(request: Request, view: PlanView, focus: str | None, editing: bool) -> RowCache:
     shared = (
+        editing,  # a viewer's rows have no fields: never reuse an editor's
         request.state.csrf_token,
         view.team.id,
         view.whatif.query(),
@@ -153,8 +162,9 @@ def _render(
         "paste_text": "",
         "notice": None,
         "focus": None,
+        "can_edit": can_edit(request, view.team.id or 0),
     } | dict(extra or {})
-    context["row_cache"] = _row_cache(request, view, context["focus"])
+    context["row_cache"] = _row_cache(request, view, context["focus"], context["can_edit"])
     show_fragment = _is_htmx(request)
     name = "_plan_body.html" if show_fragment else "plan.html"
     response = templates.TemplateResponse(request, name, context, status_code=status_code)
@@ -265,6 +275,7 @@ def explain_fragment(
             "row": row,
             "plan_url": plan_url,
             "states": INITIATIVE_STATES,
+            "can_edit": can_edit(request, team_id),
             # Fetched into its row, the row's form is there for "Pin it" and the like.
             "standalone": not _is_htmx(request),
         },

@@ -140,7 +140,7 @@ def _watch(page: Page, problems: list[str]) -> None:
     def on_console(message: ConsoleMessage) -> None:
         text = message.text
         asked_for = text.startswith("Failed to load resource") and any(
-            f"status of {status}" in text for status in (404, 409, 422)
+            f"status of {status}" in text for status in (403, 404, 409, 422)
         )
         if message.type == "error" and not asked_for:
             problems.append(f"console error: {text}")
