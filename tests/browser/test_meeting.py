@@ -134,7 +134,7 @@ def test_bad_effort_is_refused_beside_the_field(app_page: Page, live_server: Liv
     page = app_page
     gangway, _ = _gangway_and_buoy(page, live_server)
     effort = page.locator(f"#effort-{gangway}")
-    for bad, message in (("abc", "Enter a number."), ("-2", "greater than 0")):
+    for bad, message in (("abc", "Enter a number."), ("-2", "above 0")):
         effort = page.locator(f"#effort-{gangway}")
         effort.fill(bad)
         effort.press("Tab")
@@ -162,7 +162,7 @@ def test_quick_add_refuses_bad_effort(app_page: Page, live_server: LiveServer) -
     page.locator("#quick-effort").fill("-2")
     page.locator("#quick-value").fill("10")
     page.locator("#quick-value").press("Enter")
-    expect(page.locator("#quick-effort-error")).to_contain_text("greater than 0")
+    expect(page.locator("#quick-effort-error")).to_contain_text("above 0")
     expect(page.locator("#quick-title")).to_have_value("Harbour wall")
     expect(page.locator("#quick-effort")).to_be_focused()
 
