@@ -244,6 +244,8 @@ class RowView:
     decision: str | None  # "in", "out", or None when there is no plan
     forced: str | None  # "in" / "out" while a what-if forces it
     blocked_by: tuple[str, ...]
+    needs: tuple[str, ...]  # titles of the initiatives it needs inside this plan
+    either_or: str | None  # the either-or set it belongs to
     other_teams: tuple[str, ...]
     owner_team_id: int
     editable: bool  # only the owning team edits an initiative
@@ -329,6 +331,8 @@ def _row_view(
         decision=decision,
         forced=plan_row.forced if plan_row else None,
         blocked_by=plan_row.blocked_by if plan_row else (),
+        needs=tuple(titles[str(n)] for n in record.needs if str(n) in titles),
+        either_or=record.row.either_or,
         other_teams=plan_row.other_teams if plan_row else (),
         owner_team_id=record.row.team_id,
         editable=record.row.team_id == team_id,

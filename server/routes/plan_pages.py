@@ -98,6 +98,8 @@ class RowCache:
             row.planned_effort,
             row.pert,
             row.blocked_by,
+            row.needs,
+            row.either_or,
             row.other_teams,
             row.editable,
             row.explanation,

@@ -307,3 +307,22 @@ def test_every_pair_of_states_in_one_set_is_stored_only_when_plannable(session: 
             session.rollback()
             stored = False
         assert stored == plannable, (first, second)
+
+
+def test_plan_rows_show_their_needs_and_either_or_set(
+    form_client: TestClient, session: Session, harbour
+) -> None:
+    team, period, needed = harbour
+    base = make_initiative(session, team, period, "Stop list", 2, 3)
+    make_initiative(
+        session, team, period, "Stop search", 2, 4, needs=[base.row.id or 0], either_or="Search"
+    )
+    make_initiative(session, team, period, "Fare estimate", 3, 17, needs=[needed])
+    root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
+    rows = {r.find(cls="title-text").text(): r for r in root.find_all("tr", cls="plan-row")}
+    tags = [t.text() for t in rows["Stop search"].find_all("span", cls="tag")]
+    assert "needs Stop list" in tags
+    assert "either-or set: Search" in tags
+    blocked = [t.text() for t in rows["Fare estimate"].find_all("span", cls="tag")]
+    assert "blocked: needs Fare API" in blocked
+    assert [t.text() for t in rows["Stop list"].find_all("span", cls="tag")] == []
