@@ -526,6 +526,13 @@ def update_initiative(
     """Apply a change based on `initiative_in.version`; refuse it if the row moved on."""
     record = get_initiative(session, initiative_id=initiative_id)
     db_row = record.row
+    if initiative_in.version > db_row.version:
+        raise StaleVersionError(
+            f"This initiative is at version {db_row.version}; there is no version "
+            f"{initiative_in.version} yet. Your values were not saved; read the current ones "
+            "and apply your change to them.",
+            current=record.to_public().model_dump(mode="json"),
+        )
     if initiative_in.version != db_row.version:
         raise StaleVersionError(
             f"This initiative was changed by someone else (now version {db_row.version}, your "

@@ -153,6 +153,12 @@ def test_a_stale_version_is_409_with_the_current_values(
     assert detail["current"]["title"] == "Quay wall, north"
     assert detail["current"]["version"] == 2
     assert detail["current"] == client.get(url).json()
+    assert "changed by someone else" in detail["message"]
+    assert snapshot() == before
+
+    ahead = client.patch(url, json={"version": 7, "title": "Quay wall, east"})
+    assert ahead.status_code == 409
+    assert "there is no version 7 yet" in ahead.json()["detail"]["message"]
     assert snapshot() == before
 
 
