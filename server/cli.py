@@ -191,10 +191,21 @@ def main(argv: list[str] | None = None) -> int:
 
     args = parser.parse_args(argv)
     handler: Callable[[argparse.Namespace], int] = args.handler
+    from sqlalchemy.exc import OperationalError, ProgrammingError
+
     try:
         return handler(args)
     except LoadlineError as exc:
         print(f"loadline: {exc.message}", file=sys.stderr)
+        return 2
+    except (OperationalError, ProgrammingError) as exc:
+        # A missing table or an unreachable server: say so in one line, not a traceback.
+        reason = str(exc.orig).splitlines()[0] if exc.orig is not None else type(exc).__name__
+        print(
+            f"loadline: the database is not ready ({reason}). Check DATABASE_URL, and run "
+            "'loadline migrate' to create or update its tables.",
+            file=sys.stderr,
+        )
         return 2
 
 

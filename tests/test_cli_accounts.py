@@ -27,3 +27,14 @@ def test_create_user_then_api_token_signs_in(
     assert "No user named 'nobody'" in capsys.readouterr().err
     monkeypatch.setenv("LOADLINE_NEW_PASSWORD", "short")
     assert main(["create-user", "Other"]) == 2
+
+
+def test_a_database_without_tables_is_one_line_not_a_traceback(
+    tmp_path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    monkeypatch.setenv("DATABASE_URL", f"sqlite:///{tmp_path / 'fresh.db'}")
+    assert main(["api-token", "admin"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("loadline: the database is not ready (no such table: user_account)")
+    assert "loadline migrate" in err
+    assert "Traceback" not in err
