@@ -212,18 +212,29 @@ def validate_three_point(
 
 
 def validate_confidence(raw: object) -> float:
-    """Read a confidence level: 0.8, "0.8", "P80" or "80 %"; strictly between 0 and 1."""
+    """Read a confidence level: 0.8, "0.8", "P80", "80 %" or "80"; strictly between 0 and 1.
+
+    Text as typed into a form may also be a bare percentage: "80" is P80, as on the plan
+    page's custom level (a number of 1 or more cannot be a share). Numbers stay shares.
+    """
     value: object = raw
     if isinstance(raw, str):
         text = raw.strip().upper().replace(" ", "")
         percent = text.startswith("P") or text.endswith("%")
         number = text.removeprefix("P").removesuffix("%")
         try:
-            value = float(number) / (100 if percent else 1)
+            parsed = float(number)
         except ValueError:
             raise EstimateError(
-                "confidence", f"must be a level such as 0.8 or P80, not {raw!r}"
+                "confidence", f"must be a level such as P80, 80 % or 0.8, not {raw!r}"
             ) from None
+        if percent or parsed >= 1:
+            if not 0 < parsed < 100:
+                raise EstimateError(
+                    "confidence", f"must be a level from P1 to P99, e.g. P80 (got {raw.strip()})"
+                )
+            parsed /= 100
+        value = parsed
     return _checked_confidence(value)
 
 

@@ -513,9 +513,14 @@ def test_validate_confidence_reads_levels() -> None:
     assert validate_confidence("P80") == pytest.approx(0.8)
     assert validate_confidence("p 50") == pytest.approx(0.5)
     assert validate_confidence("90 %") == pytest.approx(0.9)
+    # Typed text of 1 or more is a percentage, as on the plan page's custom level.
+    assert validate_confidence("80") == pytest.approx(0.8)
+    assert validate_confidence(" 97.5 ") == pytest.approx(0.975)
 
 
-@pytest.mark.parametrize("level", [0, 1, 1.2, -0.1, float("nan"), float("inf"), "80", "P100", "x"])
+@pytest.mark.parametrize(
+    "level", [0, 1, 1.2, 80, -0.1, float("nan"), float("inf"), "100", "150", "P100", "0", "x"]
+)
 def test_confidence_outside_zero_one_is_rejected(level: object) -> None:
     with pytest.raises(EstimateError, match=r"^confidence: ") as caught:
         validate_confidence(level)
