@@ -14,6 +14,8 @@ _QUOTED_KEY = re.compile(r"initiative '(\d+)'")
 # subject ("pinned '3' needs ruled-out '4'") or without one ("is pinned, but so is '5' ...").
 _CONFLICT_PREFIX = re.compile(r"^initiative '(\d+)': (?:either_or|needs):? ")
 _BARE_KEY = re.compile(r"'(\d+)'")
+_LEAVE_TOO = " would leave the plan too"
+_LEAVERS = re.compile(r"; ([^;“”]+)" + re.escape(_LEAVE_TOO))
 
 
 def with_titles(text: str, titles: Mapping[str, str], keys: Sequence[str] = ()) -> str:
@@ -28,7 +30,25 @@ def with_titles(text: str, titles: Mapping[str, str], keys: Sequence[str] = ()) 
             (f"includes {joined}, needed", f"includes {named}, needed"),
         ):
             text = text.replace(before, after)
-    return text
+    return _titled_keys(text, titles)
+
+
+def _titled_keys(text: str, titles: Mapping[str, str]) -> str:
+    # Only keys of known initiatives: an either-or set may be named with digits too.
+    text = _BARE_KEY.sub(lambda m: f"“{titles[m[1]]}”" if m[1] in titles else m[0], text)
+    return titled_leavers(text, titles)
+
+
+def titled_leavers(text: str, titles: Mapping[str, str]) -> str:
+    """Title the keys of an explanation's "; a, b would leave the plan too"."""
+
+    def named(match: re.Match[str]) -> str:
+        keys = match[1].split(", ")
+        if not all(key in titles for key in keys):
+            return match[0]
+        return "; " + ", ".join(f"“{titles[key]}”" for key in keys) + _LEAVE_TOO
+
+    return _LEAVERS.sub(named, text)
 
 
 def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
@@ -38,6 +58,5 @@ def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
         rest = text[match.end() :]
         subject = f"“{titles.get(match[1], match[1])}” " if rest.startswith("is ") else ""
         text = subject + rest
-    # Only keys of known initiatives: an either-or set may be named with digits too.
-    text = _BARE_KEY.sub(lambda m: f"“{titles[m[1]]}”" if m[1] in titles else m[0], text)
+    text = _titled_keys(text, titles)
     return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")

@@ -26,6 +26,7 @@ from sqlmodel import Session
 
 from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
+from server.message_titles import titled_leavers
 from server.models import Period
 from server.planning.plans import LivePlan, PlanOptions, plan_for
 from server.planning.team_capacity import capacity_of
@@ -338,7 +339,7 @@ def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, st
         text = text.replace(f"; {names} would take", f"; {titled} would take")
     for key, title in titles.items():
         text = text.replace(repr(key), f"“{title}”")
-    return text
+    return titled_leavers(text, titles)
 
 
 def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[str]) -> PlanResult:

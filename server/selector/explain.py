@@ -124,7 +124,7 @@ def _explanation(
         regret=regret,
         threshold_value=threshold,
         displaces=displaces,
-        reason=_reason(context, i, opposite.value, regret, displaces),
+        reason=_reason(context, i, opposite.value, regret, displaces, _along(context, i, opposite)),
         constraint_cost=constraint_cost,
     )
 
@@ -133,8 +133,21 @@ def _number(x: float) -> str:
     return f"{x:,.6g}"
 
 
+def _along(context: _Context, i: int, opposite: ForcedPlan) -> tuple[str, ...]:
+    """Chosen initiatives that would leave the plan with i (what needs it, or a new best mix)."""
+    if i not in context.chosen or opposite.value is None:
+        return ()
+    keys = context.prepared.checked.keys
+    return tuple(keys[j] for j in sorted(opposite.removed) if j != i)
+
+
 def _reason(
-    context: _Context, i: int, opposite: float | None, regret: float, displaces: tuple[str, ...]
+    context: _Context,
+    i: int,
+    opposite: float | None,
+    regret: float,
+    displaces: tuple[str, ...],
+    along: tuple[str, ...] = (),
 ) -> str:
     checked = context.prepared.checked
     best = context.best
@@ -166,6 +179,8 @@ def _reason(
         if regret == 0:
             return "In the plan; an equally good plan without it exists, and the tie rule kept it."
         tail = f"; {names} would take its place." if names else "; nothing would take its place."
+        if along:
+            tail = f"; {', '.join(along)} would leave the plan too" + tail
         return f"In the plan: leaving it out costs {_number(regret)} value{tail}"
     if opposite is None:
         free_days = context.outcome.free_capacity * checked.resolution

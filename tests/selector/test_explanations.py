@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import replace
 
 from hypothesis import given, settings
@@ -60,6 +61,23 @@ def _check_explanations(problem: Problem) -> None:
             assert not displaced & chosen
         else:
             assert displaced <= chosen
+        leavers = _leavers(problem, why.reason)
+        if why.chosen and why.regret > 0 and not item.pinned:
+            # The plan without it, read from the explanation, is a real plan of that value.
+            assert leavers <= chosen - {i}
+            without = (chosen - {i} - leavers) | displaced
+            assert satisfies(base, without)
+            assert i not in without
+            keys = [problem.items[j].key for j in without]
+            assert _close(value_of(problem, keys), why.value_if_out)
+        else:
+            assert leavers == set()
+
+
+def _leavers(problem: Problem, reason: str) -> set[int]:
+    """The initiatives an explanation says would leave the plan with it."""
+    match = re.search(r"; ([^;]+) would leave the plan too", reason)
+    return set(indices(problem, match[1].split(", "))) if match else set()
 
 
 @CHECKS
@@ -172,3 +190,16 @@ def test_too_many_re_solves_leave_explanations_out_and_say_so() -> None:
     assert selection.method == "dp-needs-forest"
     assert selection.explanations is None
     assert "no explanations" in selection.method_note
+
+
+def test_leaving_out_what_others_need_names_them() -> None:
+    """Worked by hand: b needs a; without a, b must go and c (4 days) fits in the 6 days."""
+    problem = Problem(
+        items=(Item("a", 3, 10), Item("b", 2, 8, needs=("a",)), Item("c", 4, 5)), capacity=6
+    )
+    why = {e.key: e for e in solve(problem, explain=True).explanations or ()}
+    assert why["a"].reason == (
+        "In the plan: leaving it out costs 13 value; b would leave the plan too; "
+        "c would take its place."
+    )
+    assert "leave the plan too" not in why["b"].reason
