@@ -14,7 +14,7 @@ from fastapi.responses import Response
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
-from server.errors import LoadlineError
+from server.errors import LoadlineError, NotFoundError
 from server.planning.team_capacity import capacity_of
 from server.routes.forms import form_text, see_other
 from server.schemas import (
@@ -24,8 +24,10 @@ from server.schemas import (
     InitiativeCreate,
     InitiativeUpdate,
     MemberCreate,
+    MemberUpdate,
     PeriodCreate,
     TeamCreate,
+    TeamUpdate,
 )
 from server.store import initiatives as initiative_store
 from server.store import periods as period_store
@@ -163,6 +165,9 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "availability_errors": {},
         "settings_form": {},
         "settings_errors": {},
+        "team_form": {},
+        "team_errors": {},
+        "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
     }
 
 
@@ -200,6 +205,90 @@ async def add_member(
         "member_errors": errors,
     }
     return _render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/settings")
+async def update_team(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = _optional_int(form_text(form, "period_id"))
+    values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
+    spread, errors = _share_of_percent(values["spread_pct"], "spread_pct")
+    team_in, refused = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
+    errors = {
+        ("spread_pct" if k == "default_spread" else k): v for k, v in refused.items()
+    } | errors
+    if team_in is not None and not errors:
+        db_team, errors = _store_or_errors(
+            lambda: team_store.update_team(session, team_id=team_id, team_in=team_in)
+        )
+        if db_team is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "team_form": values,
+        "team_errors": errors,
+    }
+    return _render(templates, request, "team.html", context, status_code=422)
+
+
+def _share_of_percent(text: str, field: str) -> tuple[float | None, dict[str, str]]:
+    """A percentage typed into a form as the share the schemas store (20 -> 0.2)."""
+    try:
+        percent = float(text or "0")
+    except ValueError:
+        return None, {field: "Enter a number."}
+    if not 0 <= percent < 100:  # NaN fails too
+        return None, {field: "Enter a percentage from 0 to below 100."}
+    return percent / 100, {}
+
+
+def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:
+    db_member = team_store.get_member(session, member_id=member_id)
+    if db_member.team_id != team_id:
+        raise NotFoundError("That member is not on this team.", field="member_id")
+    return db_member
+
+
+@router.post("/teams/{team_id}/members/{member_id}")
+async def update_member(
+    team_id: int, member_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = _optional_int(form_text(form, "period_id"))
+    _member_of_team(session, team_id, member_id)
+    values = {"name": form_text(form, "name"), "allocation": form_text(form, "allocation")}
+    member_in, errors = parse_form(MemberUpdate, values)
+    if member_in is not None:
+        db_member, errors = _store_or_errors(
+            lambda: team_store.update_member(session, member_id=member_id, member_in=member_in)
+        )
+        if db_member is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "member_edit": {"id": member_id, "form": values, "errors": errors},
+    }
+    return _render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/members/{member_id}/delete")
+async def remove_member(
+    team_id: int, member_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = _optional_int(form_text(form, "period_id"))
+    db_member = _member_of_team(session, team_id, member_id)
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        context = _team_context(session, team_id, period_id) | {
+            "member_edit": {
+                "id": member_id,
+                "form": {"name": db_member.name, "allocation": f"{db_member.allocation:g}"},
+                "errors": {"form": f"Tick “Yes, remove {db_member.name}” to remove them."},
+            },
+        }
+        return _render(templates, request, "team.html", context, status_code=422)
+    team_store.delete_member(session, member_id=member_id)
+    return see_other(_team_url(team_id, period_id))
 
 
 @router.post("/teams/{team_id}/availability")

@@ -280,3 +280,102 @@ def test_bad_focus_or_reserve_is_shown_again(
     assert form.error(other) == ""
     assert list(session.exec(select(CapacitySettings))) == []
     ids_are_unique_and_labels_point_at_fields(page)
+
+
+# --- changing a member and the team --------------------------------------------------------
+
+
+def _member(session: Session, member_id: int) -> Member | None:
+    session.expire_all()
+    return session.get(Member, member_id)
+
+
+def test_a_member_is_renamed_and_their_share_changed(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/members/{team.kari}"
+    page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
+    form = Form(page, url)
+    assert (form.value("name"), form.value("allocation")) == ("Kari", "0.5")
+    ids_are_unique_and_labels_point_at_fields(page)
+    response = _post(
+        form_client, url, {"name": "Kari N.", "allocation": "0.8", "period_id": str(team.period)}
+    )
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    kari = _member(session, team.kari)
+    assert kari is not None
+    assert (kari.name, kari.allocation) == ("Kari N.", 0.8)
+
+
+@pytest.mark.parametrize(
+    ("name", "allocation", "field", "message"),
+    [
+        ("", "0.5", "name", "Enter some text"),
+        ("Ola", "0.5", "name", "Ola"),  # the team already has an Ola
+        ("Kari", "1.5", "allocation", "at most 1"),
+        ("Kari", "half", "allocation", "Enter a number"),
+    ],
+)
+def test_a_bad_member_change_is_shown_again_and_changes_nothing(
+    form_client: TestClient,
+    session: Session,
+    team: Team,
+    name: str,
+    allocation: str,
+    field: str,
+    message: str,
+) -> None:
+    url = f"/teams/{team.id}/members/{team.kari}"
+    response = _post(form_client, url, {"name": name, "allocation": allocation})
+    assert response.status_code == 422  # type: ignore[attr-defined]
+    form = Form(parse(response.text), url)  # type: ignore[attr-defined]
+    assert (form.value("name"), form.value("allocation")) == (name, allocation)
+    assert message in " ".join(form.errors())
+    kari = _member(session, team.kari)
+    assert kari is not None
+    assert (kari.name, kari.allocation) == ("Kari", 0.5)
+
+
+def test_removing_a_member_removes_their_days_off(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/members/{team.ola}/delete"
+    unconfirmed = _post(form_client, url, {})
+    assert unconfirmed.status_code == 422  # type: ignore[attr-defined]
+    assert "Tick “Yes, remove Ola”" in unconfirmed.text  # type: ignore[attr-defined]
+    assert _member(session, team.ola) is not None
+    response = _post(form_client, url, {"confirm": "yes"})
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    assert _member(session, team.ola) is None
+    assert _days_off(session, team.ola) == []
+    assert _member(session, team.kari) is not None
+
+
+def test_a_member_of_another_team_is_not_changed_here(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/members/{team.other_team_member}"
+    assert _post(form_client, url, {"name": "X", "allocation": "1"}).status_code == 404  # type: ignore[attr-defined]
+    gone = _post(form_client, url + "/delete", {"confirm": "yes"})
+    assert gone.status_code == 404  # type: ignore[attr-defined]
+    sol = _member(session, team.other_team_member)
+    assert sol is not None
+    assert sol.name == "Sol"
+
+
+def test_the_team_is_renamed_and_its_spread_set_in_percent(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/settings"
+    response = _post(form_client, url, {"name": "Harbour Ops", "spread_pct": "20"})
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    assert page.find("h1").text() == "Harbour Ops"
+    assert Form(page, url).value("spread_pct") == "20"
+    for bad, message in (("100", "from 0 to below 100"), ("x", "Enter a number")):
+        refused = _post(form_client, url, {"name": "Harbour Ops", "spread_pct": bad})
+        assert refused.status_code == 422  # type: ignore[attr-defined]
+        assert message in " ".join(Form(parse(refused.text), url).errors())  # type: ignore[attr-defined]
+    taken = _post(form_client, url, {"name": "Lighthouse", "spread_pct": "20"})
+    assert taken.status_code == 422  # type: ignore[attr-defined]
+    assert Form(parse(taken.text), url).value("name") == "Lighthouse"  # type: ignore[attr-defined]
