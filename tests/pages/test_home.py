@@ -11,7 +11,7 @@ from sqlmodel import Session, select
 
 from server import demo
 from server.models import Period, Team
-from tests.factories import make_period, make_team
+from tests.factories import make_initiative, make_period, make_team
 from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
 
 PERIOD_FORM = {
@@ -165,3 +165,59 @@ def test_a_duplicate_period_name_is_shown_again(form_client: TestClient, session
     assert form.value("name") == "sprint 2"
     assert "already exists" in form.error("name")
     assert _periods(session) == ["Sprint 2"]
+
+
+# --- changing and deleting a period ---------------------------------------------------------
+
+
+def _send(client: TestClient, url: str, data: dict[str, str]):
+    return client.post(url, data=data | {"csrf_token": client.csrf}, follow_redirects=False)  # type: ignore[attr-defined]
+
+
+def test_a_period_is_changed_from_its_page(form_client: TestClient, session: Session) -> None:
+    period = make_period(session)  # Sprint 1, 2027-03-01 to 03-12, 10 working days
+    home = parse(form_client.get("/").text)
+    assert any(a.attrs.get("href") == f"/periods/{period.id}/edit" for a in home.find_all("a"))
+    page = parse(form_client.get(f"/periods/{period.id}/edit").text)
+    ids_are_unique_and_labels_point_at_fields(page)
+    form = Form(page, f"/periods/{period.id}")
+    assert (form.value("name"), form.value("start_date")) == ("Sprint 1", "2027-03-01")
+    changed = PERIOD_FORM | {"name": "Sprint 1b", "start_date": "2027-03-01"}
+    assert _send(form_client, f"/periods/{period.id}", changed).status_code == 303
+    session.expire_all()
+    stored = session.get(Period, period.id)
+    assert stored is not None
+    assert (stored.name, stored.end_date) == ("Sprint 1b", dt.date(2027, 3, 26))
+    assert stored.non_working_dates == ["2027-03-19"]
+
+
+def test_a_bad_period_change_is_shown_again_and_changes_nothing(
+    form_client: TestClient, session: Session
+) -> None:
+    period = make_period(session)
+    url = f"/periods/{period.id}"
+    bad = PERIOD_FORM | {"end_date": "2027-02-01", "weekmask": "11111"}
+    response = _send(form_client, url, bad)
+    assert response.status_code == 422
+    form = Form(parse(response.text), url)
+    assert (form.value("end_date"), form.value("weekmask")) == ("2027-02-01", "11111")
+    assert "seven digits" in " ".join(form.errors())
+    assert _periods(session) == ["Sprint 1"]
+
+
+def test_a_period_in_use_is_not_deleted_and_says_why(
+    form_client: TestClient, session: Session
+) -> None:
+    period = make_period(session)
+    make_initiative(session, make_team(session), period, "Quay wall")
+    url = f"/periods/{period.id}/delete"
+    unticked = _send(form_client, url, {})
+    assert unticked.status_code == 422
+    assert "Tick “Yes, delete Sprint 1”" in unticked.text
+    refused = _send(form_client, url, {"confirm": "yes"})
+    assert refused.status_code == 409
+    assert "still has 1 initiative(s)" in refused.text
+    assert _periods(session) == ["Sprint 1"]
+    empty = make_period(session, "Sprint 9", dt.date(2027, 5, 3), dt.date(2027, 5, 14))
+    assert _send(form_client, f"/periods/{empty.id}/delete", {"confirm": "yes"}).status_code == 303
+    assert _periods(session) == ["Sprint 1"]
