@@ -8,15 +8,12 @@ it), JSON for the API. Nothing is stored.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import pytest
-from fastapi import FastAPI
 from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
 from server.models import Initiative
-from tests.conftest import bearer, csrf_token
+from tests.conftest import csrf_token
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import Setup, build
 
@@ -24,18 +21,6 @@ from tests.pages.test_plan_pages import Setup, build
 @pytest.fixture
 def setup(session: Session) -> Setup:
     return build(session)
-
-
-@pytest.fixture
-def viewer(app: FastAPI) -> Iterator[TestClient]:
-    with TestClient(app, headers=bearer("viewer")) as client:
-        yield client
-
-
-@pytest.fixture
-def editor(app: FastAPI) -> Iterator[TestClient]:
-    with TestClient(app, headers=bearer("editor")) as client:
-        yield client
 
 
 def test_refused_form_post_is_a_page_with_a_way_back(

@@ -6,15 +6,13 @@ disabled) with a note saying who may edit. Refusals of requests sent anyway: tes
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from urllib.parse import parse_qs, urlsplit
 
 import pytest
-from fastapi import FastAPI
 from fastapi.testclient import TestClient
 from sqlmodel import Session
 
-from tests.conftest import bearer, csrf_token
+from tests.conftest import csrf_token
 from tests.pages.html_tree import Node, parse_html
 from tests.pages.test_plan_pages import Setup, build
 
@@ -24,18 +22,6 @@ EDIT_CONTROLS = ("quick-form", "paste-text", "undo-button")
 @pytest.fixture
 def setup(session: Session) -> Setup:
     return build(session)
-
-
-@pytest.fixture
-def viewer(app: FastAPI) -> Iterator[TestClient]:
-    with TestClient(app, headers=bearer("viewer")) as client:
-        yield client
-
-
-@pytest.fixture
-def editor(app: FastAPI) -> Iterator[TestClient]:
-    with TestClient(app, headers=bearer("editor")) as client:
-        yield client
 
 
 def _page(client: TestClient, url: str) -> Node:
