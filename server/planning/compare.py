@@ -91,11 +91,20 @@ def parse_plan_ids(raw: Sequence[str]) -> list[int]:
         ids.append(int(part))
     if len(set(ids)) != len(ids):
         raise InputError("plans: each plan may appear only once.", field="plans")
-    if not MIN_PLANS <= len(ids) <= MAX_PLANS:
-        raise InputError(
-            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(ids)}).", field="plans"
-        )
+    check_count(len(ids))
     return ids
+
+
+def check_count(count: int) -> None:
+    """Two to four plans; the message says which way the choice is off."""
+    if count < MIN_PLANS:
+        raise InputError(
+            f"plans: choose at least {MIN_PLANS} plans to compare ({count} chosen).", field="plans"
+        )
+    if count > MAX_PLANS:
+        raise InputError(
+            f"plans: choose at most {MAX_PLANS} plans to compare ({count} chosen).", field="plans"
+        )
 
 
 def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
@@ -126,11 +135,7 @@ def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
 
 def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
     """Compare saved plans (two to four, in the order given)."""
-    if not MIN_PLANS <= len(db_plans) <= MAX_PLANS:
-        raise InputError(
-            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(db_plans)}).",
-            field="plans",
-        )
+    check_count(len(db_plans))
     views = [view_of(p.inputs, p.result) for p in db_plans]
     plans = [
         _compared(LABELS[i], p, v) for i, (p, v) in enumerate(zip(db_plans, views, strict=True))
