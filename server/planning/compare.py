@@ -67,6 +67,7 @@ class CurveData(BaseModel):
     capacity: float
     capacity_days: list[float]
     values: list[float]
+    sampled: bool = False  # values exact at the listed capacities only (CurveSnapshot.sampled)
 
 
 class Comparison(BaseModel):
@@ -188,6 +189,7 @@ def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
             capacity=p.capacity,
             capacity_days=list(v.result.curve.capacity_days),
             values=list(v.result.curve.values),
+            sampled=v.result.curve.sampled,
         )
         for p, v in zip(plans, views, strict=True)
         if v.result.curve is not None and v.result.curve.capacity_days
@@ -224,6 +226,7 @@ class SeriesLine:
     value_at_capacity: float | None
     marker_x: float
     marker_y: float | None
+    sampled: bool = False
 
 
 @dataclass(frozen=True)
@@ -321,6 +324,7 @@ def curves_chart(
                 value_at_capacity=at_capacity,
                 marker_x=sx(curve.capacity),
                 marker_y=sy(at_capacity) if at_capacity is not None else None,
+                sampled=curve.sampled,
             )
         )
     x_count = math.floor(x_end / x_step + 1e-9)
@@ -374,5 +378,6 @@ def single_curve_chart(view: PlanView, *, label: str, name: str) -> CurvesChart 
         capacity=view.result.capacity,
         capacity_days=curve.capacity_days,
         values=curve.values,
+        sampled=curve.sampled,
     )
     return curves_chart([data], {label: name})

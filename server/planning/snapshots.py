@@ -27,9 +27,10 @@ from sqlmodel import Session
 from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
 from server.models import Period
+from server.planning import curve_chart
 from server.planning.plans import LivePlan, PlanOptions, plan_for
 from server.planning.team_capacity import capacity_of
-from server.selector import SelectorInputError
+from server.selector import SelectorInputError, default_curve_to
 from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
@@ -144,6 +145,9 @@ class RoundingSnapshot(BaseModel):
 class CurveSnapshot(BaseModel):
     capacity_days: list[float]
     values: list[float]
+    # True: the values hold only at the listed capacities (too many steps to find them all);
+    # between two the value lies between theirs. Snapshots older than the field are whole.
+    sampled: bool = False
 
 
 class ExplanationSnapshot(BaseModel):
@@ -341,10 +345,29 @@ def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, st
     return text
 
 
+def _curve_of(plan: LivePlan) -> CurveSnapshot | None:
+    """The curve the live plan page shows: the DP's own, or found by solving again (HiGHS)."""
+    selection = plan.selection
+    if selection.curve is not None:
+        curve = selection.curve
+        return CurveSnapshot(capacity_days=list(curve.capacity_days), values=list(curve.values))
+    if not (plan.options.curve and selection.feasible and selection.capacity > 0):
+        return None
+    probed = curve_chart.probed_curve(
+        plan.problem, default_curve_to(selection.capacity), curve_chart.MAX_CURVE_SOLVES
+    )
+    if not probed.curve.capacity_days:
+        return None
+    return CurveSnapshot(
+        capacity_days=list(probed.curve.capacity_days),
+        values=list(probed.curve.values),
+        sampled=not probed.complete,
+    )
+
+
 def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[str]) -> PlanResult:
     selection = plan.selection
     rounding = selection.rounding
-    curve = selection.curve
     fit = plan.fit
     titles = {row.key: row.title for row in plan.rows}
     return PlanResult(
@@ -367,9 +390,7 @@ def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[s
             capacity_days_lost=rounding.capacity_days_lost,
             items_rounded_up=list(rounding.items_rounded_up),
         ),
-        curve=CurveSnapshot(capacity_days=list(curve.capacity_days), values=list(curve.values))
-        if curve is not None
-        else None,
+        curve=_curve_of(plan),
         explanations=[
             ExplanationSnapshot(
                 key=e.key,
