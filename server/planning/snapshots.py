@@ -28,9 +28,9 @@ from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
 from server.models import Period
 from server.planning import curve_chart
-from server.planning.plans import LivePlan, PlanOptions, plan_for
+from server.planning.plans import ROUNDING_WARNING_MARK, LivePlan, PlanOptions, plan_for
 from server.planning.team_capacity import capacity_of
-from server.selector import SelectorInputError, default_curve_to
+from server.selector import Rounding, SelectorInputError, default_curve_to
 from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
@@ -517,6 +517,37 @@ class PlanView:
     @property
     def pinned_effort(self) -> float:
         return sum(i.planned_effort for i in self.chosen if i.state == "pinned")
+
+    @property
+    def warnings(self) -> list[str]:
+        """The stored warnings but the one on rounding: pages state it once, from `rounding`."""
+        return [w for w in self.result.warnings if ROUNDING_WARNING_MARK not in w]
+
+    @property
+    def rounding_note(self) -> str | None:
+        return rounding_note(self.result.rounding)
+
+
+def rounding_note(rounding: RoundingSnapshot | Rounding) -> str | None:
+    """One sentence on rounding to the resolution, when it changed what the selector planned.
+
+    Capacity and headroom stay in days as entered (capacity minus the chosen efforts); the
+    selector plans with the capacity rounded down and each effort rounded up to the resolution.
+    """
+    rounded = len(rounding.items_rounded_up)
+    lost = rounding.capacity_days_lost > 1e-9
+    if not rounded and not lost:
+        return None
+    steps = f"The selector plans in {rounding.resolution:g}-day steps"
+    parts = []
+    if lost:
+        parts.append(f"counts {round(rounding.capacity_days_used, 2):g} days of the capacity")
+    if rounded:
+        parts.append(f"rounds {rounded} effort{'s' if rounded != 1 else ''} up")
+    return (
+        f"{steps}: it {' and '.join(parts)}. Capacity, effort and headroom are shown in days "
+        "as entered."
+    )
 
 
 def view_of(inputs: Mapping[str, Any], result: Mapping[str, Any]) -> PlanView:
