@@ -67,6 +67,7 @@ class CurveData(BaseModel):
     capacity: float
     capacity_days: list[float]
     values: list[float]
+    sampled: bool = False  # values exact at the listed capacities only (CurveSnapshot.sampled)
 
 
 class Comparison(BaseModel):
@@ -91,11 +92,20 @@ def parse_plan_ids(raw: Sequence[str]) -> list[int]:
         ids.append(int(part))
     if len(set(ids)) != len(ids):
         raise InputError("plans: each plan may appear only once.", field="plans")
-    if not MIN_PLANS <= len(ids) <= MAX_PLANS:
-        raise InputError(
-            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(ids)}).", field="plans"
-        )
+    check_count(len(ids))
     return ids
+
+
+def check_count(count: int) -> None:
+    """Two to four plans; the message says which way the choice is off."""
+    if count < MIN_PLANS:
+        raise InputError(
+            f"plans: choose at least {MIN_PLANS} plans to compare ({count} chosen).", field="plans"
+        )
+    if count > MAX_PLANS:
+        raise InputError(
+            f"plans: choose at most {MAX_PLANS} plans to compare ({count} chosen).", field="plans"
+        )
 
 
 def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
@@ -126,11 +136,7 @@ def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
 
 def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
     """Compare saved plans (two to four, in the order given)."""
-    if not MIN_PLANS <= len(db_plans) <= MAX_PLANS:
-        raise InputError(
-            f"plans: compare {MIN_PLANS} to {MAX_PLANS} plans (got {len(db_plans)}).",
-            field="plans",
-        )
+    check_count(len(db_plans))
     views = [view_of(p.inputs, p.result) for p in db_plans]
     plans = [
         _compared(LABELS[i], p, v) for i, (p, v) in enumerate(zip(db_plans, views, strict=True))
@@ -183,6 +189,7 @@ def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
             capacity=p.capacity,
             capacity_days=list(v.result.curve.capacity_days),
             values=list(v.result.curve.values),
+            sampled=v.result.curve.sampled,
         )
         for p, v in zip(plans, views, strict=True)
         if v.result.curve is not None and v.result.curve.capacity_days
@@ -219,6 +226,7 @@ class SeriesLine:
     value_at_capacity: float | None
     marker_x: float
     marker_y: float | None
+    sampled: bool = False
 
 
 @dataclass(frozen=True)
@@ -316,6 +324,7 @@ def curves_chart(
                 value_at_capacity=at_capacity,
                 marker_x=sx(curve.capacity),
                 marker_y=sy(at_capacity) if at_capacity is not None else None,
+                sampled=curve.sampled,
             )
         )
     x_count = math.floor(x_end / x_step + 1e-9)
@@ -369,5 +378,6 @@ def single_curve_chart(view: PlanView, *, label: str, name: str) -> CurvesChart 
         capacity=view.result.capacity,
         capacity_days=curve.capacity_days,
         values=curve.values,
+        sampled=curve.sampled,
     )
     return curves_chart([data], {label: name})

@@ -43,6 +43,8 @@ from server.store.periods import get_period
 from server.store.teams import get_team
 
 FIT_DRAWS = 10_000
+# In the warning about rounding; stored plans' pages find it by this and say it once, their way.
+ROUNDING_WARNING_MARK = " effort(s) were rounded up to the "
 
 
 @dataclass(frozen=True)
@@ -355,7 +357,7 @@ def plan_for(
         )
     if selection.rounding.items_rounded_up:
         warnings.append(
-            f"{len(selection.rounding.items_rounded_up)} effort(s) were rounded up to the "
+            f"{len(selection.rounding.items_rounded_up)}{ROUNDING_WARNING_MARK}"
             f"{options.resolution:g}-day resolution; capacity was rounded down by "
             f"{selection.rounding.capacity_days_lost:g} days."
         )

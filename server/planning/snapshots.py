@@ -28,9 +28,10 @@ from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
 from server.message_titles import titled_leavers
 from server.models import Period
-from server.planning.plans import LivePlan, PlanOptions, plan_for
+from server.planning import curve_chart
+from server.planning.plans import ROUNDING_WARNING_MARK, LivePlan, PlanOptions, plan_for
 from server.planning.team_capacity import capacity_of
-from server.selector import SelectorInputError
+from server.selector import Rounding, SelectorInputError, default_curve_to
 from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
@@ -145,6 +146,9 @@ class RoundingSnapshot(BaseModel):
 class CurveSnapshot(BaseModel):
     capacity_days: list[float]
     values: list[float]
+    # True: the values hold only at the listed capacities (too many steps to find them all);
+    # between two the value lies between theirs. Snapshots older than the field are whole.
+    sampled: bool = False
 
 
 class ExplanationSnapshot(BaseModel):
@@ -342,10 +346,29 @@ def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, st
     return titled_leavers(text, titles)
 
 
+def _curve_of(plan: LivePlan) -> CurveSnapshot | None:
+    """The curve the live plan page shows: the DP's own, or found by solving again (HiGHS)."""
+    selection = plan.selection
+    if selection.curve is not None:
+        curve = selection.curve
+        return CurveSnapshot(capacity_days=list(curve.capacity_days), values=list(curve.values))
+    if not (plan.options.curve and selection.feasible and selection.capacity > 0):
+        return None
+    probed = curve_chart.probed_curve(
+        plan.problem, default_curve_to(selection.capacity), curve_chart.MAX_CURVE_SOLVES
+    )
+    if not probed.curve.capacity_days:
+        return None
+    return CurveSnapshot(
+        capacity_days=list(probed.curve.capacity_days),
+        values=list(probed.curve.values),
+        sampled=not probed.complete,
+    )
+
+
 def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[str]) -> PlanResult:
     selection = plan.selection
     rounding = selection.rounding
-    curve = selection.curve
     fit = plan.fit
     titles = {row.key: row.title for row in plan.rows}
     return PlanResult(
@@ -368,9 +391,7 @@ def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[s
             capacity_days_lost=rounding.capacity_days_lost,
             items_rounded_up=list(rounding.items_rounded_up),
         ),
-        curve=CurveSnapshot(capacity_days=list(curve.capacity_days), values=list(curve.values))
-        if curve is not None
-        else None,
+        curve=_curve_of(plan),
         explanations=[
             ExplanationSnapshot(
                 key=e.key,
@@ -497,6 +518,37 @@ class PlanView:
     @property
     def pinned_effort(self) -> float:
         return sum(i.planned_effort for i in self.chosen if i.state == "pinned")
+
+    @property
+    def warnings(self) -> list[str]:
+        """The stored warnings but the one on rounding: pages state it once, from `rounding`."""
+        return [w for w in self.result.warnings if ROUNDING_WARNING_MARK not in w]
+
+    @property
+    def rounding_note(self) -> str | None:
+        return rounding_note(self.result.rounding)
+
+
+def rounding_note(rounding: RoundingSnapshot | Rounding) -> str | None:
+    """One sentence on rounding to the resolution, when it changed what the selector planned.
+
+    Capacity and headroom stay in days as entered (capacity minus the chosen efforts); the
+    selector plans with the capacity rounded down and each effort rounded up to the resolution.
+    """
+    rounded = len(rounding.items_rounded_up)
+    lost = rounding.capacity_days_lost > 1e-9
+    if not rounded and not lost:
+        return None
+    steps = f"The selector plans in {rounding.resolution:g}-day steps"
+    parts = []
+    if lost:
+        parts.append(f"counts {round(rounding.capacity_days_used, 2):g} days of the capacity")
+    if rounded:
+        parts.append(f"rounds {rounded} effort{'s' if rounded != 1 else ''} up")
+    return (
+        f"{steps}: it {' and '.join(parts)}. Capacity, effort and headroom are shown in days "
+        "as entered."
+    )
 
 
 def view_of(inputs: Mapping[str, Any], result: Mapping[str, Any]) -> PlanView:

@@ -20,7 +20,7 @@ from starlette.datastructures import FormData, UploadFile
 
 from server.actor import current_actor
 from server.deps import SessionDep, SettingsDep, TemplatesDep
-from server.errors import InputError, LoadlineError
+from server.errors import InputError, LoadlineError, NotFoundError
 from server.planning import exports
 from server.planning.compare import (
     MAX_PLANS,
@@ -55,6 +55,7 @@ from server.schemas import Title
 from server.store import plans as store
 from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
+from server.templating import bare_message
 
 router = APIRouter(include_in_schema=False)
 
@@ -163,6 +164,22 @@ async def save_plan(
 # --- saved plans ---------------------------------------------------------------------------
 
 
+def _plans_context(
+    session: SessionDep, team_id: int | None, period_id: int | None
+) -> dict[str, Any]:
+    team = get_team(session, team_id=team_id) if team_id is not None else None
+    period = get_period(session, period_id=period_id) if period_id is not None else None
+    rows = store.list_plans(session, team_id=team_id, period_id=period_id)
+    return {
+        "team": team,
+        "period": period,
+        "plans": [plan_summary(p) for p in rows],
+        "max_plans": MAX_PLANS,
+        "ticked": set(),
+        "errors": {},
+    }
+
+
 @router.get("/plans")
 def plans_page(
     request: Request,
@@ -171,15 +188,7 @@ def plans_page(
     team_id: QueryId = None,
     period_id: QueryId = None,
 ) -> Response:
-    team = get_team(session, team_id=team_id) if team_id is not None else None
-    period = get_period(session, period_id=period_id) if period_id is not None else None
-    rows = store.list_plans(session, team_id=team_id, period_id=period_id)
-    context = {
-        "team": team,
-        "period": period,
-        "plans": [plan_summary(p) for p in rows],
-        "max_plans": MAX_PLANS,
-    }
+    context = _plans_context(session, team_id, period_id)
     return _render(templates, request, "plans/list.html", context)
 
 
@@ -238,23 +247,39 @@ async def revoke_publication(
 # --- comparison ----------------------------------------------------------------------------
 
 
+def _ticked(raw: list[str]) -> set[str]:
+    """The ticked boxes as sent, so a refused comparison shows them still ticked."""
+    return {p.strip() for chunk in raw for p in chunk.split(",") if p.strip()}
+
+
 @router.get("/compare")
 def compare_page(
     request: Request,
     session: SessionDep,
     templates: TemplatesDep,
     plans: list[str] = Query(default_factory=list),
+    team_id: QueryId = None,
+    period_id: QueryId = None,
 ) -> Response:
-    ids = parse_plan_ids(plans)
-    canonical = "/compare?plans=" + ",".join(str(i) for i in ids)
-    if len(plans) > 1:  # ticked boxes arrive as plans=1&plans=2: answer with the stable URL
-        return see_other(canonical)
-    comparison = compare(store.get_plans(session, plan_ids=ids))
+    try:
+        ids = parse_plan_ids(plans)
+        db_plans = store.get_plans(session, plan_ids=ids)
+    except (InputError, NotFoundError) as exc:
+        # Back to the saved plans (as filtered when ticked), the boxes still ticked.
+        context = _plans_context(session, team_id, period_id)
+        text = bare_message(exc.message, "plans")  # shown beside the boxes: a sentence
+        context |= {"ticked": _ticked(plans), "errors": {"plans": text[:1].upper() + text[1:]}}
+        return _render(templates, request, "plans/list.html", context, status_code=422)
+    query = ",".join(str(i) for i in ids)
+    if len(plans) > 1 or team_id is not None or period_id is not None:
+        # Ticked boxes arrive as plans=1&plans=2 (and the list's filter): the stable URL.
+        return see_other("/compare?plans=" + query)
+    comparison = compare(db_plans)
     names = {p.label: p.name for p in comparison.plans}
     context = {
         "comparison": comparison,
         "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
-        "query": ",".join(str(i) for i in ids),
+        "query": query,
     }
     return _render(templates, request, "plans/compare.html", context)
 

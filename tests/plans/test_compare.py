@@ -139,9 +139,69 @@ def test_bad_comparisons_are_refused(
     assert error_fields(api) == [field]
     if status == 404:
         assert "999" in error_text(api)
+    # The page answers every refusal with the saved-plans list again (422), unknown ids too.
     page = client.get(f"/compare?{query}")
-    assert page.status_code == status
+    assert page.status_code == 422
+    assert "Compare ticked plans" in page.text
     assert counts(session) == before
+
+
+def _checked_boxes(html: str) -> dict[str, bool]:
+    """Plan id -> whether its compare box is ticked, read from the list page."""
+    boxes: dict[str, bool] = {}
+
+    class Reader(HTMLParser):
+        def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+            values = dict(attrs)
+            if tag == "input" and values.get("name") == "plans":
+                boxes[values.get("value") or ""] = "checked" in values
+
+    Reader().feed(html)
+    return boxes
+
+
+@pytest.mark.parametrize(
+    ("ticked", "message"),
+    [
+        (["first"], "Choose at least 2 plans to compare (1 chosen)."),
+        ([], "Choose at least 2 plans to compare (0 chosen)."),
+        (["first", 999], "No saved plan with id 999."),
+    ],
+)
+def test_refused_comparison_shows_the_saved_plans_again_with_the_boxes_kept(
+    workspace: Workspace,
+    form_client: TestClient,
+    session: Session,
+    ticked: list[object],
+    message: str,
+) -> None:
+    first = save_live(form_client, workspace)["id"]
+    second = save_live(form_client, workspace, "Second")["id"]
+    before = counts(session)
+    ids = [first if t == "first" else t for t in ticked]
+    query = "&".join(f"plans={i}" for i in ids) or "plans="
+    page = form_client.get(f"/compare?{query}&team_id={workspace.team_id}")
+    assert page.status_code == 422
+    assert f"Saved plans of {workspace.team.name}" in page.text  # the filter is kept
+    assert f'<p class="field-error" id="plans-error">{message}</p>' in page.text
+    assert 'aria-invalid="true" aria-describedby="plans-error"' in page.text
+    assert _checked_boxes(page.text) == {str(first): first in ids, str(second): False}
+    assert counts(session) == before
+
+
+def test_list_form_sends_its_filter_and_a_good_choice_goes_to_the_stable_url(
+    workspace: Workspace, form_client: TestClient
+) -> None:
+    a = save_live(form_client, workspace)["id"]
+    b = save_live(form_client, workspace, "Second")["id"]
+    listing = form_client.get(f"/plans?team_id={workspace.team_id}")
+    assert f'<input type="hidden" name="team_id" value="{workspace.team_id}">' in listing.text
+    assert _checked_boxes(listing.text) == {str(a): False, str(b): False}
+    ticked = form_client.get(
+        f"/compare?team_id={workspace.team_id}&plans={a}&plans={b}", follow_redirects=False
+    )
+    assert ticked.status_code == 303
+    assert ticked.headers["location"] == f"/compare?plans={a},{b}"
 
 
 def test_parse_plan_ids_accepts_commas_and_repeats() -> None:
