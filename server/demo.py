@@ -11,6 +11,7 @@ import datetime as dt
 from sqlalchemy.engine import Engine
 from sqlmodel import Session, func, select
 
+from server.actor import DEMO_ACTOR
 from server.db import one_transaction
 from server.models import Need, Period, Team
 from server.schemas import (
@@ -164,6 +165,7 @@ def load(session: Session) -> None:
             end_date=QUARTER_END,
             non_working_dates=COMPANY_DAYS_OFF,
         ),
+        actor=DEMO_ACTOR,
     )
     for number in range(6):
         start = QUARTER_START + dt.timedelta(days=14 * number)
@@ -177,15 +179,19 @@ def load(session: Session) -> None:
                 end_date=end,
                 non_working_dates=[d for d in COMPANY_DAYS_OFF if start <= d <= end],
             ),
+            actor=DEMO_ACTOR,
         )
     team_ids: dict[str, int] = {}
     for team_name, members in TEAMS.items():
-        team = create_team(session, team_in=TeamCreate(name=team_name, default_spread=0.2))
+        team = create_team(
+            session, team_in=TeamCreate(name=team_name, default_spread=0.2), actor=DEMO_ACTOR
+        )
         team_ids[team_name] = team.id or 0
         for member_name, share, days_off in members:
             member = create_member(
                 session,
                 member_in=MemberCreate(team_id=team.id or 0, name=member_name, allocation=share),
+                actor=DEMO_ACTOR,
             )
             if days_off:
                 set_availability(
@@ -193,12 +199,14 @@ def load(session: Session) -> None:
                     availability_in=AvailabilityCreate(
                         member_id=member.id or 0, period_id=quarter.id or 0, days_off=days_off
                     ),
+                    actor=DEMO_ACTOR,
                 )
         set_capacity_settings(
             session,
             team_id=team.id or 0,
             period_id=quarter.id or 0,
             settings_in=CapacitySettingsIn(focus_factor=0.7, reserve_pct=15),
+            actor=DEMO_ACTOR,
         )
 
     ids_by_title: dict[str, int] = {}
@@ -217,6 +225,7 @@ def load(session: Session) -> None:
                     either_or=either_or,
                 ),
                 commit=False,
+                actor=DEMO_ACTOR,
             )
             ids_by_title[title] = record.row.id or 0
             if needs:
@@ -235,6 +244,7 @@ def load(session: Session) -> None:
             value=CROSS_TEAM_VALUE,
         ),
         commit=False,
+        actor=DEMO_ACTOR,
     )
     pending_needs.append((cross.row.id or 0, CROSS_TEAM_NEEDS))
     for initiative_id, needed in pending_needs:

@@ -571,7 +571,7 @@ def build_plan_view(
         )
         for record in records
     )
-    last = last_change(session, team_id=team_id)
+    last = last_change(session, team_id=team_id, period_id=period.id if period else None)
     totals = bar = chart = risk = None
     readouts: tuple[Readout, ...] = ()
     delta = None

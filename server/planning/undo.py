@@ -1,7 +1,10 @@
-"""Undo a team's last change to its initiatives, from the audit trail.
+"""Undo a team's last change to its initiatives in a period, from the audit trail.
 
-Each press reverts the newest change that has not been undone yet, so pressing it again steps
-further back:
+The plan page of a period offers the team's last change that touched that period (an
+initiative created, changed or deleted there, or moved in or out of it), made by a person:
+changes of the demo loader and other system actors, and changes with no actor (command line),
+are never offered, so undo cannot take the demo workspace apart. Each press reverts the
+newest such change that has not been undone yet, so pressing it again steps further back:
 - an update is reverted to its `before` values, as a new version (so open forms see it);
 - a creation is reverted by deleting the initiative;
 - a deletion is reverted by creating the initiative again (it gets a new id; later undos
@@ -26,6 +29,7 @@ from typing import Any
 
 from sqlmodel import Session, col, select
 
+from server.actor import SYSTEM_ACTORS
 from server.errors import InputError, NotFoundError
 from server.models import AuditEntry, Initiative, Period, utcnow
 from server.schemas import InitiativeCreate, InitiativeUpdate
@@ -116,24 +120,80 @@ def _still_undoable(session: Session, history: _History, entry: AuditEntry) -> b
     return entry.entity_id is not None and _exists(session, _current_id(history, entry.entity_id))
 
 
-def last_change(session: Session, *, team_id: int) -> AuditEntry | None:
-    """The change the next undo would revert, or None."""
+def _by_a_person(actor: str) -> bool:
+    return bool(actor) and actor not in SYSTEM_ACTORS
+
+
+class _Periods:
+    """Where each initiative was at the point an entry was written, walking back in time.
+
+    An update entry names the period only when it moved the initiative, so the walk starts
+    from where the initiatives are now and steps each move (and deletion) back as it passes.
+    """
+
+    def __init__(self, session: Session, history: _History, team_id: int) -> None:
+        self.history = history
+        query = select(Initiative.id, Initiative.period_id).where(Initiative.team_id == team_id)
+        self.now: dict[int, int | None] = {int(i): p for i, p in session.exec(query)}
+
+    def touched(
+        self,
+        session: Session,
+        entry_id: int,
+        action: str,
+        entity_id: int | None,
+        before_period: int | None,
+        after_period: int | None,
+    ) -> set[int | None]:
+        """The periods the entry changed; moves the walk to just before it."""
+        if action == "initiative.paste":
+            pasted = session.get(AuditEntry, entry_id)
+            ids = (pasted.after or {}).get("initiative_ids", []) if pasted is not None else []
+            return {self.now.get(_current_id(self.history, int(i))) for i in ids}
+        current = _current_id(self.history, entity_id or 0)
+        if action == "initiative.create":
+            return {after_period}
+        if action == "initiative.delete":
+            self.now[current] = before_period
+            return {before_period}
+        if before_period is not None or after_period is not None:  # a move
+            self.now[current] = before_period
+            return {before_period, after_period}
+        return {self.now.get(current)}
+
+
+def last_change(session: Session, *, team_id: int, period_id: int | None) -> AuditEntry | None:
+    """The change the next undo on the team's plan for `period_id` would revert, or None."""
+    if period_id is None:
+        return None
     history = _history(session, team_id)
     query = (
-        select(AuditEntry.id, AuditEntry.action, AuditEntry.entity_id)
+        select(
+            AuditEntry.id,
+            AuditEntry.action,
+            AuditEntry.entity_id,
+            AuditEntry.actor,
+            AuditEntry.undone_at,
+            col(AuditEntry.before)["period_id"].as_integer(),
+            col(AuditEntry.after)["period_id"].as_integer(),
+        )
         .where(
             AuditEntry.team_id == team_id,
             AuditEntry.entity == "initiative",
             col(AuditEntry.action).in_(UNDOABLE),
-            col(AuditEntry.undone_at).is_(None),
         )
         .order_by(col(AuditEntry.id).desc())
         .limit(HISTORY_DEPTH)
     )
-    for entry_id, action, entity_id in session.exec(query):
-        if entry_id in history.produced:
+    periods = _Periods(session, history, team_id)
+    # Undone and system entries are walked too: their moves say where initiatives were.
+    for entry_id, action, entity_id, actor, undone_at, before_p, after_p in session.exec(query):
+        touched = periods.touched(session, entry_id, action, entity_id, before_p, after_p)
+        if undone_at is not None or entry_id in history.produced or not _by_a_person(actor):
             continue
         if action == "initiative.create" and entity_id in history.pasted:
+            continue
+        if period_id not in touched:
             continue
         entry = session.get(AuditEntry, entry_id)
         if entry is not None and _still_undoable(session, history, entry):
@@ -141,14 +201,18 @@ def last_change(session: Session, *, team_id: int) -> AuditEntry | None:
     return None
 
 
-def undo_last_change(session: Session, *, team_id: int, actor: str = "") -> UndoOutcome:
-    """Revert the team's last change; raise NotFoundError when there is nothing to undo."""
+def undo_last_change(
+    session: Session, *, team_id: int, period_id: int | None, actor: str = ""
+) -> UndoOutcome:
+    """Revert the team's last change in the period; NotFoundError when there is none."""
     # Deletes cascade in the database, so rows loaded earlier in this session may be gone;
     # SQLite can hand their ids to the rows an undo creates. Start from an empty identity map.
     session.expunge_all()
-    entry = last_change(session, team_id=team_id)
+    entry = last_change(session, team_id=team_id, period_id=period_id)
     if entry is None:
-        raise NotFoundError("There is no change of this team left to undo.", field="undo")
+        raise NotFoundError(
+            "There is no change of this team in this period left to undo.", field="undo"
+        )
     history = _history(session, team_id)
     before_id = _max_entry_id(session)
     try:

@@ -531,7 +531,9 @@ async def undo(
 ) -> Response:
     form = await request.form()
     try:
-        outcome = undo_last_change(session, team_id=team_id)
+        # The page's period: undo reverts only what the page offered.
+        whatif, _ = parse_whatif(_multi(form))
+        outcome = undo_last_change(session, team_id=team_id, period_id=whatif.period_id)
     except LoadlineError as exc:
         view = _view(request, session, settings, team_id, _multi(form))
         status = 404 if isinstance(exc, NotFoundError) else exc.status_code

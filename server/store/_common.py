@@ -27,3 +27,12 @@ def commit_or_conflict(session: Session, message: str, field: str) -> None:
     except IntegrityError as exc:
         session.rollback()
         raise ConflictError(message, field=field) from exc
+
+
+def flush_or_conflict(session: Session, message: str, field: str) -> None:
+    """Flush (to learn a new row's id before its audit entry); a clash becomes a ConflictError."""
+    try:
+        session.flush()
+    except IntegrityError as exc:
+        session.rollback()
+        raise ConflictError(message, field=field) from exc

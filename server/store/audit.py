@@ -80,6 +80,12 @@ def record_many(session: Session, entries: Sequence[AuditEntry]) -> None:
     session.exec(insert(table), params=[{k: getattr(e, k) for k in columns} for e in entries])
 
 
+def changed(before: dict[str, Any], after: dict[str, Any]) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The keys whose values differ, as (before, after): what an edit changed."""
+    keys = [key for key in after if before.get(key) != after[key]]
+    return {key: before.get(key) for key in keys}, {key: after[key] for key in keys}
+
+
 def list_entries(
     session: Session,
     *,

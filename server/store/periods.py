@@ -25,7 +25,7 @@ from server.models import (
 )
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
 from server.store import audit
-from server.store._common import commit_or_conflict, get_or_404
+from server.store._common import commit_or_conflict, flush_or_conflict, get_or_404
 from server.validation import field_and_message
 
 
@@ -57,7 +57,18 @@ def _apply(db_period: Period, fields: PeriodFields) -> None:
     db_period.non_working_dates = [day.isoformat() for day in fields.non_working_dates]
 
 
-def create_period(session: Session, *, period_in: PeriodCreate) -> Period:
+def _period_values(db_period: Period) -> dict[str, Any]:
+    return {
+        "name": db_period.name,
+        "kind": db_period.kind,
+        "start_date": db_period.start_date.isoformat(),
+        "end_date": db_period.end_date.isoformat(),
+        "weekmask": db_period.weekmask,
+        "non_working_dates": list(db_period.non_working_dates),
+    }
+
+
+def create_period(session: Session, *, period_in: PeriodCreate, actor: str = "") -> Period:
     _check_name_free(session, period_in.name, None)
     db_period = Period(
         name=period_in.name,
@@ -67,12 +78,26 @@ def create_period(session: Session, *, period_in: PeriodCreate) -> Period:
     )
     _apply(db_period, period_in)
     session.add(db_period)
-    commit_or_conflict(session, f"A period named {period_in.name!r} already exists.", "name")
+    message = f"A period named {period_in.name!r} already exists."
+    flush_or_conflict(session, message, "name")
+    audit.record(
+        session,
+        actor=actor,
+        action="period.create",
+        entity="period",
+        entity_id=db_period.id,
+        summary=f"Added {db_period.kind} “{db_period.name}” "
+        f"({db_period.start_date.isoformat()} to {db_period.end_date.isoformat()})",
+        after=_period_values(db_period),
+    )
+    commit_or_conflict(session, message, "name")
     session.refresh(db_period)
     return db_period
 
 
-def update_period(session: Session, *, period_id: int, period_in: PeriodUpdate) -> Period:
+def update_period(
+    session: Session, *, period_id: int, period_in: PeriodUpdate, actor: str = ""
+) -> Period:
     """Merge the change with the stored period and check the whole again."""
     db_period = get_period(session, period_id=period_id)
     merged = {
@@ -91,7 +116,21 @@ def update_period(session: Session, *, period_id: int, period_in: PeriodUpdate) 
         field = field.split(".")[0]
         raise InputError(f"{field}: {message}", field=field) from exc
     _check_name_free(session, fields.name, period_id)
+    old_name = db_period.name
+    before = _period_values(db_period)
     _apply(db_period, fields)
+    old, new = audit.changed(before, _period_values(db_period))
+    if new:
+        audit.record(
+            session,
+            actor=actor,
+            action="period.update",
+            entity="period",
+            entity_id=period_id,
+            summary=f"Changed {', '.join(k.replace('_', ' ') for k in new)} of period “{old_name}”",
+            before=old,
+            after=new,
+        )
     session.add(db_period)
     commit_or_conflict(session, "A period with that name already exists.", "name")
     session.refresh(db_period)
@@ -201,16 +240,47 @@ def get_capacity_settings(session: Session, *, team_id: int, period_id: int) -> 
     )
 
 
+def _settings_values(db_row: CapacitySettings) -> dict[str, Any]:
+    return {"focus_factor": db_row.focus_factor, "reserve_pct": db_row.reserve_pct}
+
+
+def _settings_words(values: dict[str, Any]) -> str:
+    return f"focus factor {values['focus_factor']:g}, reserve {values['reserve_pct']:g} %"
+
+
 def set_capacity_settings(
-    session: Session, *, team_id: int, period_id: int, settings_in: CapacitySettingsIn
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int,
+    settings_in: CapacitySettingsIn,
+    actor: str = "",
 ) -> CapacitySettings:
     # Unknown ids are a 404, not a foreign-key clash reported as a conflict.
-    get_or_404(session, Team, team_id, "team")
-    get_period(session, period_id=period_id)
+    db_team = get_or_404(session, Team, team_id, "team")
+    db_period = get_period(session, period_id=period_id)
     db_row = get_capacity_settings(session, team_id=team_id, period_id=period_id)
+    # Settings never stored are the defaults: the entry's "before" says so in numbers.
+    before = _settings_values(db_row)
     db_row.focus_factor = settings_in.focus_factor
     db_row.reserve_pct = settings_in.reserve_pct
+    after = _settings_values(db_row)
     session.add(db_row)
-    commit_or_conflict(session, "Capacity settings changed at the same time; try again.", "team_id")
+    message = "Capacity settings changed at the same time; try again."
+    flush_or_conflict(session, message, "team_id")
+    if before != after:
+        audit.record(
+            session,
+            actor=actor,
+            action="capacity.update",
+            entity="capacity_settings",
+            entity_id=db_row.id,
+            team_id=team_id,
+            summary=f"Changed capacity settings of team “{db_team.name}” in “{db_period.name}”: "
+            f"{_settings_words(before)} → {_settings_words(after)}",
+            before=before,
+            after=after,
+        )
+    commit_or_conflict(session, message, "team_id")
     session.refresh(db_row)
     return db_row

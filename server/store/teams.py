@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from sqlmodel import Session, col, func, select
 
 from server.errors import ConflictError, InputError
@@ -14,7 +16,8 @@ from server.schemas import (
     TeamCreate,
     TeamUpdate,
 )
-from server.store._common import commit_or_conflict, get_or_404
+from server.store import audit
+from server.store._common import commit_or_conflict, flush_or_conflict, get_or_404
 from server.store.periods import period_working_days
 
 
@@ -32,26 +35,62 @@ def _check_name_free(session: Session, name: str, team_id: int | None = None) ->
         raise ConflictError(f"A team named {clash.name!r} already exists.", field="name")
 
 
-def create_team(session: Session, *, team_in: TeamCreate) -> Team:
+def _team_values(db_team: Team) -> dict[str, Any]:
+    return {"name": db_team.name, "default_spread": db_team.default_spread}
+
+
+def create_team(session: Session, *, team_in: TeamCreate, actor: str = "") -> Team:
     _check_name_free(session, team_in.name)
     db_team = Team(name=team_in.name, default_spread=team_in.default_spread)
     session.add(db_team)
-    commit_or_conflict(session, f"A team named {team_in.name!r} already exists.", "name")
+    message = f"A team named {team_in.name!r} already exists."
+    flush_or_conflict(session, message, "name")
+    audit.record(
+        session,
+        actor=actor,
+        action="team.create",
+        entity="team",
+        entity_id=db_team.id,
+        team_id=db_team.id,
+        summary=f"Added team “{db_team.name}”",
+        after=_team_values(db_team),
+    )
+    commit_or_conflict(session, message, "name")
     session.refresh(db_team)
     return db_team
 
 
-def update_team(session: Session, *, team_id: int, team_in: TeamUpdate) -> Team:
+def update_team(session: Session, *, team_id: int, team_in: TeamUpdate, actor: str = "") -> Team:
     db_team = get_team(session, team_id=team_id)
     changes = team_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_name_free(session, changes["name"], team_id)
+    old_name = db_team.name
+    before = _team_values(db_team)
     for key, value in changes.items():
         setattr(db_team, key, value)
+    old, new = audit.changed(before, _team_values(db_team))
+    if new:  # a form sent back unchanged is no change worth an entry
+        renamed = f"Renamed team “{old_name}” to “{db_team.name}”"
+        audit.record(
+            session,
+            actor=actor,
+            action="team.update",
+            entity="team",
+            entity_id=team_id,
+            team_id=team_id,
+            summary=renamed if "name" in new else f"Changed {_fields(new)} of team “{old_name}”",
+            before=old,
+            after=new,
+        )
     session.add(db_team)
     commit_or_conflict(session, "A team with that name already exists.", "name")
     session.refresh(db_team)
     return db_team
+
+
+def _fields(values: dict[str, Any]) -> str:
+    return ", ".join(name.replace("_", " ") for name in values)
 
 
 def count_team_initiatives(session: Session, *, team_id: int) -> int:
@@ -59,7 +98,9 @@ def count_team_initiatives(session: Session, *, team_id: int) -> int:
     return int(session.exec(query).one())
 
 
-def delete_team(session: Session, *, team_id: int, with_initiatives: bool = False) -> None:
+def delete_team(
+    session: Session, *, team_id: int, with_initiatives: bool = False, actor: str = ""
+) -> None:
     """Delete a team; refuse while it owns initiatives unless asked to delete those too."""
     db_team = get_team(session, team_id=team_id)
     owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
@@ -69,6 +110,24 @@ def delete_team(session: Session, *, team_id: int, with_initiatives: bool = Fals
             "or ask to delete them with the team.",
             field="team_id",
         )
+    members = list_members(session, team_id=team_id)
+    # The database cascades members, availability and capacity settings; the entry keeps
+    # what went with the team (the initiatives' own values are in their earlier entries).
+    audit.record(
+        session,
+        actor=actor,
+        action="team.delete",
+        entity="team",
+        entity_id=team_id,
+        team_id=team_id,
+        summary=f"Deleted team “{db_team.name}”"
+        + (f" with its {len(owned)} initiative(s)" if owned else ""),
+        before=_team_values(db_team)
+        | {
+            "members": [{"name": m.name, "allocation": m.allocation} for m in members],
+            "initiatives": [{"id": i.id, "title": i.title} for i in owned],
+        },
+    )
     for db_initiative in owned:
         session.delete(db_initiative)
     session.flush()
@@ -96,31 +155,92 @@ def _check_member_name_free(
         raise ConflictError(f"This team already has a member named {clash.name!r}.", field="name")
 
 
-def create_member(session: Session, *, member_in: MemberCreate) -> Member:
-    get_team(session, team_id=member_in.team_id)
+def _member_values(db_member: Member) -> dict[str, Any]:
+    return {"name": db_member.name, "allocation": db_member.allocation}
+
+
+def _share(allocation: float | None) -> str:
+    return "the member's usual share" if allocation is None else f"share {allocation * 100:g} %"
+
+
+def create_member(session: Session, *, member_in: MemberCreate, actor: str = "") -> Member:
+    db_team = get_team(session, team_id=member_in.team_id)
     _check_member_name_free(session, member_in.team_id, member_in.name, None)
     db_member = Member(**member_in.model_dump())
     session.add(db_member)
-    commit_or_conflict(session, "This team already has a member with that name.", "name")
+    message = "This team already has a member with that name."
+    flush_or_conflict(session, message, "name")
+    audit.record(
+        session,
+        actor=actor,
+        action="member.create",
+        entity="member",
+        entity_id=db_member.id,
+        team_id=db_member.team_id,
+        summary=f"Added member “{db_member.name}” to team “{db_team.name}” "
+        f"({_share(db_member.allocation)})",
+        after=_member_values(db_member),
+    )
+    commit_or_conflict(session, message, "name")
     session.refresh(db_member)
     return db_member
 
 
-def update_member(session: Session, *, member_id: int, member_in: MemberUpdate) -> Member:
+def update_member(
+    session: Session, *, member_id: int, member_in: MemberUpdate, actor: str = ""
+) -> Member:
     db_member = get_member(session, member_id=member_id)
     changes = member_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_member_name_free(session, db_member.team_id, changes["name"], member_id)
+    old_name = db_member.name
+    before = _member_values(db_member)
     for key, value in changes.items():
         setattr(db_member, key, value)
+    old, new = audit.changed(before, _member_values(db_member))
+    if new:
+        team_name = get_team(session, team_id=db_member.team_id).name
+        parts = []
+        if "name" in new:
+            parts.append(f"renamed to “{db_member.name}”")
+        if "allocation" in new:
+            parts.append(f"{_share(old['allocation'])} → {_share(new['allocation'])}")
+        audit.record(
+            session,
+            actor=actor,
+            action="member.update",
+            entity="member",
+            entity_id=member_id,
+            team_id=db_member.team_id,
+            summary=f"Member “{old_name}” of team “{team_name}”: {', '.join(parts)}",
+            before=old,
+            after=new,
+        )
     session.add(db_member)
     commit_or_conflict(session, "This team already has a member with that name.", "name")
     session.refresh(db_member)
     return db_member
 
 
-def delete_member(session: Session, *, member_id: int) -> None:
-    session.delete(get_member(session, member_id=member_id))
+def delete_member(session: Session, *, member_id: int, actor: str = "") -> None:
+    db_member = get_member(session, member_id=member_id)
+    team_name = get_team(session, team_id=db_member.team_id).name
+    # The database cascades the member's availability; the entry keeps it, as days.
+    kept = [
+        {"period_id": row.period_id, "days_off": row.days_off, "allocation": row.allocation}
+        for row in session.exec(select(Availability).where(Availability.member_id == member_id))
+    ]
+    audit.record(
+        session,
+        actor=actor,
+        action="member.delete",
+        entity="member",
+        entity_id=member_id,
+        team_id=db_member.team_id,
+        summary=f"Removed member “{db_member.name}” from team “{team_name}”",
+        before=_member_values(db_member) | {"availability": kept},
+    )
+    session.delete(db_member)
     session.commit()
 
 
@@ -156,7 +276,54 @@ def _check_days_off(period: Period, days_off: float) -> None:
         )
 
 
-def set_availability(session: Session, *, availability_in: AvailabilityCreate) -> Availability:
+def _availability_values(db_row: Availability) -> dict[str, Any]:
+    # Days and share only: availability is recorded as days, never with a reason.
+    return {"days_off": db_row.days_off, "allocation": db_row.allocation}
+
+
+def _availability_words(values: dict[str, Any]) -> str:
+    return f"{values['days_off']:g} day(s) off, {_share(values['allocation'])}"
+
+
+def _record_availability(
+    session: Session,
+    *,
+    action: str,
+    db_row: Availability,
+    before: dict[str, Any] | None,
+    after: dict[str, Any] | None,
+    actor: str,
+) -> None:
+    """One entry naming the member, its team and the period."""
+    db_member = get_member(session, member_id=db_row.member_id)
+    team_name = get_team(session, team_id=db_member.team_id).name
+    period_name = get_or_404(session, Period, db_row.period_id, "period").name
+    where = f"“{db_member.name}” (team “{team_name}”) in “{period_name}”"
+    if after is None:
+        summary = f"Cleared availability of {where}"
+    elif before is None:
+        summary = f"Set availability of {where}: {_availability_words(after)}"
+    else:
+        summary = (
+            f"Changed availability of {where}: {_availability_words(before)} → "
+            f"{_availability_words(after)}"
+        )
+    audit.record(
+        session,
+        actor=actor,
+        action=action,
+        entity="availability",
+        entity_id=db_row.id,
+        team_id=db_member.team_id,
+        summary=summary,
+        before=before,
+        after=after,
+    )
+
+
+def set_availability(
+    session: Session, *, availability_in: AvailabilityCreate, actor: str = ""
+) -> Availability:
     """Create or replace a member's availability in a period (one row per member and period)."""
     get_member(session, member_id=availability_in.member_id)
     period = get_or_404(session, Period, availability_in.period_id, "period")
@@ -165,21 +332,37 @@ def set_availability(session: Session, *, availability_in: AvailabilityCreate) -
         Availability.member_id == availability_in.member_id,
         Availability.period_id == availability_in.period_id,
     )
-    db_row = session.exec(query).first() or Availability(
+    found = session.exec(query).first()
+    before = _availability_values(found) if found is not None else None
+    db_row = found or Availability(
         member_id=availability_in.member_id, period_id=availability_in.period_id
     )
     db_row.days_off = availability_in.days_off
     db_row.allocation = availability_in.allocation
     session.add(db_row)
-    commit_or_conflict(
-        session, "Availability for this member and period already exists.", "member_id"
-    )
+    message = "Availability for this member and period already exists."
+    flush_or_conflict(session, message, "member_id")
+    after = _availability_values(db_row)
+    if before != after:
+        _record_availability(
+            session,
+            action="availability.set",
+            db_row=db_row,
+            before=before,
+            after=after,
+            actor=actor,
+        )
+    commit_or_conflict(session, message, "member_id")
     session.refresh(db_row)
     return db_row
 
 
 def update_availability(
-    session: Session, *, availability_id: int, availability_in: AvailabilityUpdate
+    session: Session,
+    *,
+    availability_id: int,
+    availability_in: AvailabilityUpdate,
+    actor: str = "",
 ) -> Availability:
     db_row = get_availability(session, availability_id=availability_id)
     changes = availability_in.model_dump(exclude_unset=True)
@@ -187,16 +370,36 @@ def update_availability(
         _check_days_off(
             get_or_404(session, Period, db_row.period_id, "period"), changes["days_off"]
         )
+    before = _availability_values(db_row)
     for key, value in changes.items():
         if key == "days_off" and value is None:
             continue
         setattr(db_row, key, value)
+    after = _availability_values(db_row)
+    if before != after:
+        _record_availability(
+            session,
+            action="availability.update",
+            db_row=db_row,
+            before=before,
+            after=after,
+            actor=actor,
+        )
     session.add(db_row)
     session.commit()
     session.refresh(db_row)
     return db_row
 
 
-def delete_availability(session: Session, *, availability_id: int) -> None:
-    session.delete(get_availability(session, availability_id=availability_id))
+def delete_availability(session: Session, *, availability_id: int, actor: str = "") -> None:
+    db_row = get_availability(session, availability_id=availability_id)
+    _record_availability(
+        session,
+        action="availability.delete",
+        db_row=db_row,
+        before=_availability_values(db_row),
+        after=None,
+        actor=actor,
+    )
+    session.delete(db_row)
     session.commit()

@@ -199,7 +199,9 @@ def test_a_period_emptied_of_its_uses_can_be_deleted_and_is_audited(
     backlog = client.get(f"/api/v1/initiatives?team_id={workspace.team}&backlog=true").json()
     assert {i["id"] for i in backlog} == {workspace.initiative, workspace.dependant}
     # The capacity settings went with the period; the audit entry keeps what they were.
-    (entry,) = client.get("/api/v1/audit", params={"entity": "period"}).json()
+    # Newest first: the deletion, after the period's creation.
+    entry, created = client.get("/api/v1/audit", params={"entity": "period"}).json()
+    assert created["action"] == "period.create"
     assert (entry["action"], entry["entity_id"]) == ("period.delete", workspace.period)
     assert entry["summary"] == "Deleted period “Sprint 1”"
     assert entry["before"]["name"] == "Sprint 1"

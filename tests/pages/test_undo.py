@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, col, select
 
+from server.actor import current_actor
 from server.errors import ConflictError, NotFoundError
 from server.models import AuditEntry, Initiative
 from server.planning.paste import commit_paste, parse_paste
@@ -15,6 +18,14 @@ from server.store.initiatives import delete_initiative, get_initiative, update_i
 from tests.factories import make_initiative, make_period, make_team
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import HX, build, post_form
+
+
+@pytest.fixture(autouse=True)
+def signed_in() -> Iterator[None]:
+    """Changes made through the store here count as a person's, as the app's requests do."""
+    token = current_actor.set("ola")
+    yield
+    current_actor.reset(token)
 
 
 def _fresh(session: Session, initiative_id: int) -> Initiative | None:
@@ -39,7 +50,7 @@ def test_undo_an_update_puts_the_values_back_as_a_new_version(session: Session) 
             version=1, value=55, effort=EffortIn(low=4, likely=6, high=9), state="pinned"
         ),
     )
-    outcome = undo_last_change(session, team_id=team.id or 0)
+    outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert outcome.entry.action == "initiative.update"
     session.expire_all()
     back = get_initiative(session, initiative_id=initiative_id)
@@ -72,7 +83,7 @@ def test_undo_a_creation_deletes_and_a_deletion_recreates(session: Session) -> N
     )
     dependant_id = dependant.row.id or 0
     delete_initiative(session, initiative_id=dependant_id)
-    outcome = undo_last_change(session, team_id=team.id or 0)
+    outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert outcome.summary == "Brought back “Crane rail”."
     session.expire_all()
     again = session.exec(select(Initiative).where(Initiative.title == "Crane rail")).one()
@@ -84,15 +95,15 @@ def test_undo_a_creation_deletes_and_a_deletion_recreates(session: Session) -> N
         "north side",
     )
     # The next undo reverts the creation of "Crane rail", following it to its new id.
-    outcome = undo_last_change(session, team_id=team.id or 0)
+    outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert outcome.entry.action == "initiative.create"
     assert outcome.summary == "Removed “Crane rail” again."
     assert _fresh(session, again.id or 0) is None
-    outcome = undo_last_change(session, team_id=team.id or 0)
+    outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert _fresh(session, base.row.id or 0) is None
-    assert last_change(session, team_id=team.id or 0) is None
+    assert last_change(session, team_id=team.id or 0, period_id=period.id) is None
     with pytest.raises(NotFoundError):
-        undo_last_change(session, team_id=team.id or 0)
+        undo_last_change(session, team_id=team.id or 0, period_id=period.id)
 
 
 def test_repeated_undo_steps_back_and_never_redoes(session: Session) -> None:
@@ -105,14 +116,14 @@ def test_repeated_undo_steps_back_and_never_redoes(session: Session) -> None:
             initiative_id=initiative_id,
             initiative_in=InitiativeUpdate(version=version, value=value),
         )
-    undo_last_change(session, team_id=team.id or 0)
+    undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert _fresh(session, initiative_id).value == 41  # type: ignore[union-attr]
     # The undo's own update is not offered: the next undo goes further back, to 40.
-    entry = last_change(session, team_id=team.id or 0)
+    entry = last_change(session, team_id=team.id or 0, period_id=period.id)
     assert entry is not None
     assert entry.action == "initiative.update"
     assert entry.after == {"value": 41.0}
-    undo_last_change(session, team_id=team.id or 0)
+    undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert _fresh(session, initiative_id).value == 40  # type: ignore[union-attr]
 
 
@@ -122,7 +133,7 @@ def test_undo_is_per_team(session: Session) -> None:
     period = make_period(session)
     mine = make_initiative(session, harbour, period, "Quay wall", 5, 40).row.id or 0
     make_initiative(session, lighthouse, period, "Lamp", 2, 10)
-    undo_last_change(session, team_id=harbour.id or 0)
+    undo_last_change(session, team_id=harbour.id or 0, period_id=period.id)
     assert _fresh(session, mine) is None
     assert session.exec(select(Initiative).where(Initiative.title == "Lamp")).one()
 
@@ -134,7 +145,7 @@ def test_undoing_a_creation_that_another_team_now_needs_is_refused(session: Sess
     quay = make_initiative(session, harbour, period, "Quay wall", 5, 40).row.id or 0
     make_initiative(session, lighthouse, period, "Lamp", 2, 10, needs=[quay])
     with pytest.raises(ConflictError, match=r"'Quay wall' is needed by 'Lamp' \(team Lighthouse\)"):
-        undo_last_change(session, team_id=harbour.id or 0)
+        undo_last_change(session, team_id=harbour.id or 0, period_id=period.id)
     assert _fresh(session, quay) is not None
     assert _entries(session, "initiative.undo") == []
     (created, _) = _entries(session, "initiative.create")
@@ -200,4 +211,4 @@ def test_nothing_to_undo_says_so(form_client: TestClient, session: Session) -> N
         form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(period.id)}, **HX
     )
     assert response.status_code == 404
-    assert "no change of this team left to undo" in response.text
+    assert "no change of this team in this period left to undo" in response.text
