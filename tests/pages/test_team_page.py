@@ -8,7 +8,7 @@ import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
-from server.models import Availability, CapacitySettings, Member
+from server.models import AuditEntry, Availability, CapacitySettings, Member
 from tests.factories import make_member, make_period, make_team, set_days_off
 from tests.pages.parsed_page import (
     Element,
@@ -305,6 +305,8 @@ def test_a_member_is_renamed_and_their_share_changed(
     kari = _member(session, team.kari)
     assert kari is not None
     assert (kari.name, kari.allocation) == ("Kari N.", 0.8)
+    entry = session.exec(select(AuditEntry).where(AuditEntry.action == "member.update")).one()
+    assert entry.actor  # the signed-in person, as for every page change
 
 
 @pytest.mark.parametrize(
