@@ -123,14 +123,8 @@ async def add_period(request: Request, session: SessionDep, templates: Templates
 
 
 def _period_form(db_period: Any) -> dict[str, Any]:
-    return {
-        "name": db_period.name,
-        "kind": db_period.kind,
-        "start_date": db_period.start_date.isoformat(),
-        "end_date": db_period.end_date.isoformat(),
-        "weekmask": db_period.weekmask,
-        "non_working_dates": " ".join(db_period.non_working_dates),
-    }
+    values = period_store.period_values(db_period)
+    return values | {"non_working_dates": " ".join(values["non_working_dates"])}
 
 
 def _period_page(

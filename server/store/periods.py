@@ -57,7 +57,8 @@ def _apply(db_period: Period, fields: PeriodFields) -> None:
     db_period.non_working_dates = [day.isoformat() for day in fields.non_working_dates]
 
 
-def _period_values(db_period: Period) -> dict[str, Any]:
+def period_values(db_period: Period) -> dict[str, Any]:
+    """A period's fields as plain JSON values (audit entries, forms)."""
     return {
         "name": db_period.name,
         "kind": db_period.kind,
@@ -88,7 +89,7 @@ def create_period(session: Session, *, period_in: PeriodCreate, actor: str = "")
         entity_id=db_period.id,
         summary=f"Added {db_period.kind} “{db_period.name}” "
         f"({db_period.start_date.isoformat()} to {db_period.end_date.isoformat()})",
-        after=_period_values(db_period),
+        after=period_values(db_period),
     )
     commit_or_conflict(session, message, "name")
     session.refresh(db_period)
@@ -117,9 +118,9 @@ def update_period(
         raise InputError(f"{field}: {message}", field=field) from exc
     _check_name_free(session, fields.name, period_id)
     old_name = db_period.name
-    before = _period_values(db_period)
+    before = period_values(db_period)
     _apply(db_period, fields)
-    old, new = audit.changed(before, _period_values(db_period))
+    old, new = audit.changed(before, period_values(db_period))
     if new:
         audit.record(
             session,
@@ -204,13 +205,8 @@ def delete_period(session: Session, *, period_id: int, actor: str = "") -> None:
         entity="period",
         entity_id=period_id,
         summary=f"Deleted period “{db_period.name}”",
-        before={
-            "name": db_period.name,
-            "kind": db_period.kind,
-            "start_date": db_period.start_date.isoformat(),
-            "end_date": db_period.end_date.isoformat(),
-            "weekmask": db_period.weekmask,
-            "non_working_dates": list(db_period.non_working_dates),
+        before=period_values(db_period)
+        | {
             "capacity_settings": [
                 {
                     "team_id": row.team_id,
