@@ -7,6 +7,7 @@ confidence-level efforts against scipy.stats.beta.ppf of the PERT-beta distribut
 
 from __future__ import annotations
 
+import datetime as dt
 import itertools
 import re
 from collections.abc import Iterable, Sequence
@@ -729,3 +730,13 @@ def test_cached_rows_match_fresh_rendering(form_client: TestClient, session: Ses
         cached = form_client.get(url).text
         plan_pages._ROW_CACHE.clear()
         assert form_client.get(url).text == cached
+
+
+def test_a_period_without_working_days_says_so(form_client: TestClient, session: Session) -> None:
+    team = make_team(session)
+    weekend = make_period(session, "Weekend", dt.date(2027, 3, 6), dt.date(2027, 3, 7))
+    _capacity(session, team, weekend, 2)
+    make_initiative(session, team, weekend, "Quay wall", 3, 10)
+    text = page(form_client, f"/teams/{team.id}/plan?period_id={weekend.id}").text()
+    assert "Weekend has no working days" in text
+    assert "no members" not in text
