@@ -96,11 +96,18 @@ def load_records(
         return records
     wanted: Any = ids_from if ids_from is not None else [row.id for row in rows]
     by_id = {record.row.id: record for record in records}
+    # The subquery runs again with each query: under READ COMMITTED (PostgreSQL) it can find
+    # an initiative another writer committed after the rows were read. Its lines and needs
+    # belong to a row this read does not hold, so they are skipped.
     lines = select(EffortLine).where(col(EffortLine.initiative_id).in_(wanted))
     for line in session.exec(lines):
-        by_id[line.initiative_id].efforts[line.team_id] = line
+        record = by_id.get(line.initiative_id)
+        if record is not None:
+            record.efforts[line.team_id] = line
     for need in session.exec(select(Need).where(col(Need.initiative_id).in_(wanted))):
-        by_id[need.initiative_id].needs.append(need.needed_id)
+        record = by_id.get(need.initiative_id)
+        if record is not None:
+            record.needs.append(need.needed_id)
     return records
 
 

@@ -22,6 +22,7 @@ from server.store.initiatives import (
     create_initiative,
     create_initiatives,
     get_initiative,
+    load_records,
     update_initiative,
 )
 from tests.factories import make_initiative, make_period, make_team
@@ -323,3 +324,18 @@ def test_many_bad_rows_are_counted_after_the_first_ten(session: Session) -> None
     assert refused.value.message.count("period_id: no period") == 10
     assert refused.value.message.startswith("row 1, ")
     assert refused.value.message.endswith("; and 15 more row(s)")
+
+
+def test_rows_committed_between_the_queries_of_one_read_are_skipped(session: Session) -> None:
+    """Under READ COMMITTED each query sees new commits: the lines query, filtered by a
+    subquery, can meet an initiative the rows query did not return. Reproduced here by
+    reading one row with a subquery that also finds a second."""
+    team, period = make_team(session), make_period(session)
+    first = make_initiative(session, team, period, "Quay wall", needs=[]).row
+    later = make_initiative(session, team, period, "Crane rail", needs=[first.id or 0]).row
+    every_id = select(Initiative.id)
+    records = load_records(session, [first], ids_from=every_id)
+    assert [r.row.id for r in records] == [first.id]
+    assert set(records[0].efforts) == {team.id}
+    assert records[0].needs == []
+    assert later.id is not None
