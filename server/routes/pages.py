@@ -286,12 +286,13 @@ async def update_team(
     form = await request.form()
     period_id = _optional_int(form_text(form, "period_id"))
     values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
-    spread, errors = _share_of_percent(values["spread_pct"], "spread_pct")
-    team_in, refused = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
-    errors = {
-        ("spread_pct" if k == "default_spread" else k): v for k, v in refused.items()
-    } | errors
-    if team_in is not None and not errors:
+    spread = _percent_to_share(values["spread_pct"] or "0")
+    team_in, errors = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
+    if "default_spread" in errors:  # the schema checks a share; the page asks for a percentage
+        refused = errors.pop("default_spread")
+        number = refused == "Enter a number."
+        errors["spread_pct"] = refused if number else "Enter a percentage from 0 to below 100."
+    if team_in is not None:
         db_team, errors = _store_or_errors(
             lambda: team_store.update_team(session, team_id=team_id, team_in=team_in)
         )
@@ -302,17 +303,6 @@ async def update_team(
         "team_errors": errors,
     }
     return _render(templates, request, "team.html", context, status_code=422)
-
-
-def _share_of_percent(text: str, field: str) -> tuple[float | None, dict[str, str]]:
-    """A percentage typed into a form as the share the schemas store (20 -> 0.2)."""
-    try:
-        percent = float(text or "0")
-    except ValueError:
-        return None, {field: "Enter a number."}
-    if not 0 <= percent < 100:  # NaN fails too
-        return None, {field: "Enter a percentage from 0 to below 100."}
-    return percent / 100, {}
 
 
 def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:
