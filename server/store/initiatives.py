@@ -589,17 +589,14 @@ def update_initiative(
         session.add(db_row)
     try:
         session.flush()
+        stored = get_initiative(session, initiative_id=initiative_id)
         if changes & {"state", "either_or", "needs", "period_id", "other_efforts"}:
             try:
-                check_marks(
-                    session,
-                    [get_initiative(session, initiative_id=initiative_id)],
-                    field="state" if "state" in changes else None,
-                )
+                check_marks(session, [stored], field="state" if "state" in changes else None)
             except InputError:
                 session.rollback()
                 raise
-        after = get_initiative(session, initiative_id=initiative_id).to_public()
+        after = stored.to_public()
         audit.record(
             session,
             actor=actor,
