@@ -240,6 +240,10 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "team_form": {},
         "team_errors": {},
         "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
+        "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
+        "scenario_count": team_store.count_team_scenarios(session, team_id=team_id),
+        "delete_error": None,
+        "delete_form": {},
     }
 
 
@@ -303,6 +307,31 @@ async def update_team(
         "team_errors": errors,
     }
     return _render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/delete")
+async def delete_team(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    db_team = team_store.get_team(session, team_id=team_id)
+    form = await request.form()
+    period_id = _optional_int(form_text(form, "period_id"))
+    with_initiatives = form_text(form, "with_initiatives") == "yes"
+    status_code = 422
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        message = f"Tick “Yes, delete team {db_team.name}” to delete it."
+    else:
+        try:
+            team_store.delete_team(session, team_id=team_id, with_initiatives=with_initiatives)
+        except LoadlineError as exc:  # still owns initiatives, or others depend on it
+            message, status_code = exc.message, exc.status_code
+        else:
+            return see_other("/")
+    context = _team_context(session, team_id, period_id) | {
+        "delete_error": message,
+        "delete_form": {"with_initiatives": with_initiatives},
+    }
+    return _render(templates, request, "team.html", context, status_code=status_code)
 
 
 def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import TypeVar
 
 from sqlalchemy.exc import IntegrityError
@@ -10,6 +11,18 @@ from sqlmodel import Session, SQLModel
 from server.errors import ConflictError, NotFoundError
 
 RowT = TypeVar("RowT", bound=SQLModel)
+
+
+def and_list(parts: Sequence[str]) -> str:
+    """'a', 'a and b', 'a, b and c': a list inside a sentence."""
+    return parts[0] if len(parts) == 1 else f"{', '.join(parts[:-1])} and {parts[-1]}"
+
+
+def first_named(names: Sequence[str], limit: int = 10) -> list[str]:
+    """The first `limit` names, and the rest counted as "N more", for a refusal's list."""
+    if len(names) <= limit:
+        return list(names)
+    return [*names[:limit], f"{len(names) - limit} more"]
 
 
 def get_or_404(session: Session, model: type[RowT], row_id: int | None, label: str) -> RowT:

@@ -27,7 +27,7 @@ from server.schemas import (
 from server.selector import Item, SelectorInputError
 from server.selector import check_marks as selector_check_marks
 from server.store import audit
-from server.store._common import get_or_404
+from server.store._common import and_list, first_named, get_or_404
 
 BACKLOG = "backlog"
 
@@ -620,18 +620,14 @@ def update_initiative(
     return get_initiative(session, initiative_id=initiative_id)
 
 
-def _and_list(parts: Sequence[str]) -> str:
-    return parts[0] if len(parts) == 1 else f"{', '.join(parts[:-1])} and {parts[-1]}"
+def needs_from_outside(session: Session, rows: Sequence[Initiative]) -> list[str]:
+    """Say which initiatives outside `rows` need one of them: one clause per needed row.
 
-
-def _refuse_if_needed(session: Session, records: Sequence[InitiativeRecord]) -> None:
-    """Refuse to delete initiatives that others still need (ConflictError naming them).
-
-    The database would drop those needs without a version step or an audit entry, and the
-    dependants could then be chosen without what they need. Needs among `records` themselves
-    go with them.
+    Deleting `rows` would make the database drop those needs without a version step or an
+    audit entry, and the dependants could then be chosen without what they need; so deletes
+    are refused while this is not empty. Needs among `rows` themselves go with them.
     """
-    doomed = {record.row.id or 0: record.row for record in records}
+    doomed = {row.id or 0: row for row in rows}
     ids = sorted(doomed)
     needed_by: dict[int, list[Initiative]] = defaultdict(list)
     for start in range(0, len(ids), _IN_CHUNK):
@@ -644,7 +640,7 @@ def _refuse_if_needed(session: Session, records: Sequence[InitiativeRecord]) -> 
             if dependant.id not in doomed:
                 needed_by[needed_id].append(dependant)
     if not needed_by:
-        return
+        return []
     # Another team's dependant is named with its team, or it is hard to find.
     foreign = {
         dependant.team_id
@@ -668,13 +664,10 @@ def _refuse_if_needed(session: Session, records: Sequence[InitiativeRecord]) -> 
             continue
         names = [
             repr(d.title) + (f" (team {teams[d.team_id]})" if d.team_id in teams else "")
-            for d in dependants[:_LISTED]
+            for d in dependants
         ]
-        if len(dependants) > _LISTED:
-            names.append(f"{len(dependants) - _LISTED} more")
-        parts.append(f"{doomed[needed_id].title!r} is needed by {_and_list(names)}")
-    advice = "remove it from their needs first" if len(parts) == 1 else "remove those needs first"
-    raise ConflictError(f"{'; '.join(parts)}; {advice}.", field="initiative_id")
+        parts.append(f"{doomed[needed_id].title!r} is needed by {and_list(first_named(names))}")
+    return parts
 
 
 def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor: str = "") -> None:
@@ -683,7 +676,10 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
     Refused, with nothing deleted, while an initiative not among them needs one of them.
     """
     records = [get_initiative(session, initiative_id=i) for i in dict.fromkeys(initiative_ids)]
-    _refuse_if_needed(session, records)
+    needed = needs_from_outside(session, [record.row for record in records])
+    if needed:
+        advice = "remove those needs" if len(needed) > 1 else "remove it from their needs"
+        raise ConflictError(f"{'; '.join(needed)}; {advice} first.", field="initiative_id")
     for record in records:
         audit.record(
             session,

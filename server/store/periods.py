@@ -25,7 +25,7 @@ from server.models import (
 )
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
 from server.store import audit
-from server.store._common import commit_or_conflict, flush_or_conflict, get_or_404
+from server.store._common import and_list, commit_or_conflict, flush_or_conflict, get_or_404
 from server.validation import field_and_message
 
 
@@ -143,10 +143,6 @@ def _count(session: Session, model: type[SQLModel], column: Any, period_id: int)
     return int(session.exec(query).one())
 
 
-def _and_list(parts: list[str]) -> str:
-    return parts[0] if len(parts) == 1 else f"{', '.join(parts[:-1])} and {parts[-1]}"
-
-
 def _uses_message(session: Session, db_period: Period) -> str | None:
     """What still refers to the period, in words, or None when nothing does."""
     period_id = db_period.id or 0
@@ -176,9 +172,9 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
         steps.append("delete the scenarios")
     if plans:
         uses.append(f"{plans} saved plan(s)")
-    message = f"Period {db_period.name!r} still has {_and_list(uses)}."
+    message = f"Period {db_period.name!r} still has {and_list(uses)}."
     if steps:
-        message += f" To delete it, {_and_list(steps)} first."
+        message += f" To delete it, {and_list(steps)} first."
     if plans:
         message += " Saved plans are never changed, so a period they refer to is kept."
     return message

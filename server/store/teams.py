@@ -7,7 +7,15 @@ from typing import Any
 from sqlmodel import Session, col, func, select
 
 from server.errors import ConflictError, InputError
-from server.models import Availability, Initiative, Member, Period, Team
+from server.models import (
+    Availability,
+    EffortLine,
+    Initiative,
+    Member,
+    Period,
+    Scenario,
+    Team,
+)
 from server.schemas import (
     AvailabilityCreate,
     AvailabilityUpdate,
@@ -17,7 +25,14 @@ from server.schemas import (
     TeamUpdate,
 )
 from server.store import audit
-from server.store._common import commit_or_conflict, flush_or_conflict, get_or_404
+from server.store._common import (
+    and_list,
+    commit_or_conflict,
+    first_named,
+    flush_or_conflict,
+    get_or_404,
+)
+from server.store.initiatives import needs_from_outside
 from server.store.periods import period_working_days
 
 
@@ -98,10 +113,20 @@ def count_team_initiatives(session: Session, *, team_id: int) -> int:
     return int(session.exec(query).one())
 
 
+def count_team_scenarios(session: Session, *, team_id: int) -> int:
+    query = select(func.count()).select_from(Scenario).where(Scenario.team_id == team_id)
+    return int(session.exec(query).one())
+
+
 def delete_team(
     session: Session, *, team_id: int, with_initiatives: bool = False, actor: str = ""
 ) -> None:
-    """Delete a team; refuse while it owns initiatives unless asked to delete those too."""
+    """Delete a team; refuse while it owns initiatives unless asked to delete those too.
+
+    Refused in any case while another team's initiative needs one of the team's initiatives
+    or carries effort for the team: the database would drop that need or effort line from an
+    initiative nobody asked to change.
+    """
     db_team = get_team(session, team_id=team_id)
     owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
     if owned and not with_initiatives:
@@ -110,9 +135,17 @@ def delete_team(
             "or ask to delete them with the team.",
             field="team_id",
         )
+    held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
+    if held:
+        raise ConflictError(
+            f"Team {db_team.name!r} cannot be deleted: {'; '.join(held)}. "
+            "Change those initiatives first.",
+            field="team_id",
+        )
     members = list_members(session, team_id=team_id)
-    # The database cascades members, availability and capacity settings; the entry keeps
-    # what went with the team (the initiatives' own values are in their earlier entries).
+    scenarios = session.exec(select(Scenario).where(Scenario.team_id == team_id)).all()
+    # The database cascades members, availability, capacity settings and scenarios; the entry
+    # keeps what went with the team (the initiatives' own values are in their earlier entries).
     audit.record(
         session,
         actor=actor,
@@ -126,6 +159,7 @@ def delete_team(
         | {
             "members": [{"name": m.name, "allocation": m.allocation} for m in members],
             "initiatives": [{"id": i.id, "title": i.title} for i in owned],
+            "scenarios": [{"name": s.name, "changes": s.changes} for s in scenarios],
         },
     )
     for db_initiative in owned:
@@ -133,6 +167,22 @@ def delete_team(
     session.flush()
     session.delete(db_team)
     session.commit()
+
+
+def _effort_held_by_others(session: Session, db_team: Team) -> list[str]:
+    """A clause naming other teams' initiatives that carry effort for `db_team`, if any."""
+    query = (
+        select(Initiative, Team.name)
+        .join(EffortLine, col(EffortLine.initiative_id) == Initiative.id)
+        .join(Team, col(Team.id) == Initiative.team_id)
+        .where(EffortLine.team_id == db_team.id, Initiative.team_id != db_team.id)
+        .order_by(func.lower(Team.name), col(Initiative.position), col(Initiative.id))
+    )
+    carriers = [f"{row.title!r} (team {owner})" for row, owner in session.exec(query)]
+    if not carriers:
+        return []
+    verb = "carries" if len(carriers) == 1 else "carry"
+    return [f"{and_list(first_named(carriers))} {verb} effort for team {db_team.name!r}"]
 
 
 def list_members(session: Session, *, team_id: int | None = None) -> list[Member]:

@@ -79,7 +79,20 @@ def test_deleting_a_team_with_initiatives_is_refused(
 def test_deleting_a_team_with_its_initiatives_when_asked(
     client: TestClient, workspace: Workspace
 ) -> None:
-    # Lighthouse's own initiative needs Harbour's and carries effort for Harbour.
+    response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
+    assert response.status_code == 204
+    assert client.get(f"/api/v1/teams/{workspace.team}").status_code == 404
+    assert client.get(f"/api/v1/initiatives/{workspace.initiative}").status_code == 404
+    assert client.get(f"/api/v1/initiatives/{workspace.dependant}").status_code == 404
+    assert client.get(f"/api/v1/members/{workspace.member}").status_code == 404
+    assert client.get(f"/api/v1/availability/{workspace.availability}").status_code == 404
+
+
+def test_a_team_another_team_depends_on_is_kept(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Lighthouse's own initiative needs Harbour's and carries effort for Harbour: deleting
+    # Harbour would take that need and that effort from an initiative nobody asked to change.
     other = client.post(
         "/api/v1/initiatives",
         json={
@@ -91,18 +104,32 @@ def test_deleting_a_team_with_its_initiatives_when_asked(
             "needs": [workspace.initiative],
         },
     ).json()
+    before = snapshot()
 
     response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
+    assert response.status_code == 409
+    message = error_text(response)
+    assert "is needed by 'Beacon on the quay' (team Lighthouse)" in message
+    assert "'Beacon on the quay' (team Lighthouse) carries effort for team 'Harbour'" in message
+    assert snapshot() == before
+
+    # Without the need, the effort line alone still holds the team.
+    unneeded = client.patch(
+        f"/api/v1/initiatives/{other['id']}", json={"needs": [], "version": other["version"]}
+    ).json()
+    response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
+    assert response.status_code == 409
+    assert "is needed by" not in error_text(response)
+    assert "carries effort for team 'Harbour'" in error_text(response)
+
+    client.patch(
+        f"/api/v1/initiatives/{other['id']}",
+        json={"other_efforts": [], "version": unneeded["version"]},
+    )
+    response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
     assert response.status_code == 204
-    assert client.get(f"/api/v1/teams/{workspace.team}").status_code == 404
-    assert client.get(f"/api/v1/initiatives/{workspace.initiative}").status_code == 404
-    assert client.get(f"/api/v1/initiatives/{workspace.dependant}").status_code == 404
-    assert client.get(f"/api/v1/members/{workspace.member}").status_code == 404
-    assert client.get(f"/api/v1/availability/{workspace.availability}").status_code == 404
-    # The other team's initiative stays, without the need and the effort line of the gone team.
     survivor = client.get(f"/api/v1/initiatives/{other['id']}").json()
-    assert survivor["needs"] == []
-    assert survivor["other_efforts"] == []
+    assert (survivor["needs"], survivor["other_efforts"]) == ([], [])
     assert survivor["effort"]["likely"] == 4
 
 

@@ -9,7 +9,8 @@ from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
 from server.models import AuditEntry, Availability, CapacitySettings, Member
-from tests.factories import make_member, make_period, make_team, set_days_off
+from server.models import Team as TeamRow
+from tests.factories import make_initiative, make_member, make_period, make_team, set_days_off
 from tests.pages.parsed_page import (
     Element,
     Form,
@@ -381,3 +382,69 @@ def test_the_team_is_renamed_and_its_spread_set_in_percent(
     taken = _post(form_client, url, {"name": "Lighthouse", "spread_pct": "20"})
     assert taken.status_code == 422  # type: ignore[attr-defined]
     assert Form(parse(taken.text), url).value("name") == "Lighthouse"  # type: ignore[attr-defined]
+
+
+def _team_exists(session: Session, team_id: int) -> bool:
+    session.expire_all()
+    return session.get(TeamRow, team_id) is not None
+
+
+def test_a_team_is_deleted_from_its_page_after_the_tick(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    url = f"/teams/{team.id}/delete"
+    form = Form(page, url)
+    assert "Yes, delete team Harbour" in form.element.text()
+    unconfirmed = _post(form_client, url, {})
+    assert unconfirmed.status_code == 422  # type: ignore[attr-defined]
+    assert "Tick “Yes, delete team Harbour”" in unconfirmed.text  # type: ignore[attr-defined]
+    assert _team_exists(session, team.id)
+
+    response = _post(form_client, url, {"confirm": "yes"})
+    assert response.status_code == 303  # type: ignore[attr-defined]
+    assert response.headers["location"] == "/"  # type: ignore[attr-defined]
+    assert not _team_exists(session, team.id)
+    assert _member(session, team.ola) is None
+    assert _member(session, team.other_team_member) is not None
+    entry = session.exec(select(AuditEntry).where(AuditEntry.action == "team.delete")).one()
+    assert entry.summary == "Deleted team “Harbour”"
+
+
+def test_a_team_with_initiatives_needs_the_second_tick(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    harbour = session.get(TeamRow, team.id)
+    assert harbour is not None
+    make_initiative(session, harbour, None, "Quay lights")
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    url = f"/teams/{team.id}/delete"
+    assert "Also delete its 1 initiative" in Form(page, url).element.text()
+
+    refused = _post(form_client, url, {"confirm": "yes"})
+    assert refused.status_code == 409  # type: ignore[attr-defined]
+    shown = parse(refused.text)  # type: ignore[attr-defined]
+    assert "still has 1 initiative" in shown.find("details", cls="team-delete").text()
+    assert _team_exists(session, team.id)
+
+    done = _post(form_client, url, {"confirm": "yes", "with_initiatives": "yes"})
+    assert done.status_code == 303  # type: ignore[attr-defined]
+    assert not _team_exists(session, team.id)
+
+
+def test_a_team_another_team_needs_is_kept_with_the_boxes_still_ticked(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    harbour = session.get(TeamRow, team.id)
+    lighthouse = session.exec(select(TeamRow).where(TeamRow.name == "Lighthouse")).one()
+    assert harbour is not None
+    lights = make_initiative(session, harbour, None, "Quay lights")
+    make_initiative(session, lighthouse, None, "Beacon", needs=[lights.row.id])
+    url = f"/teams/{team.id}/delete"
+
+    refused = _post(form_client, url, {"confirm": "yes", "with_initiatives": "yes"})
+    assert refused.status_code == 409  # type: ignore[attr-defined]
+    form = Form(parse(refused.text), url)  # type: ignore[attr-defined]
+    assert "'Quay lights' is needed by 'Beacon' (team Lighthouse)" in form.element.text()
+    assert form.control("with_initiatives").attrs.get("checked") is not None
+    assert _team_exists(session, team.id)
