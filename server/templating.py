@@ -8,6 +8,7 @@ from fastapi.templating import Jinja2Templates
 from jinja2 import pass_context
 
 from server.access import allowed
+from server.wording import counted
 
 STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
 
@@ -67,6 +68,7 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["percent"] = percent
     env.filters["bare_message"] = bare_message
     env.filters["error_line"] = error_line
+    env.filters["counted"] = counted
     env.globals["STATE_LABELS"] = STATE_LABELS
     env.globals["may"] = may
     env.trim_blocks = True

@@ -27,6 +27,7 @@ from server.schemas import InitiativeCreate
 from server.store import audit
 from server.store.initiatives import create_initiatives, title_key
 from server.validation import parse_form
+from server.wording import counted
 
 MAX_ROWS = 500
 FIELDS = ("title", "effort", "value", "state")
@@ -285,8 +286,10 @@ def commit_paste(session: Session, result: PasteResult, *, actor: str = "") -> l
     An `initiative.paste` audit entry groups the rows, so one undo removes the whole paste.
     """
     if not result.ok:
+        have = "has" if result.error_count == 1 else "have"
         raise InputError(
-            f"text: {result.error_count} row(s) have errors; nothing was added.", field="text"
+            f"text: {counted(result.error_count, 'row')} {have} errors; nothing was added.",
+            field="text",
         )
     initiatives_in = [row.initiative_in for row in result.rows if row.initiative_in is not None]
     try:
@@ -301,7 +304,7 @@ def commit_paste(session: Session, result: PasteResult, *, actor: str = "") -> l
             entity="initiative",
             entity_id=None,
             team_id=team_id,
-            summary=f"Pasted {len(ids)} initiative(s)",
+            summary=f"Pasted {counted(len(ids), 'initiative')}",
             after={"initiative_ids": ids},
         )
         session.commit()

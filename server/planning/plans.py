@@ -41,10 +41,11 @@ from server.selector.risk import (
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period
 from server.store.teams import get_team
+from server.wording import counted
 
 FIT_DRAWS = 10_000
 # In the warning about rounding; stored plans' pages find it by this and say it once, their way.
-ROUNDING_WARNING_MARK = " effort(s) were rounded up to the "
+ROUNDING_WARNING_MARK = " rounded up to the "
 
 
 @dataclass(frozen=True)
@@ -351,13 +352,16 @@ def plan_for(
         )
     cross = [row for row in rows if row.other_teams]
     if cross:
+        need = "needs" if len(cross) == 1 else "need"
         warnings.append(
-            f"{len(cross)} initiative(s) also need effort from other teams; this page plans "
-            f"{team.name}'s share only. The period overview plans all teams together."
+            f"{counted(len(cross), 'initiative')} also {need} effort from other teams; this page "
+            f"plans {team.name}'s share only. The period overview plans all teams together."
         )
     if selection.rounding.items_rounded_up:
+        rounded = len(selection.rounding.items_rounded_up)
         warnings.append(
-            f"{len(selection.rounding.items_rounded_up)}{ROUNDING_WARNING_MARK}"
+            f"{counted(rounded, 'effort')} {'was' if rounded == 1 else 'were'}"
+            f"{ROUNDING_WARNING_MARK}"
             f"{options.resolution:g}-day resolution; capacity was rounded down by "
             f"{selection.rounding.capacity_days_lost:g} days."
         )

@@ -81,7 +81,8 @@ class ScenarioChanges(BaseModel):
         both = set(self.forced_in) & set(self.forced_out)
         if both:
             listed = ", ".join(str(i) for i in sorted(both))
-            raise ValueError(f"forced_out: initiative(s) {listed} are also forced in")
+            are = "initiative {} is" if len(both) == 1 else "initiatives {} are"
+            raise ValueError(f"forced_out: {are.format(listed)} also forced in")
         return self
 
     def to_json(self) -> dict[str, Any]:
@@ -195,9 +196,13 @@ def check_for_team(
             unknown = [i for i in getattr(changes, name) if i not in ids]
             if unknown:
                 listed = ", ".join(str(i) for i in unknown)
+                are = (
+                    "initiative {} is not a candidate"
+                    if len(unknown) == 1
+                    else "initiatives {} are not candidates"
+                )
                 raise InputError(
-                    f"{name}: initiative(s) {listed} are not candidates of this team in "
-                    f"{period.name}.",
+                    f"{name}: {are.format(listed)} of this team in {period.name}.",
                     field=name,
                 )
 

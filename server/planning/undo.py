@@ -42,6 +42,7 @@ from server.store.initiatives import (
     update_initiative,
 )
 from server.validation import parse_form
+from server.wording import counted
 
 UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
 UNDO_ACTION = "initiative.undo"
@@ -247,7 +248,7 @@ def _revert(
         # and a row another initiative needs by now refuses the whole undo.
         marker = _mark(session, entry, team_id, actor, None)
         delete_initiatives(session, initiative_ids=present, actor=actor)
-        return marker, f"Removed the {len(present)} pasted initiative(s) again."
+        return marker, f"Removed the {counted(len(present), 'pasted initiative')} again."
     if entry.action == "initiative.update":
         initiative_id = _current_id(history, entry.entity_id or 0)
         marker = _mark(session, entry, team_id, actor, initiative_id)

@@ -39,6 +39,7 @@ from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
 from server.store.periods import list_periods
 from server.validation import parse_form
+from server.wording import counted
 
 router = APIRouter(include_in_schema=False)
 
@@ -506,7 +507,7 @@ async def paste_commit(
             extra["paste_error"] = exc.message
         view = _view(request, session, settings, team_id, params)
         return _render(request, templates, view, status_code=422, extra=extra)
-    notice = f"Added {len(ids)} initiative(s) from the pasted rows."
+    notice = f"Added {counted(len(ids), 'initiative')} from the pasted rows."
     return _after_change(
         request,
         session,

@@ -104,7 +104,7 @@ def _print_table(problem: Problem, selection: Selection, out: TextIO) -> None:
     rounded = selection.rounding.items_rounded_up
     if rounded or selection.rounding.capacity_days_lost:
         out.write(
-            f"Rounding: {len(rounded)} effort(s) rounded up to the "
+            f"Rounding: {len(rounded)} effort{'' if len(rounded) == 1 else 's'} rounded up to the "
             f"{format_days(selection.rounding.resolution)}-day resolution; "
             f"{format_days(selection.rounding.capacity_days_lost)} days of capacity unused\n"
         )

@@ -402,8 +402,8 @@ def solve_steps(
         taken, _ = backtrack(steps, table, start, last=applied, reach=reach)
         scratch.give_back(table)
         note = (
-            f"{rows or f'{steps.members} initiatives'} x {width:,} capacity units; decision table "
-            f"{_mib(need)} within the {_mib(budget_bytes)} budget"
+            f"{rows or count_initiatives(steps.members)} x {width:,} capacity units; "
+            f"decision table {_mib(need)} within the {_mib(budget_bytes)} budget"
         )
         if applied < steps.count:
             note += (
@@ -464,6 +464,11 @@ def _divide_and_conquer(
 
 def _step_at(steps: Steps, member: int) -> int:
     return int(np.searchsorted(np.asarray(steps.bounds), member, side="right")) - 1
+
+
+def count_initiatives(count: int) -> str:
+    """'1 initiative', '2 initiatives': for the method notes."""
+    return f"{count} initiative" if count == 1 else f"{count} initiatives"
 
 
 def _mib(size: int) -> str:

@@ -272,7 +272,7 @@ def _try_fullest(
     _check_cells(free.size, capacity + 1)
     fullest = solve_fullest(steps.units, capacity)
     chosen = _in_input_order(base, fixed_in, bundled.items(fullest.taken))
-    rows = bundled.describe() or f"{free.size} initiatives"
+    rows = bundled.describe() or dp.count_initiatives(free.size)
     note = (
         "every value score is the same multiple of its effort, so the best plan is the "
         f"fullest: {rows} x {capacity + 1:,} capacity units of reachable-total bits "

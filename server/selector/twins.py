@@ -158,7 +158,8 @@ class Bundled:
         singles = self.steps.members - len(self.pieces)
         return (
             f"{singles + twins} initiatives as {self.steps.members} decision rows ({twins} "
-            f"twins of equal effort and value in {len(self.runs)} runs, taken 1, 2, 4, ... "
+            f"twins of equal effort and value in {len(self.runs)} "
+            f"run{'' if len(self.runs) == 1 else 's'}, taken 1, 2, 4, ... "
             "at a time)"
         )
 

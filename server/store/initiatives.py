@@ -28,6 +28,7 @@ from server.selector import Item, SelectorInputError
 from server.selector import check_marks as selector_check_marks
 from server.store import audit
 from server.store._common import and_list, first_named, get_or_404
+from server.wording import counted
 
 BACKLOG = "backlog"
 
@@ -278,7 +279,7 @@ def _check_batch(session: Session, initiatives_in: Sequence[InitiativeCreate]) -
         raise errors[0][1]
     # Every bad row, by its number in the batch (the first few, then how many more).
     named = "; ".join(f"row {number}, {error.message}" for number, error in errors[:_LISTED])
-    more = f"; and {len(errors) - _LISTED} more row(s)" if len(errors) > _LISTED else ""
+    more = f"; and {counted(len(errors) - _LISTED, 'more row')}" if len(errors) > _LISTED else ""
     raise InputError(f"{named}{more}", field=errors[0][1].field)
 
 

@@ -27,6 +27,7 @@ from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, Perio
 from server.store import audit
 from server.store._common import and_list, commit_or_conflict, flush_or_conflict, get_or_404
 from server.validation import field_and_message
+from server.wording import counted
 
 
 def period_working_days(period: Period) -> int:
@@ -162,16 +163,16 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
     uses, steps = [], []
     if initiatives:
         teams = ", ".join(f"{name} {count}" for name, count in per_team)
-        uses.append(f"{initiatives} initiative(s) ({teams})")
+        uses.append(f"{counted(initiatives, 'initiative')} ({teams})")
         steps.append("move the initiatives to another period or to the backlog")
     if availability:
-        uses.append(f"{availability} availability entry(ies)")
+        uses.append(counted(availability, "availability entry", "availability entries"))
         steps.append("delete the availability entries")
     if scenarios:
-        uses.append(f"{scenarios} scenario(s)")
+        uses.append(counted(scenarios, "scenario"))
         steps.append("delete the scenarios")
     if plans:
-        uses.append(f"{plans} saved plan(s)")
+        uses.append(counted(plans, "saved plan"))
     message = f"Period {db_period.name!r} still has {and_list(uses)}."
     if steps:
         message += f" To delete it, {and_list(steps)} first."

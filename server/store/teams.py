@@ -34,6 +34,7 @@ from server.store._common import (
 )
 from server.store.initiatives import needs_from_outside
 from server.store.periods import period_working_days
+from server.wording import counted
 
 
 def list_teams(session: Session) -> list[Team]:
@@ -131,8 +132,9 @@ def delete_team(
     owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
     if owned and not with_initiatives:
         raise ConflictError(
-            f"Team {db_team.name!r} still has {len(owned)} initiative(s); delete them first "
-            "or ask to delete them with the team.",
+            f"Team {db_team.name!r} still has {counted(len(owned), 'initiative')}; delete "
+            f"{'it' if len(owned) == 1 else 'them'} first or ask to delete "
+            f"{'it' if len(owned) == 1 else 'them'} with the team.",
             field="team_id",
         )
     held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
@@ -154,7 +156,7 @@ def delete_team(
         entity_id=team_id,
         team_id=team_id,
         summary=f"Deleted team “{db_team.name}”"
-        + (f" with its {len(owned)} initiative(s)" if owned else ""),
+        + (f" with its {counted(len(owned), 'initiative')}" if owned else ""),
         before=_team_values(db_team)
         | {
             "members": [{"name": m.name, "allocation": m.allocation} for m in members],
@@ -332,7 +334,8 @@ def _availability_values(db_row: Availability) -> dict[str, Any]:
 
 
 def _availability_words(values: dict[str, Any]) -> str:
-    return f"{values['days_off']:g} day(s) off, {_share(values['allocation'])}"
+    days_off = values["days_off"]
+    return f"{days_off:g} day{'' if days_off == 1 else 's'} off, {_share(values['allocation'])}"
 
 
 def _record_availability(

@@ -98,15 +98,13 @@ def test_availability_is_recorded_as_days_and_share_only(client: TestClient) -> 
     assert {e["team_id"] for e in (first, replaced, shared, cleared)} == {team["id"]}
     assert {e["entity_id"] for e in (first, replaced, shared, cleared)} == {row["id"]}
     where = "“Ola” (team “Harbour”) in “Sprint 1”"
-    assert (
-        first["summary"] == f"Set availability of {where}: 2 day(s) off, the member's usual share"
-    )
+    assert first["summary"] == f"Set availability of {where}: 2 days off, the member's usual share"
     assert (first["before"], first["after"]) == (None, {"days_off": 2.0, "allocation": None})
     assert replaced["before"] == {"days_off": 2.0, "allocation": None}
     assert replaced["after"] == {"days_off": 3.0, "allocation": None}
     assert shared["summary"] == (
-        f"Changed availability of {where}: 3 day(s) off, the member's usual share → "
-        "3 day(s) off, share 80 %"
+        f"Changed availability of {where}: 3 days off, the member's usual share → "
+        "3 days off, share 80 %"
     )
     assert cleared["summary"] == f"Cleared availability of {where}"
     assert (cleared["before"], cleared["after"]) == ({"days_off": 3.0, "allocation": 0.8}, None)

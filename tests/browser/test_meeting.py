@@ -92,10 +92,10 @@ def test_type_paste_and_watch_the_plan(app_page: Page, live_server: LiveServer) 
 
     page.locator("#paste-text").fill(PASTED)
     page.get_by_role("button", name="Preview").click()
-    expect(page.locator("#paste-preview")).to_contain_text("6 row(s) ready")
+    expect(page.locator("#paste-preview")).to_contain_text("6 rows ready")
     screenshot(page, "paste-preview")
     page.get_by_role("button", name="Add these 6 initiatives").click()
-    expect(page.locator("#notice")).to_have_text("Added 6 initiative(s) from the pasted rows.")
+    expect(page.locator("#notice")).to_have_text("Added 6 initiatives from the pasted rows.")
     assert _number(page, "total-value") != value_typed
     assert page.locator("#curve-desc").text_content() != curve_typed
     pinned = row_id(page, "Harbour app login")
@@ -279,7 +279,7 @@ def test_large_plan_explains_a_row_when_opened(app_page: Page, live_server: Live
     page.locator("#paste-text").fill(rows)
     page.get_by_role("button", name="Preview").click()
     page.get_by_role("button", name="Add these 65 initiatives").click()
-    expect(page.locator("#notice")).to_contain_text("Added 65 initiative(s)")
+    expect(page.locator("#notice")).to_contain_text("Added 65 initiatives")
     task = row_id(page, "Task 7")
     expect(page.locator(f"#why-{task} .explain-link")).to_have_count(1)
     page.locator(f"#why-{task} summary").click()

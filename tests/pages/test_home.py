@@ -216,7 +216,7 @@ def test_a_period_in_use_is_not_deleted_and_says_why(
     assert "Tick “Yes, delete Sprint 1”" in unticked.text
     refused = _send(form_client, url, {"confirm": "yes"})
     assert refused.status_code == 409
-    assert "still has 1 initiative(s)" in refused.text
+    assert "still has 1 initiative (Harbour 1)" in refused.text
     assert _periods(session) == ["Sprint 1"]
     empty = make_period(session, "Sprint 9", dt.date(2027, 5, 3), dt.date(2027, 5, 14))
     assert _send(form_client, f"/periods/{empty.id}/delete", {"confirm": "yes"}).status_code == 303

@@ -156,7 +156,7 @@ def test_preview_shows_errors_per_row_and_commit_refuses_bad_blocks(
     bad = root.by_id("paste-line-3")
     assert "Line 3, effort: Enter a number." in bad.text()
     assert "ready" in root.by_id("paste-line-2").text()
-    assert "1 of 3 row(s) have errors" in root.by_id("paste-preview").text()
+    assert "1 of 3 rows has errors" in root.by_id("paste-preview").text()
     assert root.find(id="paste-add") is None  # no add button while a row is wrong
     assert root.by_id("paste-text").text() == " ".join(text.split())  # kept to correct
     before = _count(session)
@@ -182,7 +182,7 @@ def test_preview_then_add_then_undo(form_client: TestClient, session: Session) -
     assert added.status_code == 200
     assert _count(session) == before + 30
     page = parse_html(added.text)
-    assert "Added 30 initiative(s)" in page.by_id("notice").text()
+    assert "Added 30 initiatives" in page.by_id("notice").text()
     assert "Pasted 29" in page.text()
     undone = post_form(
         form_client,
@@ -192,7 +192,7 @@ def test_preview_then_add_then_undo(form_client: TestClient, session: Session) -
     )
     assert undone.status_code == 200
     assert _count(session) == before  # one undo removes the whole paste
-    assert "Removed the 30 pasted initiative(s) again" in undone.text
+    assert "Removed the 30 pasted initiatives again" in undone.text
 
 
 def test_plain_form_add_redirects(form_client: TestClient, session: Session) -> None:

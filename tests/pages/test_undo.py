@@ -179,7 +179,7 @@ def test_undoing_a_paste_removes_every_row_or_none(
     delete_initiative(session, initiative_id=lamp)
     undone = post_form(form_client, url, {"period_id": str(period.id)}, **HX)
     assert undone.status_code == 200
-    assert "Removed the 2 pasted initiative(s) again" in undone.text
+    assert "Removed the 2 pasted initiatives again" in undone.text
     assert (_fresh(session, gauge), _fresh(session, boat)) == (None, None)
 
 

@@ -149,9 +149,9 @@ def test_a_paste_is_offered_in_its_period_only(form_client: TestClient, session:
     )
     assert added.status_code == 303, added.text[:300]
     assert _offered(form_client, team.id, quarter.id) is None
-    assert _offered(form_client, team.id, sprint.id) == "Pasted 2 initiative(s)"
+    assert _offered(form_client, team.id, sprint.id) == "Pasted 2 initiatives"
     undone = post_form(
         form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(sprint.id)}, **HX
     )
-    assert "Removed the 2 pasted initiative(s) again" in undone.text
+    assert "Removed the 2 pasted initiatives again" in undone.text
     assert list(session.exec(select(Initiative))) == []

@@ -323,7 +323,7 @@ def test_many_bad_rows_are_counted_after_the_first_ten(session: Session) -> None
         create_initiatives(session, initiatives_in=[bad] * 25)
     assert refused.value.message.count("period_id: no period") == 10
     assert refused.value.message.startswith("row 1, ")
-    assert refused.value.message.endswith("; and 15 more row(s)")
+    assert refused.value.message.endswith("; and 15 more rows")
 
 
 def test_rows_committed_between_the_queries_of_one_read_are_skipped(session: Session) -> None:

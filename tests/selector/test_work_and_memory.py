@@ -150,3 +150,11 @@ def test_explanations_with_checkpointed_suffix_rows_agree() -> None:
     assert tight.method == "dp"
     assert "prefix and suffix" in tight.method_note
     assert tight.explanations == roomy.explanations
+
+
+def test_the_method_note_counts_one_initiative_in_the_singular() -> None:
+    # Proportional values take the fullest-plan bitset DP; others the value DP.
+    fullest = solve(Problem(items=(Item("a", 1, 2),), capacity=2))
+    valued = solve(Problem(items=(Item("a", 1, 2), Item("b", 1.5, 2)), capacity=2))
+    assert "fullest: 1 initiative x 5 capacity units" in fullest.method_note
+    assert "2 initiatives x 5 capacity units" in valued.method_note

@@ -1,0 +1,12 @@
+"""Counts with their noun in the right number, for messages and pages."""
+
+from __future__ import annotations
+
+
+def counted(count: int, singular: str, plural: str | None = None) -> str:
+    """'1 initiative', '0 initiatives', '1,200 rows': the count, then the noun it calls for.
+
+    `plural` is needed only where adding "s" is wrong ("1 entry", "2 entries").
+    """
+    noun = singular if count == 1 else (plural or f"{singular}s")
+    return f"{count:,} {noun}"
