@@ -18,12 +18,13 @@ from server.models import SavedPlan
 from server.planning.plans import PlanOptions, plan_for
 from server.planning.scenarios import ScenarioChanges, capture
 from server.planning.snapshots import drift_of, view_of
-from server.schemas import CapacitySettingsIn, EffortIn
+from server.schemas import CapacitySettingsIn, EffortIn, TeamUpdate
 from server.store import plans as store
 from server.store.initiatives import delete_initiative
 from server.store.periods import set_capacity_settings
-from server.store.teams import delete_team
+from server.store.teams import delete_team, update_team
 from tests.factories import set_days_off
+from tests.pages.parsed_page import parse
 from tests.plans.conftest import (
     EXPECTED_CAPACITY,
     INITIATIVES,
@@ -278,3 +279,19 @@ def test_a_plan_outlives_its_team(session: Session, workspace: Workspace) -> Non
     )
     assert not drift.available
     assert "no longer exists" in drift.message
+
+
+def test_a_saved_plan_shows_estimates_as_entered_and_marks_the_teams_spread(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    update_team(session, team_id=workspace.team_id, team_in=TeamUpdate(default_spread=0.2))
+    plan = save_live(form_client, workspace)
+    page = parse(form_client.get(f"/plans/{plan['id']}").text)
+    cells = {
+        row.find("th").text(): row.find("td").text()
+        for table in page.find_all("table", cls="snap-initiatives")
+        for row in table.find("tbody").find_all("tr")
+    }
+    # "Stop alerts" was entered as 2 days: the 20 % spread is marked, not shown as 1.6 / 2 / 2.4.
+    assert cells["Stop alerts"] == "2 ±20 %"
+    assert cells["Route search"] == "2 / 3 / 5"  # three numbers entered: shown as they were
