@@ -34,6 +34,11 @@ def percent(value: float | None, digits: int = 0) -> str:
     return f"{value * 100:.{digits}f} %"
 
 
+def share_percent(value: float | None) -> str:
+    """A share typed as a percentage, shown as typed: 0.125 -> "12.5 %" (percent rounds)."""
+    return "–" if value is None else f"{number(value * 100)} %"
+
+
 # Errors not tied to one input: shown without a field label.
 _FORM_WIDE = {"form", "body"}
 
@@ -66,6 +71,7 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["days"] = days
     env.filters["number"] = number
     env.filters["percent"] = percent
+    env.filters["share_percent"] = share_percent
     env.filters["bare_message"] = bare_message
     env.filters["error_line"] = error_line
     env.filters["counted"] = counted

@@ -16,7 +16,7 @@ from starlette.datastructures import FormData
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError
 from server.planning.team_capacity import capacity_of
-from server.routes.forms import form_text, see_other
+from server.routes.forms import form_text, percent_to_share, refused_as_percentage, see_other
 from server.schemas import (
     INITIATIVE_STATES,
     AvailabilityCreate,
@@ -36,6 +36,10 @@ from server.store import teams as team_store
 from server.validation import parse_form
 
 router = APIRouter(include_in_schema=False)
+
+# Refusals of a share typed as a percentage (member share, confidence) and of the spread.
+_SHARE_RULE = "Enter a percentage above 0 and at most 100."
+_SPREAD_RULE = "Enter a percentage from 0 to below 100."
 
 
 def _optional(form: FormData, name: str) -> str | None:
@@ -231,7 +235,7 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "capacity": capacity,
         "capacity_settings": settings,
         "availability": availability,
-        "member_form": {"allocation": "1"},
+        "member_form": {"share": "100"},
         "member_errors": {},
         "availability_form": {},
         "availability_errors": {},
@@ -263,12 +267,8 @@ async def add_member(
     team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
     form = await request.form()
-    values = {
-        "team_id": team_id,
-        "name": form_text(form, "name"),
-        "allocation": form_text(form, "allocation"),
-    }
-    member_in, errors = parse_form(MemberCreate, values)
+    values = {"name": form_text(form, "name"), "share": form_text(form, "share")}
+    member_in, errors = _member_input(MemberCreate, values, team_id=team_id)
     period_id = _optional_int(form_text(form, "period_id"))
     if member_in is not None:
         db_member, errors = _store_or_errors(
@@ -290,12 +290,9 @@ async def update_team(
     form = await request.form()
     period_id = _optional_int(form_text(form, "period_id"))
     values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
-    spread = _percent_to_share(values["spread_pct"] or "0")
+    spread = percent_to_share(values["spread_pct"] or "0")
     team_in, errors = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
-    if "default_spread" in errors:  # the schema checks a share; the page asks for a percentage
-        refused = errors.pop("default_spread")
-        number = refused == "Enter a number."
-        errors["spread_pct"] = refused if number else "Enter a percentage from 0 to below 100."
+    refused_as_percentage(errors, "default_spread", "spread_pct", _SPREAD_RULE)
     if team_in is not None:
         db_team, errors = _store_or_errors(
             lambda: team_store.update_team(session, team_id=team_id, team_in=team_in)
@@ -334,6 +331,17 @@ async def delete_team(
     return _render(templates, request, "team.html", context, status_code=status_code)
 
 
+def _member_input(schema: Any, values: dict[str, str], **fixed: Any) -> tuple[Any, dict[str, str]]:
+    """A member form (share typed in percent; blank is full time) parsed into `schema`."""
+    allocation = percent_to_share(values["share"] or "100")
+    parsed, errors = parse_form(schema, fixed | {"name": values["name"], "allocation": allocation})
+    return parsed, refused_as_percentage(errors, "allocation", "share", _SHARE_RULE)
+
+
+def _percentage(share: float) -> str:
+    return f"{round(share * 100, 6):g}"
+
+
 def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:
     db_member = team_store.get_member(session, member_id=member_id)
     if db_member.team_id != team_id:
@@ -348,8 +356,8 @@ async def update_member(
     form = await request.form()
     period_id = _optional_int(form_text(form, "period_id"))
     _member_of_team(session, team_id, member_id)
-    values = {"name": form_text(form, "name"), "allocation": form_text(form, "allocation")}
-    member_in, errors = parse_form(MemberUpdate, values)
+    values = {"name": form_text(form, "name"), "share": form_text(form, "share")}
+    member_in, errors = _member_input(MemberUpdate, values)
     if member_in is not None:
         db_member, errors = _store_or_errors(
             lambda: team_store.update_member(session, member_id=member_id, member_in=member_in)
@@ -373,7 +381,7 @@ async def remove_member(
         context = _team_context(session, team_id, period_id) | {
             "member_edit": {
                 "id": member_id,
-                "form": {"name": db_member.name, "allocation": f"{db_member.allocation:g}"},
+                "form": {"name": db_member.name, "share": _percentage(db_member.allocation)},
                 "errors": {"form": f"Tick “Yes, remove {db_member.name}” to remove them."},
             },
         }
@@ -392,9 +400,12 @@ async def set_availability(
         "member_id": form_text(form, "member_id"),
         "period_id": period_id,
         "days_off": form_text(form, "days_off") or "0",
-        "allocation": _optional(form, "allocation"),
+        "share": form_text(form, "share"),
     }
-    availability_in, errors = parse_form(AvailabilityCreate, values)
+    shared = {k: v for k, v in values.items() if k != "share"}
+    allocation = percent_to_share(values["share"] or None)
+    availability_in, errors = parse_form(AvailabilityCreate, shared | {"allocation": allocation})
+    refused_as_percentage(errors, "allocation", "share", _SHARE_RULE)
     if availability_in is None and "days_off" not in errors and period_id is not None:
         # Another field was refused: still say whether the days off fit, not one error a time.
         try:
@@ -523,29 +534,17 @@ def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
         "notes": form_text(form, "notes", strip=False),
         "effort": effort,
         "value": form_text(form, "value"),
-        "confidence": _percent_to_share(confidence),
+        "confidence": percent_to_share(confidence),
         "state": form_text(form, "state") or "candidate",
         "either_or": _optional(form, "either_or"),
         "needs": [v for v in form.getlist("needs") if isinstance(v, str) and v],
     }
 
 
-def _percent_to_share(raw: str | None) -> Any:
-    """Confidence is typed as a percentage on the page and stored as a share."""
-    if raw is None:
-        return None
-    try:
-        return float(raw.rstrip("% ")) / 100
-    except ValueError:
-        return raw
-
-
 def _in_percent(parsed: tuple[Any, dict[str, str]]) -> tuple[Any, dict[str, str]]:
     """Phrase a refused confidence as the percentage the page asks for, not as a share."""
     model, errors = parsed
-    if "confidence" in errors:
-        errors["confidence"] = "Enter a percentage above 0 and at most 100."
-    return model, errors
+    return model, refused_as_percentage(errors, "confidence", "confidence", _SHARE_RULE)
 
 
 def form_echo(form: FormData) -> dict[str, Any]:

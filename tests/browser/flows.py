@@ -53,7 +53,7 @@ def add_members(page: Page, names: list[str]) -> None:
     for name in names:
         form = page.locator("form[action$='/members']")
         form.get_by_label("Name").fill(name)
-        form.get_by_label("Share of time on this team").fill("1")
+        form.get_by_label("Share of time on this team (%)").fill("100")
         form.get_by_role("button", name="Add member").click()
         expect(page.get_by_role("rowheader", name=name, exact=True)).to_be_visible()
 

@@ -74,8 +74,8 @@ def test_team_page_shows_members_availability_and_capacity(client: TestClient, t
     # reserve 15 % = 1.365 (shown 1.4); capacity 7.735 (shown 7.7).
     breakdown = _breakdown(page)
     assert breakdown["Working days in the period"] == "10"
-    assert breakdown["Ola: (10 − 2 days off) × 1"] == "8"
-    assert breakdown["Kari: (10 − 0 days off) × 0.5"] == "5"
+    assert breakdown["Ola: (10 − 2 days off) × 100 %"] == "8"
+    assert breakdown["Kari: (10 − 0 days off) × 50 %"] == "5"
     assert breakdown["Available person-days"] == "13"
     assert breakdown["× focus factor 0.7"] == "9.1"
     assert breakdown["− reserve 15 %"] == "1.4"
@@ -114,13 +114,14 @@ def test_setting_days_off_through_the_form(
 
 
 @pytest.mark.parametrize(
-    ("days_off", "allocation", "field", "message"),
+    ("days_off", "share", "field", "message"),
     [
         ("11", "", "days_off", "more than the 10 working days"),
         ("-1", "", "days_off", "at least 0"),
         ("abc", "", "days_off", "Enter a number"),
         ("nan", "", "days_off", "finite number"),
-        ("1", "1.5", "allocation", "at most 1"),
+        ("1", "150", "share", "at most 100"),
+        ("1", "0.5 of it", "share", "Enter a percentage"),
     ],
 )
 def test_bad_days_off_are_shown_again_in_the_member_row(
@@ -128,7 +129,7 @@ def test_bad_days_off_are_shown_again_in_the_member_row(
     session: Session,
     team: Team,
     days_off: str,
-    allocation: str,
+    share: str,
     field: str,
     message: str,
 ) -> None:
@@ -137,14 +138,14 @@ def test_bad_days_off_are_shown_again_in_the_member_row(
         "member_id": str(team.ola),
         "period_id": str(team.period),
         "days_off": days_off,
-        "allocation": allocation,
+        "share": share,
     }
     response = _post(form_client, url, data)
     assert response.status_code == 422  # type: ignore[attr-defined]
     page = parse(response.text)  # type: ignore[attr-defined]
     row = Form(page, url, member_id=str(team.ola))
     assert row.value("days_off") == days_off
-    assert row.value("allocation") == allocation
+    assert row.value("share") == share
     assert message in " ".join(row.errors())
     assert field.replace("_", " ") in " ".join(row.errors())
     # Kari's row is untouched and shows no message.
@@ -160,14 +161,14 @@ def test_every_bad_availability_field_is_named_once(
         "member_id": str(team.ola),
         "period_id": str(team.period),
         "days_off": "70",
-        "allocation": "1.5",
+        "share": "150",
     }
     response = _post(form_client, url, data)
     assert response.status_code == 422  # type: ignore[attr-defined]
     errors = Form(parse(response.text), url, member_id=str(team.ola)).errors()  # type: ignore[attr-defined]
     assert len(errors) == 2
     assert "days off: 70 days off is more than the 10 working days" in " ".join(errors)
-    assert "allocation: Enter a number of at most 1." in errors
+    assert "share: Enter a percentage above 0 and at most 100." in errors
     assert not any("days_off" in e for e in errors)  # the label once, in words
     assert _days_off(session, team.ola) == [2]
 
@@ -197,7 +198,7 @@ def test_days_off_form_without_token_is_refused(
 def test_adding_a_member_through_the_form(
     form_client: TestClient, session: Session, team: Team
 ) -> None:
-    data = {"name": "Eli", "allocation": "0.6", "period_id": str(team.period)}
+    data = {"name": "Eli", "share": "60", "period_id": str(team.period)}
     response = _post(form_client, f"/teams/{team.id}/members", data)
     assert response.status_code == 303  # type: ignore[attr-defined]
     assert response.headers["location"] == f"/teams/{team.id}?period_id={team.period}"  # type: ignore[attr-defined]
@@ -209,13 +210,13 @@ def test_adding_a_member_through_the_form(
 
 
 @pytest.mark.parametrize(
-    ("name", "allocation", "field", "message"),
+    ("name", "share", "field", "message"),
     [
         ("", "1", "name", "Enter some text"),
         ("Ola", "1", "name", "already has a member"),
-        ("Eli", "2", "allocation", "at most 1"),
-        ("Eli", "0", "allocation", "above 0"),
-        ("Eli", "full", "allocation", "Enter a number"),
+        ("Eli", "200", "share", "at most 100"),
+        ("Eli", "0", "share", "above 0"),
+        ("Eli", "full", "share", "Enter a percentage"),
     ],
 )
 def test_a_bad_member_is_shown_again(
@@ -223,15 +224,15 @@ def test_a_bad_member_is_shown_again(
     session: Session,
     team: Team,
     name: str,
-    allocation: str,
+    share: str,
     field: str,
     message: str,
 ) -> None:
-    data = {"name": name, "allocation": allocation, "period_id": str(team.period)}
+    data = {"name": name, "share": share, "period_id": str(team.period)}
     response = _post(form_client, f"/teams/{team.id}/members", data)
     assert response.status_code == 422  # type: ignore[attr-defined]
     form = Form(parse(response.text), f"/teams/{team.id}/members")  # type: ignore[attr-defined]
-    assert (form.value("name"), form.value("allocation")) == (name, allocation)
+    assert (form.value("name"), form.value("share")) == (name, share)
     assert message in form.error(field)
     session.expire_all()
     assert len(list(session.exec(select(Member)))) == 3
@@ -297,10 +298,10 @@ def test_a_member_is_renamed_and_their_share_changed(
     url = f"/teams/{team.id}/members/{team.kari}"
     page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
     form = Form(page, url)
-    assert (form.value("name"), form.value("allocation")) == ("Kari", "0.5")
+    assert (form.value("name"), form.value("share")) == ("Kari", "50")
     ids_are_unique_and_labels_point_at_fields(page)
     response = _post(
-        form_client, url, {"name": "Kari N.", "allocation": "0.8", "period_id": str(team.period)}
+        form_client, url, {"name": "Kari N.", "share": "80", "period_id": str(team.period)}
     )
     assert response.status_code == 303  # type: ignore[attr-defined]
     kari = _member(session, team.kari)
@@ -311,12 +312,12 @@ def test_a_member_is_renamed_and_their_share_changed(
 
 
 @pytest.mark.parametrize(
-    ("name", "allocation", "field", "message"),
+    ("name", "share", "field", "message"),
     [
         ("", "0.5", "name", "Enter some text"),
         ("Ola", "0.5", "name", "Ola"),  # the team already has an Ola
-        ("Kari", "1.5", "allocation", "at most 1"),
-        ("Kari", "half", "allocation", "Enter a number"),
+        ("Kari", "150", "share", "at most 100"),
+        ("Kari", "half", "share", "Enter a percentage"),
     ],
 )
 def test_a_bad_member_change_is_shown_again_and_changes_nothing(
@@ -324,15 +325,15 @@ def test_a_bad_member_change_is_shown_again_and_changes_nothing(
     session: Session,
     team: Team,
     name: str,
-    allocation: str,
+    share: str,
     field: str,
     message: str,
 ) -> None:
     url = f"/teams/{team.id}/members/{team.kari}"
-    response = _post(form_client, url, {"name": name, "allocation": allocation})
+    response = _post(form_client, url, {"name": name, "share": share})
     assert response.status_code == 422  # type: ignore[attr-defined]
     form = Form(parse(response.text), url)  # type: ignore[attr-defined]
-    assert (form.value("name"), form.value("allocation")) == (name, allocation)
+    assert (form.value("name"), form.value("share")) == (name, share)
     assert message in " ".join(form.errors())
     kari = _member(session, team.kari)
     assert kari is not None
@@ -358,7 +359,7 @@ def test_a_member_of_another_team_is_not_changed_here(
     form_client: TestClient, session: Session, team: Team
 ) -> None:
     url = f"/teams/{team.id}/members/{team.other_team_member}"
-    assert _post(form_client, url, {"name": "X", "allocation": "1"}).status_code == 404  # type: ignore[attr-defined]
+    assert _post(form_client, url, {"name": "X", "share": "100"}).status_code == 404  # type: ignore[attr-defined]
     gone = _post(form_client, url + "/delete", {"confirm": "yes"})
     assert gone.status_code == 404  # type: ignore[attr-defined]
     sol = _member(session, team.other_team_member)
@@ -375,10 +376,11 @@ def test_the_team_is_renamed_and_its_spread_set_in_percent(
     page = parse(form_client.get(f"/teams/{team.id}").text)
     assert page.find("h1").text() == "Harbour Ops"
     assert Form(page, url).value("spread_pct") == "20"
-    for bad, message in (("100", "from 0 to below 100"), ("x", "Enter a number")):
+    for bad in ("100", "x"):
         refused = _post(form_client, url, {"name": "Harbour Ops", "spread_pct": bad})
         assert refused.status_code == 422  # type: ignore[attr-defined]
-        assert message in " ".join(Form(parse(refused.text), url).errors())  # type: ignore[attr-defined]
+        errors = Form(parse(refused.text), url).errors()  # type: ignore[attr-defined]
+        assert "Enter a percentage from 0 to below 100." in " ".join(errors)
     taken = _post(form_client, url, {"name": "Lighthouse", "spread_pct": "20"})
     assert taken.status_code == 422  # type: ignore[attr-defined]
     assert Form(parse(taken.text), url).value("name") == "Lighthouse"  # type: ignore[attr-defined]
