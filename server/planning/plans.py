@@ -27,6 +27,7 @@ from server.selector import (
     Item,
     Problem,
     Selection,
+    SelectorInputError,
     chosen_at,
     default_curve_to,
     solve,
@@ -234,6 +235,16 @@ def _block_pinned_dependents(
                 changed = True
 
 
+def blocked_needs(
+    session: Session, records: list[InitiativeRecord], period: Period
+) -> tuple[dict[int, list[int]], dict[int, list[str]], list[str]]:
+    """Needs met inside the plan, the blocked initiatives (id -> titles of what blocks them)
+    and the warnings about needs, for the initiatives of one plan."""
+    passed, blocked, warnings = _need_status(session, records, period)
+    _block_pinned_dependents(records, passed, blocked)
+    return passed, blocked, warnings
+
+
 def _blocked_explanation(
     explanation: Explanation | None, needs: tuple[str, ...]
 ) -> Explanation | None:
@@ -246,6 +257,26 @@ def _blocked_explanation(
         explanation.reason[len(prefix) :].replace("allowed in,", "were it free,")
     )
     return replace(explanation, reason=reason)
+
+
+def _refuse_forcing_in_blocked(
+    records: list[InitiativeRecord], blocked: dict[int, list[str]], options: PlanOptions
+) -> None:
+    """Forcing in blocked work would plan it without what it needs: refuse, naming the need.
+
+    A pin waits for its need (a warning); a what-if that forces the work in asks for a plan
+    that cannot be carried out, and its value would count work that cannot start.
+    """
+    for record in records:
+        rid = record.row.id or 0
+        if rid in options.forced_in and rid in blocked:
+            named = ", ".join(f"“{t}”" for t in blocked[rid])
+            raise SelectorInputError(
+                f"initiative '{rid}' is blocked: it needs {named}, which cannot be chosen in "
+                "this plan, so it cannot be forced in.",
+                field="forced_in",
+                key=str(rid),
+            )
 
 
 def _problem(
@@ -304,8 +335,7 @@ def plan_for(
         capacity_of(session, team_id=team_id, period_id=period_id), options
     )
     records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
-    passed, blocked, warnings = _need_status(session, records, period)
-    _block_pinned_dependents(records, passed, blocked)
+    passed, blocked, warnings = blocked_needs(session, records, period)
     warnings.extend(
         f"“{r.row.title}” is pinned but cannot be in this plan: it needs "
         + ", ".join(f"“{t}”" for t in blocked[r.row.id or 0])
@@ -313,6 +343,7 @@ def plan_for(
         for r in records
         if r.row.state == "pinned" and (r.row.id or 0) in blocked
     )
+    _refuse_forcing_in_blocked(records, blocked, options)
     estimates = [_estimate(r, team_id, team.default_spread) for r in records]
     problem, efforts = _problem(
         records, estimates, passed, blocked, options, breakdown.capacity_days, team_id

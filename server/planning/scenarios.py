@@ -16,7 +16,7 @@ from pydantic import BaseModel, ConfigDict, Field, field_validator, model_valida
 from sqlmodel import Session
 
 from server.errors import InputError
-from server.planning.plans import LivePlan, PlanOptions
+from server.planning.plans import LivePlan, PlanOptions, blocked_needs
 from server.planning.snapshots import (
     PlanInputs,
     Snapshot,
@@ -186,12 +186,10 @@ def check_for_team(
                 field="days_off",
             )
     if changes.forced_in or changes.forced_out:
-        ids = {
-            r.row.id
-            for r in list_initiatives(
-                session, team_id=team_id, period_id=period_id, involving_team=True
-            )
-        }
+        records = list_initiatives(
+            session, team_id=team_id, period_id=period_id, involving_team=True
+        )
+        ids = {r.row.id for r in records}
         for name in ("forced_in", "forced_out"):
             unknown = [i for i in getattr(changes, name) if i not in ids]
             if unknown:
@@ -204,6 +202,15 @@ def check_for_team(
                 raise InputError(
                     f"{name}: {are.format(listed)} of this team in {period.name}.",
                     field=name,
+                )
+        _, blocked, _ = blocked_needs(session, records, period)
+        for record in records:
+            if record.row.id in changes.forced_in and record.row.id in blocked:
+                named = ", ".join(f"“{t}”" for t in blocked[record.row.id])
+                raise InputError(
+                    f"forced_in: “{record.row.title}” is blocked: it needs {named}, which "
+                    "cannot be chosen in this plan, so it cannot be forced in.",
+                    field="forced_in",
                 )
 
 
