@@ -41,7 +41,10 @@ def field_and_message(error: Mapping[str, Any]) -> tuple[str, str]:
 
 # Messages for the usual pydantic error types, phrased for the person at the form.
 _PATTERN_MESSAGES = {
-    VISIBLE_TEXT: "Use visible characters only (no line breaks, tabs or control characters).",
+    VISIBLE_TEXT: (
+        "Use visible characters only (no line breaks, tabs, control characters or "
+        "text-direction overrides)."
+    ),
     WEEKMASK: "Enter seven digits, Monday first: 1 for a working day, 0 for a day off.",
 }
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from typing import Any
 
@@ -13,6 +14,7 @@ from sqlmodel import Session
 from server.errors import ConflictError, StaleVersionError
 from server.schemas import InitiativeUpdate
 from server.store.initiatives import delete_initiatives, get_initiative, update_initiative
+from server.text_rules import VISIBLE_TEXT
 from tests.api.conftest import Snapshot, Workspace
 from tests.api.support import error_fields, error_text
 
@@ -306,3 +308,34 @@ def test_initiatives_deleted_together_may_need_each_other(
     assert after["initiative"] == after["initiative_need"] == []
     deleted = [row for row in after["audit_entry"] if "initiative.delete" in row]
     assert len(deleted) == 2
+
+
+@pytest.mark.parametrize(
+    "title",
+    [
+        "Fare\x00capping",  # NUL
+        "Fare\tcapping",  # tab
+        "Fare\ncapping",  # line break
+        "\u200b\u200b",  # only zero-width spaces: looks empty
+        "Fares \u202e gnippac",  # right-to-left override: reverses what follows on pages
+        "Fares \u2067 isolate",  # right-to-left isolate
+    ],
+)
+def test_titles_must_be_visible_text(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot], title: str
+) -> None:
+    before = snapshot()
+    response = client.post(
+        "/api/v1/initiatives",
+        json={"team_id": workspace.team, "title": title, "effort": 1, "value": 1},
+    )
+    assert response.status_code == 422
+    assert error_fields(response) == ["title"]
+    assert "visible characters only" in error_text(response)
+    assert snapshot() == before
+
+
+def test_titles_in_any_script_are_kept() -> None:
+    """Letters of any script, emoji and right-to-left text itself are ordinary text."""
+    for title in ("Ünïcødé 🚌 — 中文", "تذاكر الحافلات", "Billets de bus (אוטובוס)"):
+        assert re.fullmatch(VISIBLE_TEXT, title), title
