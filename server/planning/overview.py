@@ -11,6 +11,7 @@ from server.models import Period, Team
 from server.planning.joint import JointPlan, joint_plan_for
 from server.planning.plans import PlanOptions, plan_for
 from server.selector import SelectorInputError
+from server.store.initiatives import list_initiatives
 from server.store.periods import get_period
 from server.store.teams import list_teams
 
@@ -54,9 +55,12 @@ def _summary(session: Session, team: Team, period_id: int, resolution: float) ->
         plan = plan_for(session, team_id=team.id or 0, period_id=period_id, options=options)
     except SelectorInputError as exc:
         no_capacity = exc.field == "capacity"
+        records = list_initiatives(
+            session, team_id=team.id or 0, period_id=period_id, involving_team=True
+        )
         return TeamSummary(
             team=team,
-            initiatives=0,
+            initiatives=len(records),
             feasible=None,
             value=None,
             effort=None,

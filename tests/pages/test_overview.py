@@ -183,9 +183,14 @@ def test_no_shared_work_means_no_joint_solve(form_client: TestClient, session: S
 
 def test_team_without_capacity_is_named(form_client: TestClient, session: Session) -> None:
     period = make_period(session)
-    make_team(session, "Harbour")
-    text = parse_html(form_client.get(f"/periods/{period.id}/overview").text).text()
-    assert "No capacity in this period yet" in text
+    harbour = make_team(session, "Harbour")
+    make_initiative(session, harbour, period, "Quay lights")
+    make_initiative(session, harbour, period, "Tide board")
+    root = parse_html(form_client.get(f"/periods/{period.id}/overview").text)
+    assert "No capacity in this period yet" in root.text()
+    # Its initiatives are still counted: the team has work waiting for capacity.
+    row = next(tr for tr in root.find_all("tr") if "Harbour" in tr.text())
+    assert [td.text() for td in row.find_all("td")][0] == "2"
 
 
 def test_demo_overview_solves_the_shared_initiative(
