@@ -25,6 +25,7 @@ from server.planning.scenarios import (
 )
 from server.planning.snapshots import inputs_of, solve_live
 from tests.factories import make_member, make_team
+from tests.pages.parsed_page import ids_are_unique_and_labels_point_at_fields, parse
 from tests.plans.conftest import (
     EXPECTED_CAPACITY,
     INITIATIVES,
@@ -297,6 +298,8 @@ def test_scenario_pages_create_show_change_and_save(
     assert page.status_code == 200
     assert "Ola: days off: 6 days (live: 0 days)" in page.text
     assert "Confidence level: P80 (live: likely estimates)" in page.text
+    # The scenario's fields and the save-as-plan form share a page: each label its own field.
+    ids_are_unique_and_labels_point_at_fields(parse(page.text))
     scenario_id = int(created.headers["location"].rsplit("/", 1)[1])
 
     before = counts(session)
