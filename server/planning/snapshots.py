@@ -371,6 +371,8 @@ def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[s
     rounding = selection.rounding
     fit = plan.fit
     titles = {row.key: row.title for row in plan.rows}
+    # The rows' explanations: the selector's, with blocked work said to be blocked, not ruled out.
+    worded = {row.key: row.explanation for row in plan.rows if row.explanation is not None}
     return PlanResult(
         feasible=selection.feasible,
         chosen=list(selection.chosen),
@@ -404,7 +406,7 @@ def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[s
                 reason=titled_reason(e.reason, e.displaces, titles),
                 constraint_cost=e.constraint_cost,
             )
-            for e in selection.explanations or ()
+            for e in (worded.get(x.key, x) for x in selection.explanations or ())
         ],
         warnings=list(plan.warnings),
         fit=FitSnapshot(

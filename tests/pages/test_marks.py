@@ -373,3 +373,21 @@ def test_a_scenario_forcing_in_blocked_work_is_refused(
     assert error_fields(response) == ["forced_in"]
     assert "“Fare estimate” is blocked: it needs “Fare API”" in error_text(response)
     assert session.exec(select(func.count()).select_from(Scenario)).one() == before
+
+
+def test_a_saved_plan_says_blocked_work_is_blocked(
+    form_client: TestClient, session: Session, harbour
+) -> None:
+    team, period, needed = harbour
+    make_initiative(session, team, period, "Fare estimate", 3, 17, needs=[needed])
+    saved = post_form(
+        form_client,
+        "/plans",
+        {"team_id": str(team.id), "period_id": str(period.id), "name": "Sprint 1 as agreed"},
+    )
+    assert saved.status_code == 303
+    text = form_client.get(saved.headers["location"]).text
+    assert "Blocked: it needs “Fare API”, which cannot be chosen in this plan;" in text
+    assert "Ruled out: never in the plan" not in text
+    markdown = form_client.get(saved.headers["location"] + "/export.md").text
+    assert "Ruled out" not in markdown

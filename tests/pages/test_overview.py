@@ -190,7 +190,7 @@ def test_team_without_capacity_is_named(form_client: TestClient, session: Sessio
     assert "No capacity in this period yet" in root.text()
     # Its initiatives are still counted: the team has work waiting for capacity.
     row = next(tr for tr in root.find_all("tr") if "Harbour" in tr.text())
-    assert [td.text() for td in row.find_all("td")][0] == "2"
+    assert row.find_all("td")[0].text() == "2"
 
 
 def test_demo_overview_solves_the_shared_initiative(
