@@ -14,6 +14,7 @@ from urllib.parse import urlencode
 
 from sqlmodel import Session
 
+from server.actor import current_actor
 from server.message_titles import conflict_with_titles, with_titles
 from server.models import Period, Team
 from server.planning import curve_chart
@@ -26,7 +27,7 @@ from server.planning.curve_chart import (
     readout,
 )
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
-from server.planning.undo import last_change
+from server.planning.undo import last_change, offer_text
 from server.selector import SelectorInputError, default_curve_to
 from server.selector.risk import FitEstimate, pert_mean, pert_sd
 from server.store.initiatives import InitiativeRecord, list_initiatives
@@ -633,7 +634,7 @@ def build_plan_view(
         curve_sampled=curve_sampled,
         curve_probed=curve_probed,
         risk=risk,
-        undo_summary=last.summary if last is not None else None,
+        undo_summary=offer_text(last, current_actor.get()) if last is not None else None,
         titles=titles,
         explained=bool(explain),
     )

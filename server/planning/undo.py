@@ -202,6 +202,13 @@ def last_change(session: Session, *, team_id: int, period_id: int | None) -> Aud
     return None
 
 
+def offer_text(entry: AuditEntry, viewer: str) -> str:
+    """What the undo button would revert, and whose change it is: the plan is the team's, so
+    the last change may be a colleague's, and the person pressing undo should know."""
+    whose = "your change" if entry.actor == viewer else f"by {entry.actor}"
+    return f"{entry.summary} ({whose})"
+
+
 def undo_last_change(
     session: Session, *, team_id: int, period_id: int | None, actor: str = ""
 ) -> UndoOutcome:

@@ -709,6 +709,15 @@ def _changed(values: dict[str, Any], other: dict[str, Any]) -> dict[str, Any]:
     return {k: v for k, v in values.items() if k not in _UNTRACKED and other.get(k) != v}
 
 
+# Fields in the words the pages use, for the summaries the audit trail and undo show.
+_FIELD_WORDS = {
+    "team_id": "team",
+    "period_id": "period",
+    "other_efforts": "other teams' effort",
+    "either_or": "either-or set",
+}
+
+
 def _change_summary(title: str, before: dict[str, Any], after: dict[str, Any]) -> str:
-    fields = sorted(_changed(after, before))
-    return f"Changed {', '.join(fields) or 'nothing'} of “{title}”"
+    fields = sorted(_FIELD_WORDS.get(name, name) for name in _changed(after, before))
+    return f"Changed {and_list(fields) if fields else 'nothing'} of “{title}”"

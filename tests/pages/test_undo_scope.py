@@ -12,6 +12,8 @@ from sqlmodel import Session, col, select
 from server import demo
 from server.models import AuditEntry, Initiative, Period, Team
 from server.planning.undo import last_change
+from server.schemas import InitiativeUpdate
+from server.store.initiatives import get_initiative, update_initiative
 from tests.factories import make_initiative, make_period, make_team
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import HX, post_form
@@ -76,7 +78,8 @@ def test_a_change_in_another_period_is_not_offered(
     session.expire_all()
     assert session.get(Initiative, gauge["id"]).value == 25  # type: ignore[union-attr]
 
-    assert _offered(form_client, team.id, quarter.id) == "Changed value of “Tide gauge”"
+    offered = _offered(form_client, team.id, quarter.id)
+    assert offered == "Changed value of “Tide gauge” (your change)"
     undone = post_form(
         form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(quarter.id)}, **HX
     )
@@ -94,14 +97,15 @@ def test_a_move_is_offered_in_both_periods_and_earlier_changes_follow_the_initia
     gauge = _patch(form_client, gauge, title="Tide gauge v2")
     _patch(form_client, gauge, period_id=sprint.id)
 
-    moved = "Changed period_id of “Tide gauge v2”"
+    moved = "Changed period of “Tide gauge v2” (your change)"
     assert _offered(form_client, team.id, quarter.id) == moved
     assert _offered(form_client, team.id, sprint.id) == moved
     post_form(form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(sprint.id)})
     # Back in Q1: the rename was made there, so only Q1 offers it, though the walk back
     # passed a move to Sprint 2 on the way.
     assert _offered(form_client, team.id, sprint.id) is None
-    assert _offered(form_client, team.id, quarter.id) == "Changed title of “Tide gauge v2”"
+    offered = _offered(form_client, team.id, quarter.id)
+    assert offered == "Changed title of “Tide gauge v2” (your change)"
 
 
 def test_changes_without_a_person_are_not_offered(
@@ -132,7 +136,8 @@ def test_a_fresh_demo_offers_no_undo_and_a_person_s_change_is_offered_alone(
 
     tyres = session.exec(select(Initiative).where(Initiative.title == "Tyre wear tracking")).one()
     _patch(form_client, {"id": tyres.id, "version": tyres.version}, value=31)
-    assert _offered(form_client, team.id, quarter.id) == "Changed value of “Tyre wear tracking”"
+    offered = _offered(form_client, team.id, quarter.id)
+    assert offered == "Changed value of “Tyre wear tracking” (your change)"
     post_form(form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(quarter.id)})
     # The demo's own creation of the initiatives is never offered.
     assert _offered(form_client, team.id, quarter.id) is None
@@ -149,9 +154,25 @@ def test_a_paste_is_offered_in_its_period_only(form_client: TestClient, session:
     )
     assert added.status_code == 303, added.text[:300]
     assert _offered(form_client, team.id, quarter.id) is None
-    assert _offered(form_client, team.id, sprint.id) == "Pasted 2 initiatives"
+    assert _offered(form_client, team.id, sprint.id) == "Pasted 2 initiatives (your change)"
     undone = post_form(
         form_client, f"/teams/{team.id}/plan/undo", {"period_id": str(sprint.id)}, **HX
     )
     assert "Removed the 2 pasted initiatives again" in undone.text
     assert list(session.exec(select(Initiative))) == []
+
+
+def test_a_colleagues_change_is_offered_with_their_name(
+    form_client: TestClient, session: Session
+) -> None:
+    team = make_team(session)
+    quarter, _ = _periods(session)
+    gauge = _add(form_client, team, quarter, "Tide gauge")
+    current = get_initiative(session, initiative_id=gauge["id"])
+    update_initiative(
+        session,
+        initiative_id=gauge["id"],
+        initiative_in=InitiativeUpdate(version=current.row.version, value=40),
+        actor="Ines",
+    )
+    assert _offered(form_client, team.id, quarter.id) == "Changed value of “Tide gauge” (by Ines)"
