@@ -324,6 +324,39 @@ def _problem(
     return problem, efforts
 
 
+def _kept_out_by_rounding(
+    rows: list[PlanRow], passed: dict[int, list[int]], selection: Selection, resolution: float
+) -> list[str]:
+    """Warn where rounding, not room, kept work out: an initiative left out whose real effort
+    fits the real headroom and that the marks allow beside the chosen set.
+
+    The selector counts efforts rounded up to the resolution and capacity rounded down, so
+    such an initiative does not fit in its units although the days say it would.
+    """
+    if not selection.feasible or not selection.rounding.items_rounded_up:
+        return []
+    chosen_ids = {row.record.row.id for row in rows if row.chosen}
+    taken_sets = {row.record.row.either_or for row in rows if row.chosen}
+    fitting = [
+        row
+        for row in rows
+        if not row.chosen
+        and row.state != "ruled_out"
+        and row.forced != "out"
+        and not row.blocked_by
+        and (row.record.row.either_or is None or row.record.row.either_or not in taken_sets)
+        and all(n in chosen_ids for n in passed.get(row.record.row.id or 0, []))
+        and row.effort_days <= selection.headroom + 1e-9
+    ]
+    return [
+        f"“{row.title}” ({row.effort_days:g} days) would fit in the {selection.headroom:g} days "
+        f"of headroom, but the plan counts in whole {resolution:g}-day steps (each effort "
+        "rounded up, the capacity down), so it does not fit there. A finer step (the "
+        "LOADLINE_RESOLUTION setting) plans closer to the days entered."
+        for row in fitting
+    ]
+
+
 def plan_for(
     session: Session, *, team_id: int, period_id: int, options: PlanOptions | None = None
 ) -> LivePlan:
@@ -396,6 +429,7 @@ def plan_for(
             f"{options.resolution:g}-day resolution; capacity was rounded down by "
             f"{selection.rounding.capacity_days_lost:g} days."
         )
+    warnings.extend(_kept_out_by_rounding(rows, passed, selection, options.resolution))
     if selection.forced_by_needs:
         titles = [r.title for r in rows if r.key in selection.forced_by_needs]
         warnings.append(
