@@ -118,6 +118,10 @@ def restore_workspace(engine: Engine, data: dict[str, Any]) -> dict[str, int]:
                     "into an empty database.",
                     field="database",
                 )
+        # Rows go in as exported, past the store's checks: an export made before titles were
+        # refused twice in one team and period may hold such twins, and refusing it would
+        # leave that workspace with no way back. The store refuses only new clashes, so the
+        # twins stay editable and can be renamed apart.
         for table in _tables():
             rows = [_typed(table, row) for row in data.get("tables", {}).get(table.name, [])]
             if rows:

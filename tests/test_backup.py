@@ -21,9 +21,12 @@ from server.backup import (
 )
 from server.config import Settings
 from server.db import make_engine
-from server.errors import InputError
-from server.models import Initiative
+from server.errors import ConflictError, InputError
+from server.models import Initiative, Period, Team
+from server.schemas import InitiativeUpdate
+from server.store.initiatives import update_initiative
 from tests.conftest import make_settings
+from tests.factories import make_initiative, make_period, make_team
 
 
 def _fresh(tmp_path: Path, name: str) -> Settings:
@@ -97,6 +100,44 @@ def test_file_round_trip(settings: Settings, tmp_path: Path) -> None:
     path = write_export(engine, tmp_path / "out" / "workspace.json")
     assert read_export(path)["tables"]["team"]
     engine.dispose()
+
+
+def test_twins_of_an_older_export_are_restored_and_no_third_is_added(
+    settings: Settings, empty_database_url: Callable[[], str]
+) -> None:
+    source = make_engine(settings)
+    with Session(source) as session:
+        team, period = make_team(session), make_period(session)
+        team_id, period_id = team.id, period.id
+        make_initiative(session, team, period, "Fare capping")
+        make_initiative(session, team, period, "Stop alerts")
+    exported = export_workspace(source)
+    # Written before one title per team and period was enforced: both rows are "Fare capping".
+    for row in exported["tables"]["initiative"]:
+        row["title"] = "Fare capping"
+    target_settings = make_settings(empty_database_url())
+    migrate.upgrade(target_settings)
+    target = make_engine(target_settings)
+    assert restore_workspace(target, exported)["initiative"] == 2
+    with Session(target) as session:
+        first, second = session.exec(select(Initiative).order_by(Initiative.id)).scalars()
+        # A twin stays editable (it makes no new clash) and can be renamed apart.
+        update_initiative(
+            session, initiative_id=first.id or 0, initiative_in=InitiativeUpdate(version=1, value=9)
+        )
+        with pytest.raises(ConflictError, match="“fare capping” already exists in team Harbour"):
+            make_initiative(
+                session, session.get(Team, team_id), session.get(Period, period_id), "fare capping"
+            )
+        session.rollback()
+        renamed = update_initiative(
+            session,
+            initiative_id=second.id or 0,
+            initiative_in=InitiativeUpdate(version=1, title="Stop alerts"),
+        )
+        assert renamed.row.title == "Stop alerts"
+    source.dispose()
+    target.dispose()
 
 
 def test_online_backup_is_consistent_while_writes_go_on(tmp_path: Path) -> None:

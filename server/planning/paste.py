@@ -25,7 +25,7 @@ from sqlmodel import Session
 from server.errors import InputError
 from server.schemas import InitiativeCreate
 from server.store import audit
-from server.store.initiatives import create_initiatives, title_key
+from server.store.initiatives import TitlesInUse, create_initiatives, title_key
 from server.validation import parse_form
 from server.wording import counted
 
@@ -77,7 +77,6 @@ class PastedRow:
     state: str
     initiative_in: InitiativeCreate | None
     errors: dict[str, str] = field(default_factory=dict)  # field (FIELDS) -> message
-    notes: tuple[str, ...] = ()  # not errors: things worth a second look
 
     @property
     def ok(self) -> bool:
@@ -167,9 +166,13 @@ def _layout_problems(columns: tuple[str, ...]) -> list[str]:
 
 
 def parse_paste(
-    text: str, *, team_id: int, period_id: int | None, existing_titles: frozenset[str] = frozenset()
+    text: str, *, team_id: int, period_id: int | None, titles_in_use: TitlesInUse | None = None
 ) -> PasteResult:
-    """Check every pasted row against the same rules as the forms; store nothing."""
+    """Check every pasted row against the same rules as the forms; store nothing.
+
+    titles_in_use, the team's titles in the period, refuses rows that would repeat one (the
+    store refuses them too; here each is named on its line before anything is sent).
+    """
     lines, delimiter, delimiter_name = _split(text)
     decimal_comma = delimiter != ","
     header = False
@@ -199,7 +202,7 @@ def parse_paste(
     rows = []
     for line, cells in lines[:MAX_ROWS]:
         row = _parse_row(
-            line, cells, columns, decimal_comma, team_id, period_id, seen, existing_titles
+            line, cells, columns, decimal_comma, team_id, period_id, seen, titles_in_use
         )
         rows.append(row)
     return PasteResult(
@@ -219,7 +222,7 @@ def _parse_row(
     team_id: int,
     period_id: int | None,
     seen: dict[str, int],
-    existing_titles: frozenset[str],
+    titles_in_use: TitlesInUse | None,
 ) -> PastedRow:
     by_column = {name: (cells[k] if k < len(cells) else "") for k, name in enumerate(columns)}
     errors: dict[str, str] = {}
@@ -261,13 +264,13 @@ def _parse_row(
     for name, message in refused.items():
         errors.setdefault(_field_of(name), message)
     key = title_key(title)
-    notes: list[str] = []
+    clash = titles_in_use.clash(title) if key and titles_in_use is not None else None
     if key and key in seen:
         errors.setdefault("title", f"The same title as line {seen[key]}.")
     elif key:
         seen[key] = line
-    if key and key in existing_titles:
-        notes.append("An initiative with this title is already in this period.")
+    if clash is not None:
+        errors.setdefault("title", clash)
     return PastedRow(
         line=line,
         title=title,
@@ -276,7 +279,6 @@ def _parse_row(
         state=state_text,
         initiative_in=initiative_in if not errors else None,
         errors=errors,
-        notes=tuple(notes),
     )
 
 

@@ -33,7 +33,13 @@ def list_initiatives(
     return [record.to_public() for record in records]
 
 
-@router.post("/initiatives", response_model=InitiativePublic, status_code=status.HTTP_201_CREATED)
+@router.post(
+    "/initiatives",
+    response_model=InitiativePublic,
+    status_code=status.HTTP_201_CREATED,
+    description="Add an initiative. A title the team already has in that period (or in its "
+    "backlog), compared ignoring case and outer spaces, is refused with 409 on `title`.",
+)
 def create_initiative(initiative_in: InitiativeCreate, session: SessionDep) -> InitiativePublic:
     return store.create_initiative(session, initiative_in=initiative_in).to_public()
 
@@ -47,7 +53,8 @@ def read_initiative(initiative_id: int, session: SessionDep) -> InitiativePublic
     "/initiatives/{initiative_id}",
     response_model=InitiativePublic,
     description="Change an initiative. `version` must be the version you read; if someone "
-    "changed it since, the answer is 409 with the current values and nothing is stored.",
+    "changed it since, the answer is 409 with the current values and nothing is stored. A "
+    "rename or a move onto a title the team already has there is 409 on `title`.",
 )
 def update_initiative(
     initiative_id: int, initiative_in: InitiativeUpdate, session: SessionDep

@@ -447,10 +447,11 @@ async def quick_add(
 
 
 def _parse(session: SessionDep, team_id: int, view: PlanView, text: str) -> PasteResult:
-    existing = frozenset(initiative_store.title_key(row.title) for row in view.rows)
-    return parse_paste(
-        text, team_id=team_id, period_id=view.whatif.period_id, existing_titles=existing
-    )
+    period_id = view.whatif.period_id
+    # The team's own titles there: the plan's rows also show other teams' cross-team work,
+    # whose titles this team may use.
+    in_use = initiative_store.titles_in_use(session, team_id=team_id, period_id=period_id)
+    return parse_paste(text, team_id=team_id, period_id=period_id, titles_in_use=in_use)
 
 
 @router.post("/teams/{team_id}/plan/paste/preview")

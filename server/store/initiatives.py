@@ -38,12 +38,103 @@ def title_key(title: str) -> str:
     return title.strip().lower()
 
 
-def title_keys_in(session: Session, *, team_id: int, period_id: int) -> frozenset[str]:
-    """The `title_key` of each of the team's initiatives in the period."""
-    query = select(Initiative.title).where(
-        Initiative.team_id == team_id, Initiative.period_id == period_id
+def _titles_query(team_id: int, period_id: int | None) -> Any:
+    """The titles of the team's initiatives in the period, or in its backlog for None."""
+    in_period = (
+        col(Initiative.period_id).is_(None)
+        if period_id is None
+        else col(Initiative.period_id) == period_id
     )
-    return frozenset(title_key(title) for title in session.exec(query))
+    return select(Initiative.title).where(Initiative.team_id == team_id, in_period)
+
+
+def title_keys_in(session: Session, *, team_id: int, period_id: int | None) -> frozenset[str]:
+    """The `title_key` of each of the team's initiatives in the period (None: the backlog)."""
+    return frozenset(title_key(title) for title in session.exec(_titles_query(team_id, period_id)))
+
+
+def title_clash_message(titles: Sequence[str], *, team_name: str, period_name: str | None) -> str:
+    """Why these titles are refused: the team already has them in that period (or backlog)."""
+    where = (
+        f"team {team_name} for {period_name}" if period_name else f"the backlog of team {team_name}"
+    )
+    named = and_list(first_named([f"“{title}”" for title in titles], _LISTED))
+    if len(titles) == 1:
+        return f"{named} already exists in {where}; choose another title."
+    return f"{named} already exist in {where}; choose other titles."
+
+
+@dataclass(frozen=True)
+class TitlesInUse:
+    """One team's titles in one period (or its backlog), to refuse a new row before storing it."""
+
+    keys: frozenset[str]
+    team_name: str
+    period_name: str | None  # None: the backlog
+
+    def clash(self, title: str) -> str | None:
+        """The refusal of `title` if the team already has it there, else None."""
+        if title_key(title) not in self.keys:
+            return None
+        return title_clash_message(
+            [title.strip()], team_name=self.team_name, period_name=self.period_name
+        )
+
+
+def titles_in_use(session: Session, *, team_id: int, period_id: int | None) -> TitlesInUse:
+    team = get_or_404(session, Team, team_id, "team")
+    period = None if period_id is None else get_or_404(session, Period, period_id, "period")
+    return TitlesInUse(
+        keys=title_keys_in(session, team_id=team_id, period_id=period_id),
+        team_name=team.name,
+        period_name=period.name if period is not None else None,
+    )
+
+
+def _refuse_title_clashes(
+    session: Session,
+    wanted: Sequence[tuple[int, int | None, str]],
+    *,
+    ignore_id: int | None = None,
+) -> None:
+    """Refuse (team_id, period_id, title) rows whose title the team already has in the period.
+
+    Two rows of one title in one plan cannot be told apart in plans, explanations, exports and
+    comparisons. ignore_id is the initiative being changed: its own title is no clash. Raises
+    ConflictError on field "title", naming the clashing titles of the first place that has any.
+    """
+    by_place: dict[tuple[int, int | None], list[str]] = defaultdict(list)
+    for team_id, period_id, title in wanted:
+        by_place[(team_id, period_id)].append(title)
+    for (team_id, period_id), titles in by_place.items():
+        query = _titles_query(team_id, period_id)
+        if ignore_id is not None:
+            query = query.where(col(Initiative.id) != ignore_id)
+        taken = {title_key(title) for title in session.exec(query)}
+        clashes = [title for title in titles if title_key(title) in taken]
+        if clashes:
+            team = get_or_404(session, Team, team_id, "team")
+            period = None if period_id is None else get_or_404(session, Period, period_id, "period")
+            raise ConflictError(
+                title_clash_message(
+                    clashes, team_name=team.name, period_name=period.name if period else None
+                ),
+                field="title",
+            )
+
+
+def _refuse_repeated_titles(initiatives_in: Sequence[InitiativeCreate]) -> None:
+    """Refuse a batch that holds one title twice for the same team and period."""
+    first: dict[tuple[int, int | None, str], int] = {}
+    for number, item in enumerate(initiatives_in, start=1):
+        key = (item.team_id, item.period_id, title_key(item.title))
+        if key in first:
+            raise InputError(
+                f"title: rows {first[key]} and {number} have the same title “{item.title}”; "
+                "give each initiative its own title.",
+                field="title",
+            )
+        first[key] = number
 
 
 @dataclass
@@ -404,7 +495,8 @@ def create_initiatives(
     """Store new initiatives, in order, with one `initiative.create` audit entry each.
 
     Every row's references are checked before anything is written; a bad one raises (naming
-    every bad row when there are several). Then a fixed number of statements per 1,000 rows,
+    every bad row when there are several), and so does a title the team already has in the
+    period or one the batch holds twice there. Then a fixed number of statements per 1,000 rows,
     not per row: multi-row INSERTs of the initiatives, their effort lines and needs, and one
     executemany of the audit entries. Nothing is committed: the caller commits, so a bulk
     import stays all or nothing.
@@ -412,6 +504,10 @@ def create_initiatives(
     if not initiatives_in:
         return []
     _check_batch(session, initiatives_in)
+    _refuse_repeated_titles(initiatives_in)
+    _refuse_title_clashes(
+        session, [(item.team_id, item.period_id, item.title) for item in initiatives_in]
+    )
     positions = _next_positions(session, (item.team_id for item in initiatives_in))
     rows: list[Initiative] = []
     for item in initiatives_in:
@@ -565,6 +661,13 @@ def update_initiative(
         needs=needs or [],
         initiative_id=initiative_id,
     )
+    title = initiative_in.title if "title" in changes and initiative_in.title else db_row.title
+    # Only a new title or period can make a clash. Twins already stored (restored from an
+    # export made before titles were checked) stay editable until one of them is renamed.
+    if period_id != db_row.period_id or title_key(title) != title_key(db_row.title):
+        _refuse_title_clashes(
+            session, [(db_row.team_id, period_id, title)], ignore_id=initiative_id
+        )
     if needs is not None:
         cycle = _needs_cycle(session, initiative_id, needs)
         if cycle:

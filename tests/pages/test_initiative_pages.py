@@ -12,6 +12,7 @@ from sqlmodel import Session, select
 from server.models import Initiative, Team
 from server.schemas import EffortIn, InitiativeUpdate
 from server.store.initiatives import InitiativeRecord, get_initiative, update_initiative
+from server.store.teams import get_team
 from tests.factories import make_initiative, make_period, make_team
 from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
 
@@ -186,6 +187,25 @@ def test_a_bad_initiative_form_is_shown_again(
     ids_are_unique_and_labels_point_at_fields(page)
 
 
+def test_a_title_the_period_already_has_is_shown_again_beside_the_title(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    typed = ADD | {"title": "quay WALL ", "period_id": str(stored.period), "value": "41"}
+    response = _post(form_client, f"/teams/{stored.team}/initiatives", typed)
+    assert response.status_code == 422
+    page = parse(response.text)
+    form = Form(page, f"/teams/{stored.team}/initiatives")
+    assert form.error("title") == (
+        "“quay WALL” already exists in team Harbour for Sprint 1; choose another title."
+    )
+    for name in ("title", "effort.likely", "effort.low", "effort.high", "value", "confidence"):
+        assert form.value(name) == typed[name], name
+    assert form.value("notes") == typed["notes"]
+    assert form.value("period_id") == str(stored.period)
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+    ids_are_unique_and_labels_point_at_fields(page)
+
+
 def test_adding_without_the_token_is_refused(
     form_client: TestClient, session: Session, stored: Stored
 ) -> None:
@@ -276,6 +296,33 @@ def test_a_bad_edit_is_shown_again_and_changes_nothing(
     assert message in form.error(field)
     record = _record(session, stored.quay)
     assert (record.row.title, record.row.version, record.own_effort.likely) == ("Quay wall", 1, 3)
+
+
+def test_an_edit_onto_a_taken_title_or_period_is_shown_again(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    make_initiative(session, get_team(session, team_id=stored.team), None, "Quay wall")
+    cases = [
+        ({"title": "Crane Rail", "period_id": str(stored.period)}, "in team Harbour for Sprint 1"),
+        ({"title": "Quay wall", "period_id": "backlog"}, "in the backlog of team Harbour"),
+    ]
+    for change, where in cases:
+        typed = ADD | {"version": "1"} | change
+        response = _post(form_client, f"/initiatives/{stored.quay}", typed)
+        assert response.status_code == 422
+        form = Form(parse(response.text), f"/initiatives/{stored.quay}")
+        title = change["title"]
+        assert form.error("title") == f"“{title}” already exists {where}; choose another title."
+        assert form.value("title") == title
+        assert form.value("period_id") == change["period_id"]
+        assert form.value("effort.likely") == typed["effort.likely"]
+        assert form.value("notes") == typed["notes"]
+        record = _record(session, stored.quay)
+        assert (record.row.title, record.row.period_id, record.row.version) == (
+            "Quay wall",
+            stored.period,
+            1,
+        )
 
 
 def test_a_needs_cycle_in_the_edit_form_is_refused(

@@ -8,10 +8,14 @@ import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, func, select
 
-from server.errors import InputError
+from server.errors import ConflictError, InputError
 from server.models import AuditEntry, EffortLine, Initiative
 from server.planning import paste as paste_module
 from server.planning.paste import commit_paste, parse_paste
+from server.schemas import EffortIn, InitiativeCreate, TeamEffortIn
+from server.store.initiatives import create_initiative
+from tests.api.conftest import read_snapshot
+from tests.factories import make_initiative, make_team
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import HX, build, post_form
 
@@ -164,6 +168,61 @@ def test_preview_shows_errors_per_row_and_commit_refuses_bad_blocks(
     assert refused.status_code == 422
     assert _count(session) == before
     assert "Line 3, effort" in refused.text
+
+
+def test_titles_the_plan_already_has_are_refused_per_row(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    # Another team's initiative with effort for this team is on this plan, but owned elsewhere:
+    # its title is still free for this team.
+    other = make_team(session, "Lighthouse")
+    create_initiative(
+        session,
+        initiative_in=InitiativeCreate(
+            team_id=other.id or 0,
+            period_id=setup.period.id,
+            title="Beacon",
+            effort=EffortIn(likely=1),
+            other_efforts=[TeamEffortIn(team_id=setup.team.id or 0, likely=1)],
+            value=3,
+        ),
+    )
+    base = f"/teams/{setup.team.id}/plan/paste"
+    text = "Tide gauge\t2\t10\n dark MODE \t1\t5\nBeacon\t1\t1\nAudit log\t2\t2\n"
+    fields = {"text": text, "period_id": str(setup.period.id)}
+    preview = post_form(form_client, f"{base}/preview", fields, **HX)
+    assert preview.status_code == 422
+    root = parse_html(preview.text)
+    taken = "already exists in team Harbour for Sprint 1; choose another title."
+    assert f"Line 2, title: “dark MODE” {taken}" in root.by_id("paste-line-2").text()
+    assert f"Line 4, title: “Audit log” {taken}" in root.by_id("paste-line-4").text()
+    assert "ready" in root.by_id("paste-line-1").text()
+    assert "ready" in root.by_id("paste-line-3").text()
+    assert "2 of 4 rows have errors" in root.by_id("paste-preview").text()
+    assert root.find(id="paste-add") is None
+    before = read_snapshot(form_client.app.state.engine)  # type: ignore[attr-defined]
+    refused = post_form(form_client, base, fields, **HX)
+    assert refused.status_code == 422
+    assert "Line 2, title: “dark MODE”" in refused.text
+    assert read_snapshot(form_client.app.state.engine) == before  # type: ignore[attr-defined]
+
+
+def test_commit_refuses_rows_whose_titles_were_stored_since_the_preview(
+    session: Session,
+) -> None:
+    setup = build(session)
+    parsed = parse_paste(
+        "Tide gauge\t2\t10\nBuoy\t1\t5\n", team_id=setup.team.id or 0, period_id=setup.period.id
+    )
+    assert parsed.ok
+    make_initiative(session, setup.team, setup.period, "BUOY")  # someone else, meanwhile
+    before = _count(session)
+    with pytest.raises(ConflictError) as refused:
+        commit_paste(session, parsed)
+    assert refused.value.field == "title"
+    assert "“Buoy” already exists in team Harbour for Sprint 1" in refused.value.message
+    assert _count(session) == before
 
 
 def test_preview_then_add_then_undo(form_client: TestClient, session: Session) -> None:

@@ -679,6 +679,28 @@ def test_quick_add_refusal_keeps_what_was_typed(form_client: TestClient, session
     assert _count(session) == before
 
 
+def test_quick_add_of_a_title_the_plan_has_is_refused_beside_the_title(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    before = _count(session)
+    response = post_form(
+        form_client,
+        f"/teams/{setup.team.id}/plan/initiatives",
+        {"title": "dark MODE", "effort": "2", "value": "7", "period_id": str(setup.period.id)},
+        **HX,
+    )
+    assert response.status_code == 422
+    root = parse_html(response.text)
+    assert root.by_id("quick-title-error").text() == (
+        "“dark MODE” already exists in team Harbour for Sprint 1; choose another title."
+    )
+    assert root.by_id("quick-title").get("value") == "dark MODE"
+    assert root.by_id("quick-effort").get("value") == "2"
+    assert root.by_id("quick-value").get("value") == "7"
+    assert _count(session) == before
+
+
 def test_explain_fragment_and_page(form_client: TestClient, session: Session) -> None:
     setup = build(session)
     initiative_id = setup.ids["Dark mode"]

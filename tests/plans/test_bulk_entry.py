@@ -165,7 +165,9 @@ def test_an_import_stores_every_row_its_lines_needs_and_audit_entry(
     assert {e.actor for e in entries} == {"admin"}  # the signed-in account
 
 
-def _batch(team_id: int, other_team_id: int, period_id: int, needed: int) -> list[InitiativeCreate]:
+def _batch(
+    team_id: int, other_team_id: int, period_id: int, needed: int, backlog_title: str
+) -> list[InitiativeCreate]:
     return [
         InitiativeCreate(
             team_id=team_id,
@@ -183,7 +185,7 @@ def _batch(team_id: int, other_team_id: int, period_id: int, needed: int) -> lis
         InitiativeCreate(
             team_id=team_id,
             period_id=None,
-            title="Backlog item",
+            title=backlog_title,
             effort=EffortIn(likely=1),
             value=2,
         ),
@@ -200,17 +202,18 @@ def test_a_batch_stores_what_one_by_one_creation_stores(session: Session) -> Non
     needed = make_initiative(session, team, period, "Foundation").row.id or 0
     one_by_one = [
         create_initiative(session, initiative_in=item)
-        for item in _batch(team.id or 0, other.id or 0, period.id or 0, needed)
+        for item in _batch(team.id or 0, other.id or 0, period.id or 0, needed, "Backlog item")
     ]
     # The same rows in the next period: in one plan two pinned members of one either-or set
-    # would be refused.
+    # would be refused. The backlog row gets another title: the backlog holds a title once.
     batched = create_initiatives(
         session,
-        initiatives_in=_batch(team.id or 0, other.id or 0, later.id or 0, needed),
+        initiatives_in=_batch(team.id or 0, other.id or 0, later.id or 0, needed, "Backlog too"),
         actor="cli",
     )
     session.commit()
-    unstable = {"id", "created_at", "updated_at", "period_id"}
+    assert [r.row.title for r in batched] == ["Shared gateway", "Backlog too"]
+    unstable = {"id", "created_at", "updated_at", "period_id", "title"}
 
     def stored(initiative_id: int) -> dict[str, Any]:
         with Session(session.get_bind()) as fresh:  # read back, not the objects in memory
