@@ -18,6 +18,7 @@ from server.models import (
     Availability,
     CapacitySettings,
     Initiative,
+    Member,
     Period,
     SavedPlan,
     Scenario,
@@ -25,7 +26,13 @@ from server.models import (
 )
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
 from server.store import audit
-from server.store._common import and_list, commit_or_conflict, flush_or_conflict, get_or_404
+from server.store._common import (
+    and_list,
+    commit_or_conflict,
+    first_named,
+    flush_or_conflict,
+    get_or_404,
+)
 from server.validation import field_and_message
 from server.wording import counted
 
@@ -118,6 +125,7 @@ def update_period(
         field = field.split(".")[0]
         raise InputError(f"{field}: {message}", field=field) from exc
     _check_name_free(session, fields.name, period_id)
+    _check_days_off_fit(session, db_period, fields, period_in.model_fields_set)
     old_name = db_period.name
     before = period_values(db_period)
     _apply(db_period, fields)
@@ -137,6 +145,34 @@ def update_period(
     commit_or_conflict(session, "A period with that name already exists.", "name")
     session.refresh(db_period)
     return db_period
+
+
+def _check_days_off_fit(
+    session: Session, db_period: Period, fields: PeriodFields, changed: set[str]
+) -> None:
+    """Refuse a change that leaves someone more days off than the period has working days.
+
+    The availability form refuses such days off; a shorter period would otherwise keep them
+    and show a member with fewer than zero days (counted as zero) without a word.
+    """
+    closed = list(fields.non_working_dates)
+    limit = working_days(fields.start_date, fields.end_date, closed, fields.weekmask)
+    query = (
+        select(Member.name, Availability.days_off)
+        .join(Member, col(Member.id) == Availability.member_id)
+        .where(Availability.period_id == db_period.id, Availability.days_off > limit)
+        .order_by(func.lower(Member.name))
+    )
+    over = [f"{name} ({days_off:g})" for name, days_off in session.exec(query)]
+    if over:
+        dated = ("end_date", "start_date", "weekmask", "non_working_dates")
+        field = next((name for name in dated if name in changed), "end_date")
+        raise InputError(
+            f"{field}: after this change {db_period.name} has "
+            f"{counted(limit, 'working day')}, fewer than the days off of "
+            f"{and_list(first_named(over))}; lower those days off on the team page first.",
+            field=field,
+        )
 
 
 def _count(session: Session, model: type[SQLModel], column: Any, period_id: int) -> int:

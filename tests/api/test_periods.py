@@ -99,6 +99,22 @@ def test_moving_dates_away_from_a_non_working_date_is_422(
     assert snapshot() == before
 
 
+def test_shortening_a_period_below_someones_days_off_is_refused(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Ola has 2 days off in Sprint 1 (Mon 1 to Fri 12 March 2027, 10 working days).
+    url = f"/api/v1/periods/{workspace.period}"
+    before = snapshot()
+    response = client.patch(url, json={"end_date": "2027-03-01"})  # 1 working day
+    assert response.status_code == 422
+    assert error_fields(response) == ["end_date"]
+    assert "Sprint 1 has 1 working day, fewer than the days off of Ola (2)" in error_text(response)
+    assert snapshot() == before
+    weekends = client.patch(url, json={"weekmask": "1000000"})  # Mondays only: 2 days
+    assert weekends.status_code == 200
+    assert error_fields(client.patch(url, json={"weekmask": "0000001"})) == ["weekmask"]
+
+
 def _audit_actions(client: TestClient) -> list[str]:
     return [e["action"] for e in client.get("/api/v1/audit").json()]
 
