@@ -38,14 +38,35 @@ def title_key(title: str) -> str:
     return title.strip().lower()
 
 
+def _in_period(period_id: int | None) -> Any:
+    """Rows of the period, or of the backlog for None."""
+    if period_id is None:
+        return col(Initiative.period_id).is_(None)
+    return col(Initiative.period_id) == period_id
+
+
 def _titles_query(team_id: int, period_id: int | None) -> Any:
     """The titles of the team's initiatives in the period, or in its backlog for None."""
-    in_period = (
-        col(Initiative.period_id).is_(None)
-        if period_id is None
-        else col(Initiative.period_id) == period_id
+    return select(Initiative.title).where(Initiative.team_id == team_id, _in_period(period_id))
+
+
+def _set_spellings(
+    session: Session, team_id: int, period_id: int | None, *, excluding: int | None = None
+) -> dict[str, str]:
+    """The either-or set names the team uses in the period, by `title_key`: a set is one set
+    however its name is typed ("Search", "search "), so new members take the stored spelling.
+    `excluding`: an initiative whose own name does not count (the one being changed)."""
+    query = (
+        select(Initiative.either_or)
+        .where(Initiative.team_id == team_id, _in_period(period_id))
+        .where(col(Initiative.either_or).is_not(None))
+        .where(col(Initiative.id) != (excluding or 0))
+        .order_by(col(Initiative.id))
     )
-    return select(Initiative.title).where(Initiative.team_id == team_id, in_period)
+    spellings: dict[str, str] = {}
+    for name in session.exec(query):
+        spellings.setdefault(title_key(name or ""), name or "")
+    return spellings
 
 
 def title_keys_in(session: Session, *, team_id: int, period_id: int | None) -> frozenset[str]:
@@ -509,8 +530,15 @@ def create_initiatives(
         session, [(item.team_id, item.period_id, item.title) for item in initiatives_in]
     )
     positions = _next_positions(session, (item.team_id for item in initiatives_in))
+    spellings: dict[tuple[int, int | None], dict[str, str]] = {}
     rows: list[Initiative] = []
     for item in initiatives_in:
+        either_or = item.either_or
+        if either_or is not None:
+            place = (item.team_id, item.period_id)
+            if place not in spellings:
+                spellings[place] = _set_spellings(session, *place)
+            either_or = spellings[place].setdefault(title_key(either_or), either_or)
         positions[item.team_id] += 1  # unique in the team, so (team_id, position) finds the id
         rows.append(
             Initiative(
@@ -521,7 +549,7 @@ def create_initiatives(
                 value=item.value,
                 confidence=item.confidence,
                 state=item.state,
-                either_or=item.either_or,
+                either_or=either_or,
                 position=positions[item.team_id],
                 version=1,
             )
@@ -683,6 +711,11 @@ def update_initiative(
         for name in ("period_id", "confidence", "either_or"):  # these may be cleared with null
             if name in changes:
                 setattr(db_row, name, getattr(initiative_in, name))
+        if db_row.either_or is not None and changes & {"either_or", "period_id"}:
+            spellings = _set_spellings(
+                session, db_row.team_id, db_row.period_id, excluding=initiative_id
+            )
+            db_row.either_or = spellings.get(title_key(db_row.either_or), db_row.either_or)
         if "effort" in changes and initiative_in.effort is not None:
             _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
         if other is not None:

@@ -12,8 +12,13 @@ from fastapi.testclient import TestClient
 from sqlmodel import Session
 
 from server.errors import ConflictError, StaleVersionError
-from server.schemas import InitiativeUpdate
-from server.store.initiatives import delete_initiatives, get_initiative, update_initiative
+from server.schemas import EffortIn, InitiativeCreate, InitiativeUpdate
+from server.store.initiatives import (
+    create_initiatives,
+    delete_initiatives,
+    get_initiative,
+    update_initiative,
+)
 from server.text_rules import VISIBLE_TEXT
 from tests.api.conftest import Snapshot, Workspace
 from tests.api.support import error_fields, error_text
@@ -132,6 +137,43 @@ def test_either_or_set_is_shared_by_name(client: TestClient, workspace: Workspac
     # A blank set name means no set.
     none = _create(client, team_id=workspace.team, title="Solo", effort=1, value=1, either_or=" ")
     assert none["either_or"] is None
+
+
+def test_a_set_name_typed_another_way_joins_the_stored_set(
+    client: TestClient, workspace: Workspace
+) -> None:
+    """Either-or sets match by name ignoring case and spaces, as titles do; before, "search "
+    made a second set and both alternatives could be chosen."""
+    team = workspace.team
+    build = _create(client, team_id=team, title="Build", effort=8, value=9, either_or="Gate")
+    buy = _create(client, team_id=team, title="Buy", effort=2, value=6, either_or="gate ")
+    assert buy["either_or"] == "Gate"
+    rent = _create(client, team_id=team, title="Rent", effort=1, value=2, either_or="Other")
+    moved = client.patch(
+        f"/api/v1/initiatives/{rent['id']}", json={"either_or": "GATE", "version": rent["version"]}
+    ).json()
+    assert moved["either_or"] == "Gate"
+    # A set's only member may change its name's case: no other spelling to keep.
+    lone = _create(client, team_id=team, title="Lone", effort=1, value=1, either_or="Solo")
+    recased = client.patch(
+        f"/api/v1/initiatives/{lone['id']}", json={"either_or": "SOLO", "version": lone["version"]}
+    ).json()
+    assert recased["either_or"] == "SOLO"
+    assert build["either_or"] == "Gate"
+
+
+def test_names_typed_differently_in_one_batch_make_one_set(
+    session: Session, workspace: Workspace
+) -> None:
+    rows = [
+        InitiativeCreate(
+            team_id=workspace.team, title=title, effort=EffortIn(likely=1), value=1, either_or=name
+        )
+        for title, name in (("Kiosk", "Fares"), ("App", "FARES"), ("Web", " fares"))
+    ]
+    created = create_initiatives(session, initiatives_in=rows)
+    session.commit()
+    assert [record.row.either_or for record in created] == ["Fares", "Fares", "Fares"]
 
 
 @pytest.mark.parametrize("method", ["GET", "PATCH", "DELETE"])
