@@ -40,7 +40,7 @@ def share_percent(value: float | None) -> str:
 
 
 # Errors not tied to one input: shown without a field label.
-_FORM_WIDE = {"form", "body"}
+_FORM_WIDE = {"form", "body", "version"}
 
 
 def bare_message(message: str, field: str) -> str:

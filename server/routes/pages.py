@@ -211,6 +211,7 @@ def _flatten(errors: dict[str, str]) -> dict[str, str]:
 
 def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> dict[str, Any]:
     db_team = team_store.get_team(session, team_id=team_id)
+    members = team_store.list_members(session, team_id=team_id)
     periods = period_store.list_periods(session)
     if period_id is None and periods:
         period_id = periods[0].id
@@ -229,7 +230,7 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         }
     return {
         "team": db_team,
-        "members": team_store.list_members(session, team_id=team_id),
+        "members": members,
         "periods": periods,
         "period": period,
         "capacity": capacity,
@@ -244,6 +245,9 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "team_form": {},
         "team_errors": {},
         "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
+        "settings_based_on": period_store.settings_fingerprint(settings) if settings else "",
+        "team_based_on": team_store.team_fingerprint(db_team),
+        "member_based_on": {m.id: team_store.member_fingerprint(m) for m in members},
         "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
         "scenario_count": team_store.count_team_scenarios(session, team_id=team_id),
         "delete_error": None,
@@ -295,7 +299,9 @@ async def update_team(
     refused_as_percentage(errors, "default_spread", "spread_pct", _SPREAD_RULE)
     if team_in is not None:
         db_team, errors = _store_or_errors(
-            lambda: team_store.update_team(session, team_id=team_id, team_in=team_in)
+            lambda: team_store.update_team(
+                session, team_id=team_id, team_in=team_in, based_on=_based_on(form)
+            )
         )
         if db_team is not None:
             return see_other(_team_url(team_id, period_id))
@@ -303,7 +309,7 @@ async def update_team(
         "team_form": values,
         "team_errors": errors,
     }
-    return _render(templates, request, "team.html", context, status_code=422)
+    return _render(templates, request, "team.html", context, status_code=_refusal(errors))
 
 
 @router.post("/teams/{team_id}/delete")
@@ -360,14 +366,16 @@ async def update_member(
     member_in, errors = _member_input(MemberUpdate, values)
     if member_in is not None:
         db_member, errors = _store_or_errors(
-            lambda: team_store.update_member(session, member_id=member_id, member_in=member_in)
+            lambda: team_store.update_member(
+                session, member_id=member_id, member_in=member_in, based_on=_based_on(form)
+            )
         )
         if db_member is not None:
             return see_other(_team_url(team_id, period_id))
     context = _team_context(session, team_id, period_id) | {
         "member_edit": {"id": member_id, "form": values, "errors": errors},
     }
-    return _render(templates, request, "team.html", context, status_code=422)
+    return _render(templates, request, "team.html", context, status_code=_refusal(errors))
 
 
 @router.post("/teams/{team_id}/members/{member_id}/delete")
@@ -447,17 +455,34 @@ async def set_capacity(
     settings_in, errors = parse_form(CapacitySettingsIn, values)
     if settings_in is not None and period_id is not None:
         period_store.get_period(session, period_id=period_id)
-        period_store.set_capacity_settings(
-            session, team_id=team_id, period_id=period_id, settings_in=settings_in
+        stored, errors = _store_or_errors(
+            lambda: period_store.set_capacity_settings(
+                session,
+                team_id=team_id,
+                period_id=period_id,
+                settings_in=settings_in,
+                based_on=_based_on(form),
+            )
         )
-        return see_other(_team_url(team_id, period_id))
+        if stored is not None:
+            return see_other(_team_url(team_id, period_id))
     if period_id is None:
         errors = {"period_id": "Choose a period first."}
     context = _team_context(session, team_id, period_id) | {
         "settings_form": values,
         "settings_errors": errors,
     }
-    return _render(templates, request, "team.html", context, status_code=422)
+    return _render(templates, request, "team.html", context, status_code=_refusal(errors))
+
+
+def _refusal(errors: dict[str, str]) -> int:
+    """409 when the form was refused for a colleague's change in between, else 422."""
+    return 409 if "version" in errors else 422
+
+
+def _based_on(form: FormData) -> str | None:
+    """The fingerprint of the stored values the form was built from (None: none sent)."""
+    return form_text(form, "based_on") or None
 
 
 def _team_url(team_id: int, period_id: int | None) -> str:

@@ -432,6 +432,7 @@ def _scenario_context(
     )
     return {
         "scenario": db_scenario,
+        "based_on": store.scenario_fingerprint(db_scenario),
         "team": get_team(session, team_id=db_scenario.team_id),
         "period": get_period(session, period_id=db_scenario.period_id),
         "outcome": outcome,
@@ -474,18 +475,24 @@ async def update_scenario(
         session, form, db_scenario.team_id, db_scenario.period_id
     )
     errors |= change_errors
+    status_code = 422
     if name is not None and changes is not None and not errors:
-        store.update_scenario(
-            session,
-            scenario_id=scenario_id,
-            name=name,
-            changes=changes.to_json(),
-            actor=_actor(form_text(form, "created_by")),
-        )
-        return see_other(f"/scenarios/{scenario_id}")
+        try:
+            store.update_scenario(
+                session,
+                scenario_id=scenario_id,
+                name=name,
+                changes=changes.to_json(),
+                actor=_actor(form_text(form, "created_by")),
+                based_on=form_text(form, "based_on") or None,
+            )
+        except LoadlineError as exc:  # a colleague saved the scenario in between
+            errors, status_code = {exc.field or "form": exc.message}, exc.status_code
+        else:
+            return see_other(f"/scenarios/{scenario_id}")
     context = _scenario_context(session, scenario_id, settings)
     context |= {"form": _echo(form), "errors": errors}
-    return _render(templates, request, "plans/scenario.html", context, status_code=422)
+    return _render(templates, request, "plans/scenario.html", context, status_code=status_code)
 
 
 @router.post("/scenarios/{scenario_id}/delete")

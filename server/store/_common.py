@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from typing import TypeVar
+import hashlib
+import json
+from collections.abc import Mapping, Sequence
+from typing import Any, TypeVar
 
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, SQLModel
 
-from server.errors import ConflictError, NotFoundError
+from server.errors import ConflictError, NotFoundError, StaleVersionError
 
 RowT = TypeVar("RowT", bound=SQLModel)
 
@@ -23,6 +25,28 @@ def first_named(names: Sequence[str], limit: int = 10) -> list[str]:
     if len(names) <= limit:
         return list(names)
     return [*names[:limit], f"{len(names) - limit} more"]
+
+
+def fingerprint(values: Mapping[str, Any]) -> str:
+    """A short digest of the stored values a form was built from (sent back as `based_on`)."""
+    canonical = json.dumps(values, sort_keys=True, default=str, separators=(",", ":"))
+    return hashlib.sha256(canonical.encode()).hexdigest()[:16]
+
+
+def refuse_if_changed(based_on: str | None, current: Mapping[str, Any], what: str) -> None:
+    """Refuse an edit made on a form built from values someone has changed since.
+
+    Rows without a version column (capacity settings, members, teams, scenarios) are guarded
+    this way: the form carries the fingerprint of what it showed, and a save on top of a newer
+    change is refused instead of silently undoing it. None: the caller sent no fingerprint
+    (the JSON API), so the last write wins as before.
+    """
+    if based_on is not None and based_on != fingerprint(current):
+        raise StaleVersionError(
+            f"{what} changed while you were editing; your values were not saved. The form "
+            "shows them again beside the current ones: save again to apply yours.",
+            current=dict(current),
+        )
 
 
 def get_or_404(session: Session, model: type[RowT], row_id: int | None, label: str) -> RowT:

@@ -29,9 +29,11 @@ from server.store import audit
 from server.store._common import (
     and_list,
     commit_or_conflict,
+    fingerprint,
     first_named,
     flush_or_conflict,
     get_or_404,
+    refuse_if_changed,
 )
 from server.validation import field_and_message
 from server.wording import counted
@@ -273,6 +275,11 @@ def _settings_values(db_row: CapacitySettings) -> dict[str, Any]:
     return {"focus_factor": db_row.focus_factor, "reserve_pct": db_row.reserve_pct}
 
 
+def settings_fingerprint(db_row: CapacitySettings) -> str:
+    """What a capacity settings form sends back as `based_on`."""
+    return fingerprint(_settings_values(db_row))
+
+
 def _settings_words(values: dict[str, Any]) -> str:
     return f"focus factor {values['focus_factor']:g}, reserve {values['reserve_pct']:g} %"
 
@@ -284,13 +291,16 @@ def set_capacity_settings(
     period_id: int,
     settings_in: CapacitySettingsIn,
     actor: str = "",
+    based_on: str | None = None,
 ) -> CapacitySettings:
+    """Store the focus factor and reserve; `based_on`: see `refuse_if_changed`."""
     # Unknown ids are a 404, not a foreign-key clash reported as a conflict.
     db_team = get_or_404(session, Team, team_id, "team")
     db_period = get_period(session, period_id=period_id)
     db_row = get_capacity_settings(session, team_id=team_id, period_id=period_id)
     # Settings never stored are the defaults: the entry's "before" says so in numbers.
     before = _settings_values(db_row)
+    refuse_if_changed(based_on, before, "The focus factor and reserve were")
     db_row.focus_factor = settings_in.focus_factor
     db_row.reserve_pct = settings_in.reserve_pct
     after = _settings_values(db_row)

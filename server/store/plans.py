@@ -25,7 +25,7 @@ from server.planning.exports import ImportedPlan
 from server.planning.scenarios import ScenarioChanges
 from server.planning.snapshots import Snapshot
 from server.store import audit
-from server.store._common import get_or_404
+from server.store._common import fingerprint, get_or_404, refuse_if_changed
 from server.store.initiatives import (
     add_needs,
     check_marks,
@@ -103,6 +103,11 @@ def create_scenario(
     return db_scenario
 
 
+def scenario_fingerprint(db_scenario: Scenario) -> str:
+    """What the scenario form sends back as `based_on`."""
+    return fingerprint({"name": db_scenario.name, "changes": db_scenario.changes})
+
+
 def update_scenario(
     session: Session,
     *,
@@ -110,9 +115,12 @@ def update_scenario(
     name: str | None = None,
     changes: dict[str, Any] | None = None,
     actor: str = "",
+    based_on: str | None = None,
 ) -> Scenario:
+    """Rename a scenario or replace its changes; `based_on`: see `refuse_if_changed`."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
     before = {"name": db_scenario.name, "changes": db_scenario.changes}
+    refuse_if_changed(based_on, before, f"Scenario “{db_scenario.name}” was")
     if name is not None:
         db_scenario.name = name
     if changes is not None:

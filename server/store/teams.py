@@ -28,9 +28,11 @@ from server.store import audit
 from server.store._common import (
     and_list,
     commit_or_conflict,
+    fingerprint,
     first_named,
     flush_or_conflict,
     get_or_404,
+    refuse_if_changed,
 )
 from server.store.initiatives import needs_from_outside
 from server.store.periods import period_working_days
@@ -55,6 +57,11 @@ def _team_values(db_team: Team) -> dict[str, Any]:
     return {"name": db_team.name, "default_spread": db_team.default_spread}
 
 
+def team_fingerprint(db_team: Team) -> str:
+    """What the team settings form sends back as `based_on`."""
+    return fingerprint(_team_values(db_team))
+
+
 def create_team(session: Session, *, team_in: TeamCreate, actor: str = "") -> Team:
     _check_name_free(session, team_in.name)
     db_team = Team(name=team_in.name, default_spread=team_in.default_spread)
@@ -76,8 +83,17 @@ def create_team(session: Session, *, team_in: TeamCreate, actor: str = "") -> Te
     return db_team
 
 
-def update_team(session: Session, *, team_id: int, team_in: TeamUpdate, actor: str = "") -> Team:
+def update_team(
+    session: Session,
+    *,
+    team_id: int,
+    team_in: TeamUpdate,
+    actor: str = "",
+    based_on: str | None = None,
+) -> Team:
+    """Rename the team or set its spread; `based_on`: see `refuse_if_changed`."""
     db_team = get_team(session, team_id=team_id)
+    refuse_if_changed(based_on, _team_values(db_team), "The team's name and spread were")
     changes = team_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_name_free(session, changes["name"], team_id)
@@ -211,6 +227,11 @@ def _member_values(db_member: Member) -> dict[str, Any]:
     return {"name": db_member.name, "allocation": db_member.allocation}
 
 
+def member_fingerprint(db_member: Member) -> str:
+    """What a member's form sends back as `based_on`."""
+    return fingerprint(_member_values(db_member))
+
+
 def _share(allocation: float | None) -> str:
     return "the member's usual share" if allocation is None else f"share {allocation * 100:g} %"
 
@@ -239,9 +260,18 @@ def create_member(session: Session, *, member_in: MemberCreate, actor: str = "")
 
 
 def update_member(
-    session: Session, *, member_id: int, member_in: MemberUpdate, actor: str = ""
+    session: Session,
+    *,
+    member_id: int,
+    member_in: MemberUpdate,
+    actor: str = "",
+    based_on: str | None = None,
 ) -> Member:
+    """Rename a member or change their share; `based_on`: see `refuse_if_changed`."""
     db_member = get_member(session, member_id=member_id)
+    refuse_if_changed(
+        based_on, _member_values(db_member), f"{db_member.name}'s name and share were"
+    )
     changes = member_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_member_name_free(session, db_member.team_id, changes["name"], member_id)

@@ -450,3 +450,73 @@ def test_a_team_another_team_needs_is_kept_with_the_boxes_still_ticked(
     assert "'Quay lights' is needed by 'Beacon' (team Lighthouse)" in form.element.text()
     assert form.control("with_initiatives").attrs.get("checked") is not None
     assert _team_exists(session, team.id)
+
+
+def _settings(session: Session, team: Team) -> tuple[float, float]:
+    session.expire_all()
+    row = session.exec(select(CapacitySettings).where(CapacitySettings.team_id == team.id)).one()
+    return row.focus_factor, row.reserve_pct
+
+
+def test_capacity_settings_saved_over_a_colleagues_change_are_refused(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    """Two managers open the team page; one saves a focus factor of 0.8, then the other, on
+    the page as it was, saves a reserve of 20 %. Before, the second save set the focus factor
+    back to 0.7 without a word."""
+    url = f"/teams/{team.id}/capacity"
+    opened = Form(parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text), url)
+    first = {"period_id": str(team.period), "based_on": opened.value("based_on")}
+    assert (
+        _post(form_client, url, first | {"focus_factor": "0.8", "reserve_pct": "15"}).status_code
+        == 303
+    )  # type: ignore[attr-defined]
+    assert _settings(session, team) == (0.8, 15)
+
+    stale = _post(form_client, url, first | {"focus_factor": "0.7", "reserve_pct": "20"})
+    assert stale.status_code == 409  # type: ignore[attr-defined]
+    assert _settings(session, team) == (0.8, 15)
+    shown = Form(parse(stale.text), url)  # type: ignore[attr-defined]
+    assert (shown.value("focus_factor"), shown.value("reserve_pct")) == ("0.7", "20")
+    assert "changed while you were editing" in " ".join(shown.errors())
+    assert "version:" not in " ".join(shown.errors())
+    # Saving the re-shown form applies the values on purpose.
+    again = {"period_id": str(team.period), "based_on": shown.value("based_on")}
+    assert (
+        _post(form_client, url, again | {"focus_factor": "0.8", "reserve_pct": "20"}).status_code
+        == 303
+    )  # type: ignore[attr-defined]
+    assert _settings(session, team) == (0.8, 20)
+
+
+def test_member_and_team_edits_over_a_colleagues_change_are_refused(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    member_url = f"/teams/{team.id}/members/{team.kari}"
+    team_url = f"/teams/{team.id}/settings"
+    member_token = Form(page, member_url).value("based_on")
+    team_token = Form(page, team_url).value("based_on")
+    # A colleague gives Kari 80 % and renames the team meanwhile.
+    for url, data in (
+        (member_url, {"name": "Kari", "share": "80", "based_on": member_token}),
+        (team_url, {"name": "Harbour Ops", "spread_pct": "0", "based_on": team_token}),
+    ):
+        assert _post(form_client, url, data).status_code == 303  # type: ignore[attr-defined]
+
+    stale_member = _post(
+        form_client, member_url, {"name": "Kari N.", "share": "50", "based_on": member_token}
+    )
+    assert stale_member.status_code == 409  # type: ignore[attr-defined]
+    assert "Kari's name and share were changed" in parse(stale_member.text).text()  # type: ignore[attr-defined]
+    stale_team = _post(
+        form_client, team_url, {"name": "Harbour", "spread_pct": "10", "based_on": team_token}
+    )
+    assert stale_team.status_code == 409  # type: ignore[attr-defined]
+    assert "Harbour Ops" in parse(stale_team.text).find("h1").text()  # type: ignore[attr-defined]
+    kari = _member(session, team.kari)
+    assert kari is not None
+    assert (kari.name, kari.allocation) == ("Kari", 0.8)
+    harbour = session.get(TeamRow, team.id)
+    assert harbour is not None
+    assert (harbour.name, harbour.default_spread) == ("Harbour Ops", 0)

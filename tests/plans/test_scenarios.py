@@ -25,7 +25,7 @@ from server.planning.scenarios import (
 )
 from server.planning.snapshots import inputs_of, solve_live
 from tests.factories import make_member, make_team
-from tests.pages.parsed_page import ids_are_unique_and_labels_point_at_fields, parse
+from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
 from tests.plans.conftest import (
     EXPECTED_CAPACITY,
     INITIATIVES,
@@ -275,6 +275,12 @@ def test_changes_naming_outsiders_are_refused(
     assert counts(session) == before
 
 
+def client_scenario(client: TestClient, scenario_id: int) -> dict:
+    response = client.get(f"/api/v1/scenarios/{scenario_id}")
+    assert response.status_code == 200, response.text
+    return response.json()
+
+
 def test_scenario_pages_create_show_change_and_save(
     session: Session, workspace: Workspace, form_client: TestClient
 ) -> None:
@@ -342,3 +348,31 @@ def test_scenario_pages_create_show_change_and_save(
     plan = form_client.get(f"/api/v1{saved.headers['location']}").json()
     assert plan["value"] == live.selection.value
     assert plan["scenario_changes"] == {"confidence": 0.8, "days_off": {str(ola): 6.0}}
+
+
+def test_a_scenario_saved_over_a_colleagues_change_is_refused(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    csrf = form_client.csrf  # type: ignore[attr-defined]
+    created = form_client.post(
+        f"/teams/{workspace.team_id}/scenarios",
+        data={"csrf_token": csrf, "period_id": str(workspace.period_id), "name": "Lean"},
+        follow_redirects=False,
+    )
+    scenario_id = int(created.headers["location"].rsplit("/", 1)[1])
+    url = f"/scenarios/{scenario_id}"
+    token = Form(parse(form_client.get(url).text), url).value("based_on")
+    first = form_client.post(
+        url,
+        data={"csrf_token": csrf, "based_on": token, "name": "Lean", "capacity_days": "9"},
+        follow_redirects=False,
+    )
+    assert first.status_code == 303
+    # The other manager, on the page as it was, renames it: that would drop the 9 days.
+    stale = form_client.post(url, data={"csrf_token": csrf, "based_on": token, "name": "Leaner"})
+    assert stale.status_code == 409
+    shown = Form(parse(stale.text), url)
+    assert shown.value("name") == "Leaner"
+    assert "was changed while you were editing" in " ".join(shown.errors())
+    kept = client_scenario(form_client, scenario_id)
+    assert (kept["name"], kept["changes"]["capacity_days"]) == ("Lean", 9)
