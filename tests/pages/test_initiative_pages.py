@@ -251,7 +251,14 @@ def test_a_stale_edit_shows_both_versions(
 ) -> None:
     # Someone else saves version 2 after this person opened the form at version 1.
     form_client.patch(
-        f"/api/v1/initiatives/{stored.quay}", json={"version": 1, "title": "Quay wall (theirs)"}
+        f"/api/v1/initiatives/{stored.quay}",
+        json={
+            "version": 1,
+            "title": "Quay wall (theirs)",
+            "notes": "Wait for the tide tables",
+            "either_or": "Quay works",
+            "confidence": 0.6,
+        },
     )
     mine = ADD | {"title": "Quay wall (mine)", "version": "1", "period_id": str(stored.period)}
     response = _post(form_client, f"/initiatives/{stored.quay}", mine)
@@ -264,6 +271,10 @@ def test_a_stale_edit_shows_both_versions(
     conflict = page.find("section", cls="conflict").text()
     assert "Quay wall (theirs)" in conflict
     assert "Someone else changed this initiative" in conflict
+    # Every field the form saves is shown, or saving again would overwrite it unseen.
+    for theirs in ("Wait for the tide tables", "Quay works", "60 %"):
+        assert theirs in conflict
+    assert "version:" not in page.text()
     assert _record(session, stored.quay).row.title == "Quay wall (theirs)"
 
     again = _post(form_client, f"/initiatives/{stored.quay}", mine | {"version": "2"})
