@@ -6,11 +6,13 @@ a leading single quote, and every cell is quoted. A text cell that already start
 single quote gets one more, so the importer can always strip exactly one and read back the
 text as it was. Numbers Loadline writes itself are not text and are left as they are.
 
-A plan CSV starts with a block of `name,value` rows (plan, team, period, capacity, totals),
-then an empty row, then one row per initiative under a header. Importing it into an empty
-team creates the same initiatives, in the same order, with the same estimates, values,
-states, either-or sets and needs, and a scenario holding the plan's capacity, confidence
-level and forced initiatives: solving that scenario gives the same plan.
+A plan CSV starts with a block of `name,value` rows (plan, team, period, capacity, the team's
+spread of single-number estimates, totals), then an empty row, then one row per initiative
+under a header. Importing it into an empty team creates the same initiatives, in the same
+order, with the same estimates as entered, values, states, either-or sets and needs, and a
+scenario holding the plan's capacity, confidence level and forced initiatives: solving that
+scenario gives the same plan (at a confidence level, when the team spreads single estimates
+as the file's team did; the import warns otherwise).
 """
 
 from __future__ import annotations
@@ -110,6 +112,7 @@ def _plan_preamble(db_plan: SavedPlan, view: PlanView) -> list[tuple[str, object
         ("capacity_days", r.capacity),
         ("resolution", view.inputs.options.resolution),
         ("confidence", _number(r.confidence)),
+        ("default_spread", view.inputs.teams[0].default_spread if view.inputs.teams else ""),
         ("value", r.value),
         ("effort", r.effort),
         ("headroom", r.headroom),
@@ -119,8 +122,10 @@ def _plan_preamble(db_plan: SavedPlan, view: PlanView) -> list[tuple[str, object
 
 
 def _estimate_cells(i: Any) -> tuple[object, object, object]:
-    e = i.estimate
-    if e.low == e.high:  # certain: a single estimate
+    """The effort as entered: a single number stays single (the team's spread is a summary
+    row), so an import keeps it single instead of turning the spread into a typed range."""
+    e = i.effort
+    if e.low is None or e.high is None:
         return "", e.likely, ""
     return e.low, e.likely, e.high
 
@@ -322,6 +327,8 @@ class ImportedPlan:
     confidence: float | None
     rows: list[ImportedRow]
     warnings: list[str] = field(default_factory=list)
+    # The planning team's spread of single-number estimates (files before it: None).
+    default_spread: float | None = None
 
 
 def _fail(line: int, column: str, message: str) -> InputError:
@@ -483,10 +490,14 @@ def parse_plan_csv(text: str) -> ImportedPlan:
     cycle = _needs_cycle(rows)
     if cycle:
         raise InputError(f"csv: needs form a cycle: {' -> '.join(cycle)}.", field="csv")
+    spread = _float(0, "default_spread", summary.get("default_spread", ""), required=False)
+    if spread is not None and not 0 <= spread < 1:
+        raise InputError("csv: default_spread must be from 0 to below 1.", field="csv")
     return ImportedPlan(
         plan_name=summary.get("plan", "").strip(),
         capacity_days=capacity,
         confidence=confidence,
         rows=rows,
         warnings=warnings,
+        default_spread=spread,
     )

@@ -392,7 +392,17 @@ def import_plan(
         session.rollback()
         raise
     session.refresh(db_scenario)
-    return ImportOutcome(initiative_ids=ids, scenario=db_scenario, warnings=imported.warnings)
+    warnings = list(imported.warnings)
+    spread = imported.default_spread
+    single = any(row.initiative.effort.low is None for row in imported.rows)
+    if imported.confidence is not None and single and spread not in (None, db_team.default_spread):
+        warnings.append(
+            f"The plan was made at P{imported.confidence * 100:g} with single-number estimates "
+            f"spread ±{(spread or 0) * 100:g} %; {db_team.name} spreads them "
+            f"±{db_team.default_spread * 100:g} %, so its plan can differ. Set the spread on the "
+            "team page to plan the same."
+        )
+    return ImportOutcome(initiative_ids=ids, scenario=db_scenario, warnings=warnings)
 
 
 def count_team_initiatives_in(session: Session, *, team_id: int, period_id: int) -> int:

@@ -29,7 +29,9 @@ from server.planning.exports import (
     plan_markdown,
     restore,
 )
+from server.schemas import TeamUpdate
 from server.store import plans as store
+from server.store.teams import update_team
 from tests.api.conftest import read_snapshot
 from tests.factories import make_member, make_period, make_team
 from tests.pages.parsed_page import Form, parse
@@ -434,3 +436,42 @@ def test_csv_numbers_carry_no_float_noise() -> None:
     assert _number(3.0) == 3
     assert _number(0.9907120743034057) == 0.9907120743  # a real ratio keeps ten digits
     assert _number(None) == ""
+
+
+def test_single_estimates_stay_single_through_export_and_import(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """Harbour spreads single-number estimates ±20 %. The export used to write that spread as
+    a typed low/high, so the imported "Stop alerts" (entered as 2 days) became 1.6 / 2 / 2.4."""
+    update_team(session, team_id=workspace.team_id, team_in=TeamUpdate(default_spread=0.2))
+    original = save_live(client, workspace, "Spread plan", changes={"confidence": 0.8})
+    exported = client.get(f"/api/v1/plans/{original['id']}/export.csv").text
+    summary = dict(row[:2] for row in csv.reader(io.StringIO(exported)) if len(row) >= 2)
+    assert summary["default_spread"] == "0.2"
+
+    def imported_into(spread: float, name: str) -> dict:
+        team = make_team(session, name)
+        update_team(session, team_id=team.id or 0, team_in=TeamUpdate(default_spread=spread))
+        period = make_period(session, name=f"{name} sprint")
+        response = client.post(
+            f"/api/v1/teams/{team.id}/plan-imports",
+            json={"period_id": period.id, "csv": exported},
+        )
+        assert response.status_code == 201, response.text
+        return response.json()
+
+    same = imported_into(0.2, "Same spread")
+    stop_alerts = next(
+        i
+        for i in client.get(f"/api/v1/initiatives?team_id={same['scenario']['team_id']}").json()
+        if i["title"] == "Stop alerts"
+    )
+    assert (stop_alerts["effort"]["low"], stop_alerts["effort"]["high"]) == (None, None)
+    assert not any("spreads them" in w for w in same["warnings"])
+    replanned = client.get(same["scenario"]["url"].replace("/scenarios", "/api/v1/scenarios"))
+    assert replanned.json()["scenario_plan"]["value"] == original["result"]["value"]
+
+    other = imported_into(0.0, "No spread")
+    assert any(
+        "spread ±20 %; No spread spreads them ±0 %" in warning for warning in other["warnings"]
+    )
