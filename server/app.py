@@ -98,7 +98,14 @@ def _wants_json(request: Request) -> bool:
 def _add_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError) -> Response:
-        return JSONResponse({"detail": api_errors(exc.errors())}, status_code=422)
+        errors = api_errors(exc.errors())
+        if _wants_json(request):
+            return JSONResponse({"detail": errors}, status_code=422)
+        # A page asked with a bad address (a hand-edited link): say so on a page, not in JSON.
+        message = "; ".join(f"{e['field']}: {e['msg']}" for e in errors)
+        return request.app.state.templates.TemplateResponse(
+            request, "error.html", {"message": message}, status_code=422
+        )
 
     @app.exception_handler(LoadlineError)
     async def _domain(request: Request, exc: LoadlineError) -> Response:

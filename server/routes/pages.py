@@ -216,6 +216,8 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
     if period_id is None and periods:
         period_id = periods[0].id
     period = next((p for p in periods if p.id == period_id), None)
+    if period_id is not None and period is None:
+        period_store.get_period(session, period_id=period_id)  # 404 naming the unknown period
     capacity = None
     settings = None
     availability: dict[int, Any] = {}
@@ -501,13 +503,14 @@ def _initiatives_context(session: SessionDep, team_id: int, period: str | None) 
     periods = period_store.list_periods(session)
     if period is None:
         period = str(periods[0].id) if periods else initiative_store.BACKLOG
-    period_id: int | str = (
-        initiative_store.BACKLOG
-        if period == initiative_store.BACKLOG
-        else _optional_int(period) or 0
-    )
-    if period_id != initiative_store.BACKLOG:
-        period_store.get_period(session, period_id=int(period_id))
+    period_id: int | str = initiative_store.BACKLOG
+    if period != initiative_store.BACKLOG:
+        number = _optional_int(period)
+        if number is None:
+            raise NotFoundError(
+                f"No period {period!r}: choose one from the list, or the backlog.", field="period"
+            )
+        period_id = period_store.get_period(session, period_id=number).id or 0
     records = initiative_store.list_initiatives(session, team_id=team_id, period_id=period_id)
     return {
         "team": db_team,

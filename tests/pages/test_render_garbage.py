@@ -17,6 +17,7 @@ from sqlmodel import Session
 
 from tests.conftest import bearer
 from tests.factories import make_initiative, make_member, make_period, make_team
+from tests.pages.html_tree import parse_html
 from tests.served import as_served, unreachable_after
 
 
@@ -42,3 +43,26 @@ def test_plan_fragment_render_leaves_no_cycles(served_client: TestClient, sessio
     # A plan view of 120 rows is several thousand objects; a few hundred are the framework's
     # own per-request cycles (SQL statement caches, the middleware's send wrappers).
     assert freed < 1_000, f"{freed} objects were left in reference cycles by one render"
+
+
+def test_bad_addresses_of_pages_get_pages_not_json(
+    form_client: TestClient, session: Session
+) -> None:
+    """A hand-edited link: a page saying what is wrong (it was JSON, or a 200 for a period
+    that does not exist, or "No period with id 0")."""
+    team = make_team(session)
+    make_period(session)
+    bad_number = form_client.get("/plans?team_id=abc")
+    assert bad_number.status_code == 422
+    assert bad_number.headers["content-type"].startswith("text/html")
+    assert "team_id: Enter a number." in parse_html(bad_number.text).text()
+    unknown = form_client.get(f"/teams/{team.id}?period_id=999")
+    assert unknown.status_code == 404
+    assert "No period with id 999" in unknown.text
+    letters = form_client.get(f"/teams/{team.id}/initiatives?period=abc")
+    assert letters.status_code == 404
+    assert "No period 'abc'" in parse_html(letters.text).text()
+    # The JSON API keeps its JSON errors.
+    api = form_client.get("/api/v1/plans?team_id=abc")
+    assert api.status_code == 422
+    assert api.json()["detail"][0]["field"] == "team_id"
