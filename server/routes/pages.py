@@ -428,15 +428,13 @@ async def set_availability(
             )
             errors = too_many | errors
     if availability_in is not None:
-        member = team_store.get_member(session, member_id=availability_in.member_id)
-        if member.team_id != team_id:
-            errors = {"member_id": "That member is not on this team."}
-        else:
-            row, errors = _store_or_errors(
-                lambda: team_store.set_availability(session, availability_in=availability_in)
-            )
-            if row is not None:
-                return see_other(_team_url(team_id, period_id))
+        # Another team's member has no row on this page to show a message in: a 404 page.
+        _member_of_team(session, team_id, availability_in.member_id)
+        row, errors = _store_or_errors(
+            lambda: team_store.set_availability(session, availability_in=availability_in)
+        )
+        if row is not None:
+            return see_other(_team_url(team_id, period_id))
     context = _team_context(session, team_id, period_id) | {
         "availability_form": values,
         "availability_errors": errors,

@@ -373,6 +373,12 @@ def test_force_in_is_a_shareable_link(form_client: TestClient, session: Session)
     )
     cleared = next(a for a in forced.find_all("a") if a.text() == "Clear the what-if")
     assert "force_in" not in (cleared.get("href") or "")
+    title = next(t for t, i in setup.ids.items() if i == left_out)
+    assert f"Forced in: “{title}”." in forced.text()
+    # An id that is not in this plan (deleted, another team's) is said to be left alone.
+    stray = page(form_client, href.split("#")[0] + "&force_in=4711")
+    assert "Not in this plan, so not forced: initiative 4711" in stray.text()
+    assert "#4711" not in stray.text()
 
 
 def test_forcing_two_alternatives_in_is_explained(

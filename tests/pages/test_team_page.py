@@ -182,7 +182,8 @@ def test_availability_for_a_member_of_another_team_is_refused(
         "days_off": "1",
     }
     response = _post(form_client, f"/teams/{team.id}/availability", data)
-    assert response.status_code == 422  # type: ignore[attr-defined]
+    assert response.status_code == 404  # type: ignore[attr-defined]
+    assert "That member is not on this team." in response.text  # type: ignore[attr-defined]
     assert _days_off(session, team.other_team_member) == []
 
 
