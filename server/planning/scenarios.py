@@ -121,7 +121,8 @@ def parse_changes_form(
         try:
             data["confidence"] = validate_confidence(raw_level)
         except EstimateError as exc:
-            errors["confidence"] = exc.problem
+            # The form shows its label beside the message: a sentence of its own.
+            errors["confidence"] = f"{exc.problem[:1].upper()}{exc.problem[1:]}."
     days_off: dict[str, str] = {}
     forced_in: list[int] = []
     forced_out: list[int] = []

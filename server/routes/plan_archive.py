@@ -56,6 +56,7 @@ from server.store import plans as store
 from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
 from server.templating import bare_message
+from server.validation import field_and_message
 
 router = APIRouter(include_in_schema=False)
 
@@ -75,8 +76,8 @@ def _actor(typed: str) -> str:
 def _name(raw: str) -> tuple[str | None, dict[str, str]]:
     try:
         return _TITLE.validate_python(raw), {}
-    except ValidationError:
-        return None, {"name": "Give a name of 1 to 200 characters."}
+    except ValidationError as exc:  # the schema's own words: too long, or not visible text
+        return None, {"name": field_and_message(exc.errors()[0])[1]}
 
 
 def _render(

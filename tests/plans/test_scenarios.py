@@ -205,6 +205,8 @@ def test_parse_changes_form_reads_levels_and_keeps_blanks_live() -> None:
     )
     assert bad is None
     assert set(errors) == {"focus_factor", "confidence", "days_off.7", "forced.4"}
+    # A sentence of its own beside the field's label, not a fragment of one.
+    assert errors["confidence"] == "Must be a level from P1 to P99, e.g. P80 (got P120)."
 
 
 @pytest.mark.parametrize(
@@ -376,3 +378,19 @@ def test_a_scenario_saved_over_a_colleagues_change_is_refused(
     assert "was changed while you were editing" in " ".join(shown.errors())
     kept = client_scenario(form_client, scenario_id)
     assert (kept["name"], kept["changes"]["capacity_days"]) == ("Lean", 9)
+
+
+def test_a_scenario_name_is_refused_in_the_schemas_words(
+    workspace: Workspace, form_client: TestClient
+) -> None:
+    url = f"/teams/{workspace.team_id}/scenarios"
+    csrf = form_client.csrf  # type: ignore[attr-defined]
+    for name, message in (
+        ("a\tb", "visible characters only"),
+        ("x" * 201, "200 characters at most"),
+    ):
+        response = form_client.post(
+            url, data={"csrf_token": csrf, "period_id": str(workspace.period_id), "name": name}
+        )
+        assert response.status_code == 422
+        assert message in parse(response.text).text()
