@@ -656,6 +656,12 @@ def _capacity_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange]:
                 InputChange("member", m.name, None, m.name, None, f"Member {m.name} left the team")
             )
             continue
+        if now.name != m.name:
+            out.append(
+                InputChange(
+                    "member", now.name, "name", m.name, now.name, f"Renamed {m.name} to {now.name}"
+                )
+            )
         for name, label in _MEMBER_FIELDS:
             before, after = getattr(m, name), getattr(now, name)
             if not _close(before, after):

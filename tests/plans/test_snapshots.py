@@ -18,11 +18,11 @@ from server.models import SavedPlan
 from server.planning.plans import PlanOptions, plan_for
 from server.planning.scenarios import ScenarioChanges, capture
 from server.planning.snapshots import drift_of, view_of
-from server.schemas import CapacitySettingsIn, EffortIn, TeamUpdate
+from server.schemas import CapacitySettingsIn, EffortIn, MemberUpdate, TeamUpdate
 from server.store import plans as store
 from server.store.initiatives import delete_initiative
 from server.store.periods import set_capacity_settings
-from server.store.teams import delete_team, update_team
+from server.store.teams import delete_team, update_member, update_team
 from tests.factories import set_days_off
 from tests.pages.parsed_page import parse
 from tests.plans.conftest import (
@@ -295,3 +295,14 @@ def test_a_saved_plan_shows_estimates_as_entered_and_marks_the_teams_spread(
     # "Stop alerts" was entered as 2 days: the 20 % spread is marked, not shown as 1.6 / 2 / 2.4.
     assert cells["Stop alerts"] == "2 ±20 %"
     assert cells["Route search"] == "2 / 3 / 5"  # three numbers entered: shown as they were
+
+
+def test_drift_names_a_renamed_member(session: Session, workspace: Workspace) -> None:
+    db_plan = _save(session, workspace)
+    ola = workspace.members[0]
+    update_member(session, member_id=ola.id or 0, member_in=MemberUpdate(name="Ola N."))
+    drift = drift_of(
+        session, inputs=db_plan.inputs, result=db_plan.result, digest=db_plan.inputs_digest
+    )
+    assert drift.moved_on
+    assert [c.text for c in drift.changes] == ["Renamed Ola to Ola N."]
