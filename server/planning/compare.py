@@ -53,6 +53,8 @@ class ComparedInitiative(BaseModel):
     title: str
     # Per plan in order: "in", "out", or None when it was not a candidate of that plan.
     cells: list[str | None]
+    # (label, title) of plans that saved it under another title than the one shown.
+    saved_as: list[tuple[str, str]] = []
 
 
 class PairDifference(BaseModel):
@@ -158,6 +160,11 @@ def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
             cells=[
                 ("in" if key in chosen else "out") if key in candidates else None
                 for chosen, candidates in zip(chosen_sets, candidate_sets, strict=True)
+            ],
+            saved_as=[
+                (plan.label, view.titles[key])
+                for plan, view in zip(plans, views, strict=True)
+                if key in view.titles and view.titles[key] != titles[key]
             ],
         )
         for key in order

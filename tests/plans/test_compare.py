@@ -21,7 +21,8 @@ from server.planning.compare import (
     value_at,
 )
 from server.store import plans as store
-from tests.plans.conftest import Workspace, counts, error_fields, error_text, save_live
+from tests.pages.parsed_page import parse
+from tests.plans.conftest import Workspace, counts, edit, error_fields, error_text, save_live
 
 VARIANTS: list[dict[str, object]] = [
     {},
@@ -274,3 +275,16 @@ def test_compare_page_svg_is_accessible(workspace: Workspace, client: TestClient
     assert len(reader.polylines) == 3
     assert "The curves as numbers" in page
     assert str(saved[0]["result"]["value"]).removesuffix(".0") in reader.cells
+
+
+def test_an_initiative_renamed_between_saves_shows_each_plans_frozen_title(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    first = save_live(form_client, workspace, "Before the rename")
+    edit(session, workspace.id_of("Stop alerts"), title="Stop alerts (SMS)")
+    second = save_live(form_client, workspace, "After the rename")
+    cmp = compare([store.get_plan(session, plan_id=p["id"]) for p in (first, second)])
+    row = next(i for i in cmp.initiatives if i.title == "Stop alerts (SMS)")  # the newest title
+    assert row.saved_as == [("A", "Stop alerts")]
+    page = form_client.get(f"/compare?plans={first['id']},{second['id']}")
+    assert "Stop alerts (SMS) (saved in A as “Stop alerts”)" in parse(page.text).text()
