@@ -23,11 +23,13 @@ from server.routes import (
     audit,
     auth_pages,
     health,
+    home_pages,
+    initiative_pages,
     overview,
-    pages,
     plan_archive,
     plan_pages,
     published,
+    team_pages,
 )
 from server.security import RequestGuard
 from server.templating import configure_templates
@@ -65,7 +67,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         api_select,
         audit,
         auth_pages,
-        pages,
+        home_pages,
+        team_pages,
+        initiative_pages,
         plan_pages,
         overview,
         api_plans,

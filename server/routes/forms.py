@@ -1,10 +1,19 @@
-"""Posted HTML forms: fields read as text, and the redirect that follows a successful post."""
+"""Posted HTML forms: fields read as text, percentages, re-showing a refused form, and the
+redirect that follows a successful post. Shared by the page routes."""
 
 from __future__ import annotations
 
 from typing import Any
 
-from fastapi.responses import RedirectResponse
+from fastapi import Request
+from fastapi.responses import RedirectResponse, Response
+
+from server.deps import TemplatesDep
+from server.errors import LoadlineError
+
+# Refusals of a share typed as a percentage (member share, confidence) and of the spread.
+SHARE_RULE = "Enter a percentage above 0 and at most 100."
+SPREAD_RULE = "Enter a percentage from 0 to below 100."
 
 
 def form_text(form: Any, name: str, *, strip: bool = True) -> str:
@@ -13,6 +22,44 @@ def form_text(form: Any, name: str, *, strip: bool = True) -> str:
     if not isinstance(value, str):
         return ""
     return value.strip() if strip else value
+
+
+def optional_text(form: Any, name: str) -> str | None:
+    """The field as text, or None when it is blank."""
+    return form_text(form, name) or None
+
+
+def optional_int(value: str) -> int | None:
+    """A whole number typed as digits, else None (a blank or hand-edited field)."""
+    return int(value) if value.isdigit() else None
+
+
+def based_on(form: Any) -> str | None:
+    """The fingerprint of the stored values the form was built from (None: none sent)."""
+    return form_text(form, "based_on") or None
+
+
+def render(
+    templates: TemplatesDep,
+    request: Request,
+    name: str,
+    context: dict[str, Any],
+    status_code: int = 200,
+) -> Response:
+    return templates.TemplateResponse(request, name, context, status_code=status_code)
+
+
+def store_or_errors(action: Any) -> tuple[Any, dict[str, str]]:
+    """Run a persistence call; a refused change becomes a message beside its field."""
+    try:
+        return action(), {}
+    except LoadlineError as exc:
+        return None, {exc.field or "form": exc.message}
+
+
+def refusal_status(errors: dict[str, str]) -> int:
+    """409 when the form was refused for a colleague's change in between, else 422."""
+    return 409 if "version" in errors else 422
 
 
 def percent_to_share(raw: str | None) -> Any:

@@ -253,7 +253,7 @@ def test_page_save_form_keeps_the_name_and_says_why(
         },
     )
     assert refused.status_code == 422
-    assert "Give a name" in refused.text
+    assert "Enter some text." in refused.text
     assert counts(session) == before
     no_token = form_client.post(
         "/plans",

@@ -1,0 +1,237 @@
+"""Initiative lists per team and period, and an initiative's edit page. Thin routes, as in
+home_pages.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Request
+from fastapi.responses import Response
+from starlette.datastructures import FormData
+
+from server.deps import SessionDep, TemplatesDep
+from server.errors import LoadlineError, NotFoundError
+from server.routes.forms import (
+    SHARE_RULE,
+    form_text,
+    optional_int,
+    optional_text,
+    percent_to_share,
+    refused_as_percentage,
+    render,
+    see_other,
+    store_or_errors,
+)
+from server.schemas import (
+    INITIATIVE_STATES,
+    InitiativeCreate,
+    InitiativeUpdate,
+)
+from server.store import initiatives as initiative_store
+from server.store import periods as period_store
+from server.store import teams as team_store
+from server.validation import parse_form
+
+router = APIRouter(include_in_schema=False)
+
+
+# --- initiatives -------------------------------------------------------------------------
+
+
+def _initiatives_context(session: SessionDep, team_id: int, period: str | None) -> dict[str, Any]:
+    db_team = team_store.get_team(session, team_id=team_id)
+    periods = period_store.list_periods(session)
+    if period is None:
+        period = str(periods[0].id) if periods else initiative_store.BACKLOG
+    period_id: int | str = initiative_store.BACKLOG
+    if period != initiative_store.BACKLOG:
+        number = optional_int(period)
+        if number is None:
+            raise NotFoundError(
+                f"No period {period!r}: choose one from the list, or the backlog.", field="period"
+            )
+        period_id = period_store.get_period(session, period_id=number).id or 0
+    records = initiative_store.list_initiatives(session, team_id=team_id, period_id=period_id)
+    return {
+        "team": db_team,
+        "periods": periods,
+        "period_key": str(period_id),
+        "records": records,
+        "titles": _titles_with_needs(session, records),
+        "states": INITIATIVE_STATES,
+        "form": {"state": "candidate", "period_id": str(period_id)},
+        "errors": {},
+    }
+
+
+def _titles_with_needs(
+    session: SessionDep, records: list[initiative_store.InitiativeRecord]
+) -> dict[int | None, str]:
+    """Titles of the listed initiatives and of those they need (other periods or teams too)."""
+    titles: dict[int | None, str] = {r.row.id: r.row.title for r in records}
+    for needed_id in sorted({n for r in records for n in r.needs} - titles.keys()):
+        titles[needed_id] = initiative_store.get_initiative(
+            session, initiative_id=needed_id
+        ).row.title
+    return titles
+
+
+@router.get("/teams/{team_id}/initiatives")
+def initiatives_page(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    period: str | None = None,
+) -> Response:
+    context = _initiatives_context(session, team_id, period)
+    return render(templates, request, "initiatives.html", context)
+
+
+def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
+    """Form fields -> the API's initiative input (blank optional fields become null)."""
+    period = form_text(form, "period_id")
+    effort: dict[str, Any] = {"likely": form_text(form, "effort.likely")}
+    if form_text(form, "effort.low") or form_text(form, "effort.high"):
+        effort |= {
+            "low": optional_text(form, "effort.low"),
+            "high": optional_text(form, "effort.high"),
+        }
+    confidence = optional_text(form, "confidence")
+    return {
+        "team_id": team_id,
+        "period_id": None if period in {"", initiative_store.BACKLOG} else period,
+        "title": form_text(form, "title"),
+        "notes": form_text(form, "notes", strip=False),
+        "effort": effort,
+        "value": form_text(form, "value"),
+        "confidence": percent_to_share(confidence),
+        "state": form_text(form, "state") or "candidate",
+        "either_or": optional_text(form, "either_or"),
+        "needs": [v for v in form.getlist("needs") if isinstance(v, str) and v],
+    }
+
+
+def _in_percent(parsed: tuple[Any, dict[str, str]]) -> tuple[Any, dict[str, str]]:
+    """Phrase a refused confidence as the percentage the page asks for, not as a share."""
+    model, errors = parsed
+    return model, refused_as_percentage(errors, "confidence", "confidence", SHARE_RULE)
+
+
+def form_echo(form: FormData) -> dict[str, Any]:
+    """The values as typed, to re-show a refused form unchanged."""
+    echo: dict[str, Any] = {key: value for key, value in form.items() if isinstance(value, str)}
+    echo["needs"] = [v for v in form.getlist("needs") if isinstance(v, str)]
+    return echo
+
+
+@router.post("/teams/{team_id}/initiatives")
+async def add_initiative(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    values = initiative_values(form, team_id)
+    initiative_in, errors = _in_percent(parse_form(InitiativeCreate, values))
+    if initiative_in is not None:
+        record, errors = store_or_errors(
+            lambda: initiative_store.create_initiative(session, initiative_in=initiative_in)
+        )
+        if record is not None:
+            period = form_text(form, "period_id") or initiative_store.BACKLOG
+            return see_other(f"/teams/{team_id}/initiatives?period={period}")
+    context = _initiatives_context(session, team_id, form_text(form, "period_id") or None)
+    context |= {"form": form_echo(form), "errors": errors}
+    return render(templates, request, "initiatives.html", context, status_code=422)
+
+
+def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
+    record = initiative_store.get_initiative(session, initiative_id=initiative_id)
+    row = record.row
+    effort = record.own_effort
+    others = initiative_store.list_initiatives(session, team_id=row.team_id)
+    # Needs on other teams' work are offered too, or saving the form would drop them.
+    listed = {r.row.id for r in others}
+    others += [
+        initiative_store.get_initiative(session, initiative_id=needed_id)
+        for needed_id in record.needs
+        if needed_id not in listed
+    ]
+    return {
+        "record": record,
+        "team": team_store.get_team(session, team_id=row.team_id),
+        "periods": period_store.list_periods(session),
+        "states": INITIATIVE_STATES,
+        "candidates": [r for r in others if r.row.id != row.id],
+        "form": {
+            "title": row.title,
+            "notes": row.notes,
+            "effort.likely": _plain(effort.likely),
+            "effort.low": _plain(effort.low),
+            "effort.high": _plain(effort.high),
+            "value": _plain(row.value),
+            "confidence": _plain(row.confidence * 100 if row.confidence is not None else None),
+            "state": row.state,
+            "either_or": row.either_or or "",
+            "period_id": str(row.period_id) if row.period_id else initiative_store.BACKLOG,
+            "needs": [str(n) for n in record.needs],
+            "version": str(row.version),
+        },
+        "errors": {},
+        "current": None,
+    }
+
+
+def _plain(value: float | None) -> str:
+    return "" if value is None else f"{value:g}"
+
+
+@router.get("/initiatives/{initiative_id}/edit")
+def edit_initiative_page(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    return render(templates, request, "initiative_edit.html", _edit_context(session, initiative_id))
+
+
+@router.post("/initiatives/{initiative_id}")
+async def edit_initiative(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    context = _edit_context(session, initiative_id)
+    team_id = context["record"].row.team_id
+    values = initiative_values(form, team_id)
+    values.pop("team_id")
+    values["version"] = form_text(form, "version")
+    update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
+    if update_in is not None:
+        try:
+            initiative_store.update_initiative(
+                session, initiative_id=initiative_id, initiative_in=update_in
+            )
+        except LoadlineError as exc:
+            errors = {exc.field or "form": exc.message}
+            current = getattr(exc, "current", None)
+            context = _edit_context(session, initiative_id) | {"current": current}
+        else:
+            period = form_text(form, "period_id") or initiative_store.BACKLOG
+            return see_other(f"/teams/{team_id}/initiatives?period={period}")
+    context |= {"form": form_echo(form), "errors": errors}
+    status = 409 if context.get("current") else 422
+    return render(templates, request, "initiative_edit.html", context, status_code=status)
+
+
+@router.post("/initiatives/{initiative_id}/delete")
+async def delete_initiative(
+    initiative_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    record = initiative_store.get_initiative(session, initiative_id=initiative_id)
+    period = str(record.row.period_id) if record.row.period_id else initiative_store.BACKLOG
+    try:
+        initiative_store.delete_initiative(session, initiative_id=initiative_id)
+    except LoadlineError as exc:  # e.g. still needed: the edit page again, with the reason
+        context = _edit_context(session, initiative_id) | {"delete_error": exc.message}
+        return render(
+            templates, request, "initiative_edit.html", context, status_code=exc.status_code
+        )
+    return see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")

@@ -1,0 +1,312 @@
+"""The team page: members, their availability per period, capacity settings, the team's name
+and spread, and deleting the team. Thin routes, as in home_pages.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Request
+from fastapi.responses import Response
+
+from server.deps import SessionDep, TemplatesDep
+from server.errors import LoadlineError, NotFoundError
+from server.planning.team_capacity import capacity_of
+from server.routes.forms import (
+    SHARE_RULE,
+    SPREAD_RULE,
+    based_on,
+    form_text,
+    optional_int,
+    percent_to_share,
+    refusal_status,
+    refused_as_percentage,
+    render,
+    see_other,
+    store_or_errors,
+)
+from server.schemas import (
+    AvailabilityCreate,
+    CapacitySettingsIn,
+    MemberCreate,
+    MemberUpdate,
+    TeamUpdate,
+)
+from server.store import periods as period_store
+from server.store import teams as team_store
+from server.validation import parse_form
+
+router = APIRouter(include_in_schema=False)
+
+
+# --- team page ---------------------------------------------------------------------------
+
+
+def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> dict[str, Any]:
+    db_team = team_store.get_team(session, team_id=team_id)
+    members = team_store.list_members(session, team_id=team_id)
+    periods = period_store.list_periods(session)
+    if period_id is None and periods:
+        period_id = periods[0].id
+    period = next((p for p in periods if p.id == period_id), None)
+    if period_id is not None and period is None:
+        period_store.get_period(session, period_id=period_id)  # 404 naming the unknown period
+    capacity = None
+    settings = None
+    availability: dict[int, Any] = {}
+    if period is not None:
+        capacity = capacity_of(session, team_id=team_id, period_id=period.id or 0)
+        settings = period_store.get_capacity_settings(
+            session, team_id=team_id, period_id=period.id or 0
+        )
+        availability = {
+            row.member_id: row
+            for row in team_store.list_availability(session, team_id=team_id, period_id=period.id)
+        }
+    return {
+        "team": db_team,
+        "members": members,
+        "periods": periods,
+        "period": period,
+        "capacity": capacity,
+        "capacity_settings": settings,
+        "availability": availability,
+        "member_form": {"share": "100"},
+        "member_errors": {},
+        "availability_form": {},
+        "availability_errors": {},
+        "settings_form": {},
+        "settings_errors": {},
+        "team_form": {},
+        "team_errors": {},
+        "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
+        "settings_based_on": period_store.settings_fingerprint(settings) if settings else "",
+        "team_based_on": team_store.team_fingerprint(db_team),
+        "member_based_on": {m.id: team_store.member_fingerprint(m) for m in members},
+        "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
+        "scenario_count": team_store.count_team_scenarios(session, team_id=team_id),
+        "delete_error": None,
+        "delete_form": {},
+    }
+
+
+@router.get("/teams/{team_id}")
+def team_page(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    period_id: int | None = None,
+) -> Response:
+    return render(templates, request, "team.html", _team_context(session, team_id, period_id))
+
+
+@router.post("/teams/{team_id}/members")
+async def add_member(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    values = {"name": form_text(form, "name"), "share": form_text(form, "share")}
+    member_in, errors = _member_input(MemberCreate, values, team_id=team_id)
+    period_id = optional_int(form_text(form, "period_id"))
+    if member_in is not None:
+        db_member, errors = store_or_errors(
+            lambda: team_store.create_member(session, member_in=member_in)
+        )
+        if db_member is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "member_form": values,
+        "member_errors": errors,
+    }
+    return render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/settings")
+async def update_team(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
+    spread = percent_to_share(values["spread_pct"] or "0")
+    team_in, errors = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
+    refused_as_percentage(errors, "default_spread", "spread_pct", SPREAD_RULE)
+    if team_in is not None:
+        db_team, errors = store_or_errors(
+            lambda: team_store.update_team(
+                session, team_id=team_id, team_in=team_in, based_on=based_on(form)
+            )
+        )
+        if db_team is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "team_form": values,
+        "team_errors": errors,
+    }
+    return render(templates, request, "team.html", context, status_code=refusal_status(errors))
+
+
+@router.post("/teams/{team_id}/delete")
+async def delete_team(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    db_team = team_store.get_team(session, team_id=team_id)
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    with_initiatives = form_text(form, "with_initiatives") == "yes"
+    status_code = 422
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        message = f"Tick “Yes, delete team {db_team.name}” to delete it."
+    else:
+        try:
+            team_store.delete_team(session, team_id=team_id, with_initiatives=with_initiatives)
+        except LoadlineError as exc:  # still owns initiatives, or others depend on it
+            message, status_code = exc.message, exc.status_code
+        else:
+            return see_other("/")
+    context = _team_context(session, team_id, period_id) | {
+        "delete_error": message,
+        "delete_form": {"with_initiatives": with_initiatives},
+    }
+    return render(templates, request, "team.html", context, status_code=status_code)
+
+
+def _member_input(schema: Any, values: dict[str, str], **fixed: Any) -> tuple[Any, dict[str, str]]:
+    """A member form (share typed in percent; blank is full time) parsed into `schema`."""
+    allocation = percent_to_share(values["share"] or "100")
+    parsed, errors = parse_form(schema, fixed | {"name": values["name"], "allocation": allocation})
+    return parsed, refused_as_percentage(errors, "allocation", "share", SHARE_RULE)
+
+
+def _percentage(share: float) -> str:
+    return f"{round(share * 100, 6):g}"
+
+
+def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:
+    db_member = team_store.get_member(session, member_id=member_id)
+    if db_member.team_id != team_id:
+        raise NotFoundError("That member is not on this team.", field="member_id")
+    return db_member
+
+
+@router.post("/teams/{team_id}/members/{member_id}")
+async def update_member(
+    team_id: int, member_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    _member_of_team(session, team_id, member_id)
+    values = {"name": form_text(form, "name"), "share": form_text(form, "share")}
+    member_in, errors = _member_input(MemberUpdate, values)
+    if member_in is not None:
+        db_member, errors = store_or_errors(
+            lambda: team_store.update_member(
+                session, member_id=member_id, member_in=member_in, based_on=based_on(form)
+            )
+        )
+        if db_member is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "member_edit": {"id": member_id, "form": values, "errors": errors},
+    }
+    return render(templates, request, "team.html", context, status_code=refusal_status(errors))
+
+
+@router.post("/teams/{team_id}/members/{member_id}/delete")
+async def remove_member(
+    team_id: int, member_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    db_member = _member_of_team(session, team_id, member_id)
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        context = _team_context(session, team_id, period_id) | {
+            "member_edit": {
+                "id": member_id,
+                "form": {"name": db_member.name, "share": _percentage(db_member.allocation)},
+                "errors": {"form": f"Tick “Yes, remove {db_member.name}” to remove them."},
+            },
+        }
+        return render(templates, request, "team.html", context, status_code=422)
+    team_store.delete_member(session, member_id=member_id)
+    return see_other(_team_url(team_id, period_id))
+
+
+@router.post("/teams/{team_id}/availability")
+async def set_availability(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    values = {
+        "member_id": form_text(form, "member_id"),
+        "period_id": period_id,
+        "days_off": form_text(form, "days_off") or "0",
+        "share": form_text(form, "share"),
+    }
+    shared = {k: v for k, v in values.items() if k != "share"}
+    allocation = percent_to_share(values["share"] or None)
+    availability_in, errors = parse_form(AvailabilityCreate, shared | {"allocation": allocation})
+    refused_as_percentage(errors, "allocation", "share", SHARE_RULE)
+    if availability_in is None and "days_off" not in errors and period_id is not None:
+        # Another field was refused: still say whether the days off fit, not one error a time.
+        try:
+            days_off = float(values["days_off"])
+        except ValueError:
+            days_off = None
+        if days_off is not None:
+            _, too_many = store_or_errors(
+                lambda: team_store.check_days_off(session, period_id=period_id, days_off=days_off)
+            )
+            errors = too_many | errors
+    if availability_in is not None:
+        # Another team's member has no row on this page to show a message in: a 404 page.
+        _member_of_team(session, team_id, availability_in.member_id)
+        row, errors = store_or_errors(
+            lambda: team_store.set_availability(session, availability_in=availability_in)
+        )
+        if row is not None:
+            return see_other(_team_url(team_id, period_id))
+    context = _team_context(session, team_id, period_id) | {
+        "availability_form": values,
+        "availability_errors": errors,
+    }
+    return render(templates, request, "team.html", context, status_code=422)
+
+
+@router.post("/teams/{team_id}/capacity")
+async def set_capacity(
+    team_id: int, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    form = await request.form()
+    period_id = optional_int(form_text(form, "period_id"))
+    values = {
+        "focus_factor": form_text(form, "focus_factor"),
+        "reserve_pct": form_text(form, "reserve_pct"),
+    }
+    settings_in, errors = parse_form(CapacitySettingsIn, values)
+    if settings_in is not None and period_id is not None:
+        period_store.get_period(session, period_id=period_id)
+        stored, errors = store_or_errors(
+            lambda: period_store.set_capacity_settings(
+                session,
+                team_id=team_id,
+                period_id=period_id,
+                settings_in=settings_in,
+                based_on=based_on(form),
+            )
+        )
+        if stored is not None:
+            return see_other(_team_url(team_id, period_id))
+    if period_id is None:
+        errors = {"period_id": "Choose a period first."}
+    context = _team_context(session, team_id, period_id) | {
+        "settings_form": values,
+        "settings_errors": errors,
+    }
+    return render(templates, request, "team.html", context, status_code=refusal_status(errors))
+
+
+def _team_url(team_id: int, period_id: int | None) -> str:
+    return f"/teams/{team_id}" + (f"?period_id={period_id}" if period_id else "")
