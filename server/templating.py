@@ -14,10 +14,13 @@ STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "rule
 
 
 def days(value: float | None) -> str:
-    """Show person-days with at most one decimal: 12, 12.5."""
+    """Show person-days with at most one decimal: 12, 12.5; below 0.05 but not 0, "< 0.1"
+    (an effort of 0.01 day shown as "0" would read as no effort at all)."""
     if value is None:
         return "–"
     rounded = round(float(value), 1)
+    if rounded == 0 and value != 0:
+        return "< 0.1" if value > 0 else "> −0.1"
     return f"{rounded:g}" if abs(rounded) < 1e6 else f"{rounded:,.0f}"
 
 

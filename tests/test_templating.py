@@ -1,0 +1,33 @@
+"""The number filters pages use for days and percentages."""
+
+from __future__ import annotations
+
+import pytest
+
+from server.templating import days, share_percent
+
+
+@pytest.mark.parametrize(
+    ("value", "shown"),
+    [
+        (None, "–"),
+        (0, "0"),
+        (12, "12"),
+        (12.5, "12.5"),
+        (12.04, "12"),
+        (0.01, "< 0.1"),  # not "0": it is some effort
+        (-0.01, "> −0.1"),
+        (2_500_000, "2,500,000"),
+    ],
+)
+def test_days_show_one_decimal_and_never_hide_a_small_effort(
+    value: float | None, shown: str
+) -> None:
+    assert days(value) == shown
+
+
+@pytest.mark.parametrize(
+    ("share", "shown"), [(1.0, "100 %"), (0.5, "50 %"), (0.125, "12.5 %"), (None, "–")]
+)
+def test_shares_show_as_the_percentage_typed(share: float | None, shown: str) -> None:
+    assert share_percent(share) == shown
