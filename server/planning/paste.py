@@ -227,7 +227,10 @@ def _parse_row(
     by_column = {name: (cells[k] if k < len(cells) else "") for k, name in enumerate(columns)}
     errors: dict[str, str] = {}
     if len(cells) > len(columns):
-        errors["row"] = f"has {len(cells)} cells; expected at most {len(columns)}."
+        errors["row"] = (
+            f"has {len(cells)} cells, more than the {len(columns)} columns read "
+            f"({', '.join(columns)})."
+        )
     title = by_column.get("title", "")
     if "effort" in columns:
         effort_text = by_column.get("effort", "")

@@ -65,6 +65,17 @@ def test_comma_separated_without_header_and_separate_columns() -> None:
     assert second.effort.likely == 2
 
 
+def test_too_many_cells_name_the_columns_read() -> None:
+    """Seven cells fit no layout: the block says which layouts there are, and each row names
+    the columns it was read with (it said "expected at most 4" beside a hint of 5 or 6)."""
+    result = _parse("Quay wall\t3\t5\t8\t40\tpinned\textra\n")
+    assert not result.ok
+    assert "Rows have 7 columns; paste 3 (title, effort, value)" in result.problems[0]
+    assert result.rows[0].errors["row"] == (
+        "has 7 cells, more than the 4 columns read (title, effort, value, state)."
+    )
+
+
 def test_quoted_cells_keep_their_commas() -> None:
     result = _parse('"Quay wall, north side",5,40\n')
     assert result.ok
