@@ -640,6 +640,14 @@ def build_plan_view(
     )
 
 
+_FORCED_WORDS = (
+    ("Pinned “", "Pinned or forced-in “"),
+    ("pinned “", "pinned or forced-in “"),
+    ("ruled-out “", "ruled-out or forced-out “"),
+    ("is pinned, but so is", "is pinned or forced in, but so is"),
+)
+
+
 def no_plan_message(
     session: Session, exc: SelectorInputError, team_id: int, period_id: int, whatif: WhatIf
 ) -> str:
@@ -662,6 +670,9 @@ def no_plan_message(
     else:
         text = with_titles(exc.message, titles)
     if whatif.forcing:
+        # The selector plans forced-in work as pinned and forced-out work as ruled out.
+        for mark, either in _FORCED_WORDS:
+            text = text.replace(mark, either)
         return f"This what-if cannot be planned: {text} Clear the forcing to see the plan."
     return f"These initiatives cannot be planned as they stand: {text}"
 

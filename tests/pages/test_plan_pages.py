@@ -397,6 +397,20 @@ def test_forcing_two_alternatives_in_is_explained(
     assert "Clear the what-if" in text
 
 
+def test_forcing_in_work_that_needs_forced_out_work_says_forced(
+    form_client: TestClient, session: Session
+) -> None:
+    team = make_team(session)
+    period = make_period(session)
+    _capacity(session, team, period, 1)
+    rails = make_initiative(session, team, period, "Rails", 3, 10).row.id
+    crane = make_initiative(session, team, period, "Crane", 2, 8, needs=[rails]).row.id
+    url = f"/teams/{team.id}/plan?period_id={period.id}&force_in={crane}&force_out={rails}"
+    text = parse_html(form_client.get(url).text).text()
+    # Neither is pinned or ruled out: the words say what the person did, forcing.
+    assert "Pinned or forced-in “Crane” needs ruled-out or forced-out “Rails”" in text
+
+
 def test_confidence_level_plans_with_beta_quantiles(
     form_client: TestClient, session: Session
 ) -> None:
