@@ -293,7 +293,10 @@ def describe(
         for initiative_id in getattr(changes, name):
             row = titles.get(initiative_id)
             title = f"“{row.title}”" if row is not None else f"initiative {initiative_id}"
-            live = "in the plan" if row is not None and row.key in live_chosen else "left out"
+            if row is None:  # deleted, or moved out of the team's plan since
+                live = "no longer in this team's plan, so not forced"
+            else:
+                live = "in the plan" if row.key in live_chosen else "left out"
             out.append(ChangedInput(f"{name}.{initiative_id}", title, live, label.lower()))
     return out
 

@@ -180,6 +180,11 @@ def test_changed_inputs_are_listed_against_live_values(
     ]
     base = inputs_of(session, outcome.live)
     assert describe(ScenarioChanges(), base) == []
+    # A forced initiative deleted since: said to be gone, not "left out".
+    gone = describe(ScenarioChanges(forced_in=[99_999]), base)
+    assert [c.text for c in gone] == [
+        "initiative 99999: forced in (live: no longer in this team's plan, so not forced)"
+    ]
 
 
 def test_parse_changes_form_reads_levels_and_keeps_blanks_live() -> None:
