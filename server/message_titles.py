@@ -51,6 +51,13 @@ def titled_leavers(text: str, titles: Mapping[str, str]) -> str:
     return _LEAVERS.sub(named, text)
 
 
+def titled_refusal(message: str, field: str, titles: Mapping[str, str]) -> str:
+    """A selector refusal (message and field) in titles: marks conflicts as sentences."""
+    if field in {"either_or", "needs"}:
+        return conflict_with_titles(message, titles)
+    return with_titles(message, titles)
+
+
 def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
     """A selector's marks conflict as a sentence about titles, without keys or field names."""
     match = _CONFLICT_PREFIX.match(text)

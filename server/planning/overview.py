@@ -7,6 +7,7 @@ from typing import Any
 
 from sqlmodel import Session
 
+from server.message_titles import titled_refusal
 from server.models import Period, Team
 from server.planning.joint import JointPlan, joint_plan_for
 from server.planning.plans import PlanOptions, plan_for
@@ -68,7 +69,11 @@ def _summary(session: Session, team: Team, period_id: int, resolution: float) ->
             headroom=None,
             fit_label=None,
             chosen_ids=frozenset(),
-            message="No capacity in this period yet." if no_capacity else exc.message,
+            message="No capacity in this period yet."
+            if no_capacity
+            else titled_refusal(
+                exc.message, exc.field, {str(r.row.id): r.row.title for r in records}
+            ),
         )
     selection = plan.selection
     return TeamSummary(

@@ -15,7 +15,7 @@ from urllib.parse import urlencode
 from sqlmodel import Session
 
 from server.actor import current_actor
-from server.message_titles import conflict_with_titles, with_titles
+from server.message_titles import titled_refusal, with_titles
 from server.models import Period, Team
 from server.planning import curve_chart
 from server.planning.curve_chart import (
@@ -665,10 +665,7 @@ def no_plan_message(
             "This team has no capacity in this period yet (no members, or everyone is away): "
             "add members and their availability on the team page to get a plan."
         )
-    if exc.field in {"either_or", "needs"}:
-        text = conflict_with_titles(exc.message, titles)
-    else:
-        text = with_titles(exc.message, titles)
+    text = titled_refusal(exc.message, exc.field, titles)
     if whatif.forcing:
         # The selector plans forced-in work as pinned and forced-out work as ruled out.
         for mark, either in _FORCED_WORDS:
