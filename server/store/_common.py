@@ -33,18 +33,21 @@ def fingerprint(values: Mapping[str, Any]) -> str:
     return hashlib.sha256(canonical.encode()).hexdigest()[:16]
 
 
-def refuse_if_changed(based_on: str | None, current: Mapping[str, Any], what: str) -> None:
+def refuse_if_changed(
+    based_on: str | None, current: Mapping[str, Any], what: str, now: str
+) -> None:
     """Refuse an edit made on a form built from values someone has changed since.
 
     Rows without a version column (capacity settings, members, teams, scenarios) are guarded
     this way: the form carries the fingerprint of what it showed, and a save on top of a newer
     change is refused instead of silently undoing it. None: the caller sent no fingerprint
-    (the JSON API), so the last write wins as before.
+    (the JSON API), so the last write wins as before. `now` says the stored values in
+    words, so the person sees what the colleague changed before saving again.
     """
     if based_on is not None and based_on != fingerprint(current):
         raise StaleVersionError(
-            f"{what} changed while you were editing; your values were not saved. The form "
-            "shows them again beside the current ones: save again to apply yours.",
+            f"{what} changed while you were editing: now {now}. Your values were not saved; "
+            "they are in the form again. Save again to apply them over that change.",
             current=dict(current),
         )
 

@@ -300,7 +300,9 @@ def set_capacity_settings(
     db_row = get_capacity_settings(session, team_id=team_id, period_id=period_id)
     # Settings never stored are the defaults: the entry's "before" says so in numbers.
     before = _settings_values(db_row)
-    refuse_if_changed(based_on, before, "The focus factor and reserve were")
+    refuse_if_changed(
+        based_on, before, "The focus factor and reserve were", _settings_words(before)
+    )
     db_row.focus_factor = settings_in.focus_factor
     db_row.reserve_pct = settings_in.reserve_pct
     after = _settings_values(db_row)

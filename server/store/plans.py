@@ -120,7 +120,12 @@ def update_scenario(
     """Rename a scenario or replace its changes; `based_on`: see `refuse_if_changed`."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
     before = {"name": db_scenario.name, "changes": db_scenario.changes}
-    refuse_if_changed(based_on, before, f"Scenario “{db_scenario.name}” was")
+    refuse_if_changed(
+        based_on,
+        before,
+        f"Scenario “{db_scenario.name}” was",
+        "as shown at the top of this page",
+    )
     if name is not None:
         db_scenario.name = name
     if changes is not None:

@@ -93,7 +93,12 @@ def update_team(
 ) -> Team:
     """Rename the team or set its spread; `based_on`: see `refuse_if_changed`."""
     db_team = get_team(session, team_id=team_id)
-    refuse_if_changed(based_on, _team_values(db_team), "The team's name and spread were")
+    refuse_if_changed(
+        based_on,
+        _team_values(db_team),
+        "The team's name and spread were",
+        f"“{db_team.name}”, spread {db_team.default_spread * 100:g} %",
+    )
     changes = team_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_name_free(session, changes["name"], team_id)
@@ -104,6 +109,9 @@ def update_team(
     old, new = audit.changed(before, _team_values(db_team))
     if new:  # a form sent back unchanged is no change worth an entry
         renamed = f"Renamed team “{old_name}” to “{db_team.name}”"
+        others = [name for name in new if name != "name"]
+        if "name" in new and others:  # every changed field named, not the rename alone
+            renamed += f" and changed its {_fields(dict.fromkeys(others))}"
         audit.record(
             session,
             actor=actor,
@@ -270,7 +278,10 @@ def update_member(
     """Rename a member or change their share; `based_on`: see `refuse_if_changed`."""
     db_member = get_member(session, member_id=member_id)
     refuse_if_changed(
-        based_on, _member_values(db_member), f"{db_member.name}'s name and share were"
+        based_on,
+        _member_values(db_member),
+        f"{db_member.name}'s name and share were",
+        f"{db_member.name}, {_share(db_member.allocation)}",
     )
     changes = member_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:

@@ -44,9 +44,15 @@ def test_team_changes_are_recorded_with_who_and_the_values(client: TestClient) -
     _ok(client.patch(f"/api/v1/teams/{team['id']}", json={"name": "Harbour Ops"}))
     _ok(client.patch(f"/api/v1/teams/{team['id']}", json={"default_spread": 0.25}))
     _ok(client.patch(f"/api/v1/teams/{team['id']}", json={"default_spread": 0.25}))  # no change
+    both = {"name": "Harbour Works", "default_spread": 0.1}
+    _ok(client.patch(f"/api/v1/teams/{team['id']}", json=both))
     _ok(client.delete(f"/api/v1/teams/{team['id']}"))
 
-    created, renamed, spread, deleted = _trail(client, entity="team")
+    created, renamed, spread, renamed_and_spread, deleted = _trail(client, entity="team")
+    # A rename with another change names both: the summary alone hid the spread before.
+    assert renamed_and_spread["summary"] == (
+        "Renamed team “Harbour Ops” to “Harbour Works” and changed its default spread"
+    )
     assert {e["actor"] for e in (created, renamed, spread, deleted)} == {"admin"}
     assert {e["team_id"] for e in (created, renamed, spread, deleted)} == {team["id"]}
     assert (created["action"], created["summary"]) == ("team.create", "Added team “Harbour”")
@@ -58,8 +64,11 @@ def test_team_changes_are_recorded_with_who_and_the_values(client: TestClient) -
         {"default_spread": 0.0},
         {"default_spread": 0.25},
     )
-    assert (deleted["action"], deleted["summary"]) == ("team.delete", "Deleted team “Harbour Ops”")
-    assert deleted["before"]["name"] == "Harbour Ops"
+    assert (deleted["action"], deleted["summary"]) == (
+        "team.delete",
+        "Deleted team “Harbour Works”",
+    )
+    assert deleted["before"]["name"] == "Harbour Works"
 
 
 def test_member_changes_are_recorded(client: TestClient) -> None:

@@ -479,7 +479,7 @@ def test_capacity_settings_saved_over_a_colleagues_change_are_refused(
     assert _settings(session, team) == (0.8, 15)
     shown = Form(parse(stale.text), url)  # type: ignore[attr-defined]
     assert (shown.value("focus_factor"), shown.value("reserve_pct")) == ("0.7", "20")
-    assert "changed while you were editing" in " ".join(shown.errors())
+    assert "now focus factor 0.8, reserve 15 %" in " ".join(shown.errors())
     assert "version:" not in " ".join(shown.errors())
     # Saving the re-shown form applies the values on purpose.
     again = {"period_id": str(team.period), "based_on": shown.value("based_on")}
@@ -509,7 +509,11 @@ def test_member_and_team_edits_over_a_colleagues_change_are_refused(
         form_client, member_url, {"name": "Kari N.", "share": "50", "based_on": member_token}
     )
     assert stale_member.status_code == 409  # type: ignore[attr-defined]
-    assert "Kari's name and share were changed" in parse(stale_member.text).text()  # type: ignore[attr-defined]
+    # The message says what the colleague stored, so saving again is a choice made knowingly.
+    stale_text = parse(stale_member.text).text()  # type: ignore[attr-defined]
+    assert "Kari's name and share were changed while you were editing: now Kari, share 80 %" in (
+        stale_text
+    )
     stale_team = _post(
         form_client, team_url, {"name": "Harbour", "spread_pct": "10", "based_on": team_token}
     )
