@@ -16,7 +16,9 @@ from starlette.datastructures import FormData
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
 from server.routes.forms import (
+    based_on,
     form_text,
+    refusal_status,
     render,
     see_other,
     store_or_errors,
@@ -112,6 +114,7 @@ def _period_page(
 ) -> Response:
     context = {
         "period": db_period,
+        "based_on": period_store.period_fingerprint(db_period),
         "period_form": form or _period_form(db_period),
         "period_errors": errors or {},
         "delete_error": delete_error,
@@ -137,14 +140,21 @@ async def update_period(
     period_in, errors = parse_form(PeriodUpdate, values)
     if period_in is not None:
         updated, errors = store_or_errors(
-            lambda: period_store.update_period(session, period_id=period_id, period_in=period_in)
+            lambda: period_store.update_period(
+                session, period_id=period_id, period_in=period_in, based_on=based_on(form)
+            )
         )
         if updated is not None:
             return see_other("/")
     session.refresh(db_period)
     shown = values | {"non_working_dates": form_text(form, "non_working_dates")}
     return _period_page(
-        request, templates, db_period, form=shown, errors=_flatten(errors), status_code=422
+        request,
+        templates,
+        db_period,
+        form=shown,
+        errors=_flatten(errors),
+        status_code=refusal_status(errors),
     )
 
 

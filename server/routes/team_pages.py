@@ -82,6 +82,7 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
         "settings_based_on": period_store.settings_fingerprint(settings) if settings else "",
         "team_based_on": team_store.team_fingerprint(db_team),
+        "availability_fingerprint": team_store.availability_fingerprint,
         "member_based_on": {m.id: team_store.member_fingerprint(m) for m in members},
         "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
         "scenario_count": team_store.count_team_scenarios(session, team_id=team_id),
@@ -264,7 +265,9 @@ async def set_availability(
         # Another team's member has no row on this page to show a message in: a 404 page.
         _member_of_team(session, team_id, availability_in.member_id)
         row, errors = store_or_errors(
-            lambda: team_store.set_availability(session, availability_in=availability_in)
+            lambda: team_store.set_availability(
+                session, availability_in=availability_in, based_on=based_on(form)
+            )
         )
         if row is not None:
             return see_other(_team_url(team_id, period_id))
@@ -272,7 +275,7 @@ async def set_availability(
         "availability_form": values,
         "availability_errors": errors,
     }
-    return render(templates, request, "team.html", context, status_code=422)
+    return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
 @router.post("/teams/{team_id}/capacity")

@@ -106,11 +106,29 @@ def create_period(session: Session, *, period_in: PeriodCreate, actor: str = "")
     return db_period
 
 
+def period_fingerprint(db_period: Period) -> str:
+    """What the period edit form sends back as `based_on`."""
+    return fingerprint(period_values(db_period))
+
+
 def update_period(
-    session: Session, *, period_id: int, period_in: PeriodUpdate, actor: str = ""
+    session: Session,
+    *,
+    period_id: int,
+    period_in: PeriodUpdate,
+    actor: str = "",
+    based_on: str | None = None,
 ) -> Period:
-    """Merge the change with the stored period and check the whole again."""
+    """Merge the change with the stored period and check the whole again; `based_on`: see
+    `refuse_if_changed`."""
     db_period = get_period(session, period_id=period_id)
+    refuse_if_changed(
+        based_on,
+        period_values(db_period),
+        f"Period “{db_period.name}” was",
+        f"{db_period.start_date} to {db_period.end_date}, "
+        f"{counted(period_working_days(db_period), 'working day')}",
+    )
     merged = {
         "name": db_period.name,
         "kind": db_period.kind,

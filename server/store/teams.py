@@ -415,11 +415,21 @@ def _record_availability(
     )
 
 
+def availability_fingerprint(db_row: Availability | None) -> str:
+    """What a days-off row sends back as `based_on` (None: nothing stored for the period)."""
+    return fingerprint(_availability_values(db_row) if db_row is not None else {})
+
+
 def set_availability(
-    session: Session, *, availability_in: AvailabilityCreate, actor: str = ""
+    session: Session,
+    *,
+    availability_in: AvailabilityCreate,
+    actor: str = "",
+    based_on: str | None = None,
 ) -> Availability:
-    """Create or replace a member's availability in a period (one row per member and period)."""
-    get_member(session, member_id=availability_in.member_id)
+    """Create or replace a member's availability in a period (one row per member and period);
+    `based_on`: see `refuse_if_changed`."""
+    db_member = get_member(session, member_id=availability_in.member_id)
     period = get_or_404(session, Period, availability_in.period_id, "period")
     _check_days_off(period, availability_in.days_off)
     query = select(Availability).where(
@@ -428,6 +438,12 @@ def set_availability(
     )
     found = session.exec(query).first()
     before = _availability_values(found) if found is not None else None
+    refuse_if_changed(
+        based_on,
+        before or {},
+        f"{db_member.name}'s days off in {period.name} were",
+        _availability_words(before) if before else "none recorded",
+    )
     db_row = found or Availability(
         member_id=availability_in.member_id, period_id=availability_in.period_id
     )

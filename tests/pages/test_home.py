@@ -221,3 +221,25 @@ def test_a_period_in_use_is_not_deleted_and_says_why(
     empty = make_period(session, "Sprint 9", dt.date(2027, 5, 3), dt.date(2027, 5, 14))
     assert _send(form_client, f"/periods/{empty.id}/delete", {"confirm": "yes"}).status_code == 303
     assert _periods(session) == ["Sprint 1"]
+
+
+def test_a_period_edit_over_a_colleagues_change_is_refused(
+    form_client: TestClient, session: Session
+) -> None:
+    period = make_period(session)  # Mon 1 to Fri 12 March 2027, 10 working days
+    url = f"/periods/{period.id}"
+    token = Form(parse(form_client.get(url + "/edit").text), url).value("based_on")
+    fields = {
+        "name": "Sprint 1",
+        "kind": "sprint",
+        "start_date": "2027-03-01",
+        "end_date": "2027-03-12",
+        "weekmask": "1111100",
+        "based_on": token,
+    }
+    closed = _send(form_client, url, fields | {"non_working_dates": "2027-03-05"})
+    assert closed.status_code == 303
+    renamed = _send(form_client, url, fields | {"name": "Sprint 1 (final)"})
+    assert renamed.status_code == 409
+    assert "now 2027-03-01 to 2027-03-12, 9 working days" in parse(renamed.text).text()
+    assert _periods(session) == ["Sprint 1"]

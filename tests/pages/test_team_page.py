@@ -525,3 +525,23 @@ def test_member_and_team_edits_over_a_colleagues_change_are_refused(
     harbour = session.get(TeamRow, team.id)
     assert harbour is not None
     assert (harbour.name, harbour.default_spread) == ("Harbour Ops", 0)
+
+
+def test_days_off_saved_over_a_colleagues_change_are_refused(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/availability"
+    opened = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
+    row = {"member_id": str(team.ola), "period_id": str(team.period)}
+    token = Form(opened, url, member_id=str(team.ola)).value("based_on")
+    assert _post(form_client, url, row | {"days_off": "9", "based_on": token}).status_code == 303  # type: ignore[attr-defined]
+    stale = _post(form_client, url, row | {"days_off": "3", "share": "50", "based_on": token})
+    assert stale.status_code == 409  # type: ignore[attr-defined]
+    assert _days_off(session, team.ola) == [9]
+    shown = Form(parse(stale.text), url, member_id=str(team.ola))  # type: ignore[attr-defined]
+    assert (shown.value("days_off"), shown.value("share")) == ("3", "50")
+    assert "now 9 days off" in " ".join(shown.errors())
+    # Kari's row, untouched by anyone, still saves from the page as it was opened.
+    kari = Form(opened, url, member_id=str(team.kari)).value("based_on")
+    kari_row = {"member_id": str(team.kari), "period_id": str(team.period), "days_off": "1"}
+    assert _post(form_client, url, kari_row | {"based_on": kari}).status_code == 303  # type: ignore[attr-defined]
