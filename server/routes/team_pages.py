@@ -130,7 +130,7 @@ async def update_team(
     form = await request.form()
     period_id = optional_int(form_text(form, "period_id"))
     values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
-    spread = percent_to_share(values["spread_pct"] or "0")
+    spread = percent_to_share(values["spread_pct"])  # blank is refused, not read as 0 %
     team_in, errors = parse_form(TeamUpdate, {"name": values["name"], "default_spread": spread})
     refused_as_percentage(errors, "default_spread", "spread_pct", SPREAD_RULE)
     if team_in is not None:
@@ -174,8 +174,9 @@ async def delete_team(
 
 
 def _member_input(schema: Any, values: dict[str, str], **fixed: Any) -> tuple[Any, dict[str, str]]:
-    """A member form (share typed in percent; blank is full time) parsed into `schema`."""
-    allocation = percent_to_share(values["share"] or "100")
+    """A member form (share typed in percent) parsed into `schema`. A blank share is refused,
+    not read as full time: on an edit it would silently replace the stored share."""
+    allocation = percent_to_share(values["share"])
     parsed, errors = parse_form(schema, fixed | {"name": values["name"], "allocation": allocation})
     return parsed, refused_as_percentage(errors, "allocation", "share", SHARE_RULE)
 

@@ -216,6 +216,7 @@ def test_adding_a_member_through_the_form(
         ("", "1", "name", "Enter some text"),
         ("Ola", "1", "name", "already has a member"),
         ("Eli", "200", "share", "at most 100"),
+        ("Eli", "", "share", "Enter a percentage"),
         ("Eli", "0", "share", "above 0"),
         ("Eli", "full", "share", "Enter a percentage"),
     ],
@@ -318,6 +319,7 @@ def test_a_member_is_renamed_and_their_share_changed(
         ("", "0.5", "name", "Enter some text"),
         ("Ola", "0.5", "name", "Ola"),  # the team already has an Ola
         ("Kari", "150", "share", "at most 100"),
+        ("Kari", "", "share", "Enter a percentage"),  # not a silent reset to 100 %
         ("Kari", "half", "share", "Enter a percentage"),
     ],
 )
@@ -377,7 +379,7 @@ def test_the_team_is_renamed_and_its_spread_set_in_percent(
     page = parse(form_client.get(f"/teams/{team.id}").text)
     assert page.find("h1").text() == "Harbour Ops"
     assert Form(page, url).value("spread_pct") == "20"
-    for bad in ("100", "x"):
+    for bad in ("100", "x", ""):  # blank: not a silent reset to 0 %
         refused = _post(form_client, url, {"name": "Harbour Ops", "spread_pct": bad})
         assert refused.status_code == 422  # type: ignore[attr-defined]
         errors = Form(parse(refused.text), url).errors()  # type: ignore[attr-defined]
