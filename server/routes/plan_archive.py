@@ -569,7 +569,12 @@ async def _import_from_form(
     except LoadlineError as exc:
         errors = {exc.field or "form": exc.message}
     else:
-        return see_other(f"/scenarios/{outcome.scenario.id}")
+        if not outcome.warnings:
+            return see_other(f"/scenarios/{outcome.scenario.id}")
+        # Notes about the import (a blocked row imported as ruled out, another spread) are
+        # said once, here, before the scenario: a redirect would drop them.
+        done = {"team": get_team(session, team_id=team_id), "outcome": outcome}
+        return _render(templates, request, "plans/import_done.html", done)
     context = _import_context(session, team_id)
     context |= {
         "form": {

@@ -475,3 +475,24 @@ def test_single_estimates_stay_single_through_export_and_import(
     assert any(
         "spread ±20 %; No spread spreads them ±0 %" in warning for warning in other["warnings"]
     )
+
+
+def test_import_page_shows_the_imports_notes_before_the_scenario(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    """The API answered with the notes; the page redirected to the scenario without them."""
+    update_team(session, team_id=workspace.team_id, team_in=TeamUpdate(default_spread=0.2))
+    plan = save_live(form_client, workspace, "P80 plan", changes={"confidence": 0.8})
+    exported = form_client.get(f"/plans/{plan['id']}/export.csv").content
+    other = make_team(session, "Unspread")  # spreads single estimates 0 %
+    response = form_client.post(
+        f"/teams/{other.id}/plan-import",
+        data={"csrf_token": form_client.csrf, "period_id": str(workspace.period_id)},  # type: ignore[attr-defined]
+        files={"file": ("plan.csv", exported, "text/csv")},
+        follow_redirects=False,
+    )
+    assert response.status_code == 200
+    page = parse(response.text)
+    assert "spread ±20 %; Unspread spreads them ±0 %" in page.find("ul", cls="import-notes").text()
+    link = page.find("a", id="scenario-link").attrs["href"]
+    assert form_client.get(link).status_code == 200
