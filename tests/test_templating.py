@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from server.templating import days, share_percent
+from server.templating import audit_value, days, share_percent
 
 
 @pytest.mark.parametrize(
@@ -31,3 +31,13 @@ def test_days_show_one_decimal_and_never_hide_a_small_effort(
 )
 def test_shares_show_as_the_percentage_typed(share: float | None, shown: str) -> None:
     assert share_percent(share) == shown
+
+
+def test_audit_values_read_as_words() -> None:
+    assert audit_value(0.33332999999999996) == "0.33333"
+    assert audit_value(None) == "–"
+    assert audit_value(True) == "yes"
+    assert audit_value([{"period_id": 1, "days_off": 4.0, "allocation": None}]) == (
+        "period id 1, days off 4, allocation –"
+    )
+    assert audit_value([]) == "none"

@@ -733,18 +733,19 @@ def update_initiative(
             except InputError:
                 session.rollback()
                 raise
-        after = stored.to_public()
-        audit.record(
-            session,
-            actor=actor,
-            action="initiative.update",
-            entity="initiative",
-            entity_id=initiative_id,
-            team_id=db_row.team_id,
-            summary=_change_summary(db_row.title, before, after.model_dump(mode="json")),
-            before=_changed(before, after.model_dump(mode="json")),
-            after=_changed(after.model_dump(mode="json"), before),
-        )
+        after = stored.to_public().model_dump(mode="json")
+        if _changed(after, before):  # a form saved unchanged is no change worth an entry
+            audit.record(
+                session,
+                actor=actor,
+                action="initiative.update",
+                entity="initiative",
+                entity_id=initiative_id,
+                team_id=db_row.team_id,
+                summary=_change_summary(db_row.title, before, after),
+                before=_changed(before, after),
+                after=_changed(after, before),
+            )
         session.commit()
     except StaleDataError as exc:  # another writer got in between our read and our write
         session.rollback()

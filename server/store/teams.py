@@ -179,8 +179,7 @@ def delete_team(
         entity="team",
         entity_id=team_id,
         team_id=team_id,
-        summary=f"Deleted team “{db_team.name}”"
-        + (f" with its {counted(len(owned), 'initiative')}" if owned else ""),
+        summary=f"Deleted team “{db_team.name}”" + _gone_with(len(owned), len(scenarios)),
         before=_team_values(db_team)
         | {
             "members": [{"name": m.name, "allocation": m.allocation} for m in members],
@@ -193,6 +192,13 @@ def delete_team(
     session.flush()
     session.delete(db_team)
     session.commit()
+
+
+def _gone_with(initiatives: int, scenarios: int) -> str:
+    """ " with its 3 initiatives and 1 scenario": what a team's deletion took along."""
+    pairs = ((initiatives, "initiative"), (scenarios, "scenario"))
+    kept = [counted(n, noun) for n, noun in pairs if n]
+    return f" with its {and_list(kept)}" if kept else ""
 
 
 def _effort_held_by_others(session: Session, db_team: Team) -> list[str]:

@@ -381,3 +381,17 @@ def test_titles_in_any_script_are_kept() -> None:
     """Letters of any script, emoji and right-to-left text itself are ordinary text."""
     for title in ("Ünïcødé 🚌 — 中文", "تذاكر الحافلات", "Billets de bus (אוטובוס)"):
         assert re.fullmatch(VISIBLE_TEXT, title), title
+
+
+def test_saving_an_initiative_unchanged_adds_no_audit_entry(
+    client: TestClient, workspace: Workspace
+) -> None:
+    made = _create(client, team_id=workspace.team, title="Bollards", effort=2, value=3)
+    before = len(client.get("/api/v1/audit?entity=initiative").json())
+    same = client.patch(
+        f"/api/v1/initiatives/{made['id']}", json={"version": made["version"], "value": 3}
+    )
+    assert same.status_code == 200
+    entries = client.get("/api/v1/audit?entity=initiative").json()
+    assert len(entries) == before  # no "Changed nothing of “Bollards”"
+    assert not any(e["summary"].startswith("Changed nothing") for e in entries)

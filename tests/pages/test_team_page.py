@@ -10,6 +10,7 @@ from sqlmodel import Session, select
 
 from server.models import AuditEntry, Availability, CapacitySettings, Member
 from server.models import Team as TeamRow
+from server.store.plans import create_scenario
 from tests.factories import make_initiative, make_member, make_period, make_team, set_days_off
 from tests.pages.parsed_page import (
     Element,
@@ -414,6 +415,19 @@ def test_a_team_is_deleted_from_its_page_after_the_tick(
     assert _member(session, team.other_team_member) is not None
     entry = session.exec(select(AuditEntry).where(AuditEntry.action == "team.delete")).one()
     assert entry.summary == "Deleted team “Harbour”"
+
+
+def test_the_delete_box_and_the_audit_say_the_scenarios_go_too(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    create_scenario(session, team_id=team.id, period_id=team.period, name="Lean", changes={})
+    page = parse(form_client.get(f"/teams/{team.id}").text)
+    box = page.find("details", cls="team-delete").text()
+    assert "and its 1 scenario go with it" in box
+    assert _post(form_client, f"/teams/{team.id}/delete", {"confirm": "yes"}).status_code == 303  # type: ignore[attr-defined]
+    entry = session.exec(select(AuditEntry).where(AuditEntry.action == "team.delete")).one()
+    assert entry.summary == "Deleted team “Harbour” with its 1 scenario"
+    assert [s["name"] for s in entry.before["scenarios"]] == ["Lean"]
 
 
 def test_a_team_with_initiatives_needs_the_second_tick(
