@@ -21,6 +21,7 @@ from starlette.datastructures import FormData, UploadFile
 from server.actor import current_actor
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
+from server.models import Period, Team
 from server.planning import exports
 from server.planning.compare import (
     MAX_PLANS,
@@ -168,11 +169,14 @@ async def save_plan(
 def _plans_context(
     session: SessionDep, team_id: int | None, period_id: int | None
 ) -> dict[str, Any]:
-    team = get_team(session, team_id=team_id) if team_id is not None else None
     period = get_period(session, period_id=period_id) if period_id is not None else None
     rows = store.list_plans(session, team_id=team_id, period_id=period_id)
+    team = session.get(Team, team_id) if team_id is not None else None
+    if team_id is not None and team is None and not rows:
+        get_team(session, team_id=team_id)  # 404: no such team, and no plans of one
     return {
         "team": team,
+        "team_id": team_id,
         "period": period,
         "plans": [plan_summary(p) for p in rows],
         "max_plans": MAX_PLANS,
@@ -193,15 +197,23 @@ def plans_page(
     return _render(templates, request, "plans/list.html", context)
 
 
+def _exists(session: SessionDep, model: Any, row_id: int) -> bool:
+    return session.get(model, row_id) is not None
+
+
 @router.get("/plans/{plan_id}")
 def saved_plan_page(
     plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
     db_plan = store.get_plan(session, plan_id=plan_id)
     view = view_of(db_plan.inputs, db_plan.result)
+    team, period = view.inputs.teams[0], view.inputs.period
     context = {
         "plan": db_plan,
         "view": view,
+        # Links to live pages only while the plan's team and period exist: a saved plan
+        # outlives both, and its page should not lead to pages that answer 404.
+        "live": _exists(session, Team, team.id) and _exists(session, Period, period.id),
         "chart": single_curve_chart(view, label="Plan", name=db_plan.name),
         "publications": store.list_publications(session, plan_id=plan_id),
     }

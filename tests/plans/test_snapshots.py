@@ -306,3 +306,24 @@ def test_drift_names_a_renamed_member(session: Session, workspace: Workspace) ->
     )
     assert drift.moved_on
     assert [c.text for c in drift.changes] == ["Renamed Ola to Ola N."]
+
+
+def test_a_saved_plan_of_a_deleted_team_links_only_to_pages_that_exist(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    plan = save_live(form_client, workspace)
+    delete_team(session, team_id=workspace.team_id, with_initiatives=True)
+    page = form_client.get(f"/plans/{plan['id']}")
+    assert page.status_code == 200
+    hrefs = [
+        a.attrs["href"]
+        for a in parse(page.text).find_all("a")
+        if a.attrs.get("href", "").startswith("/") and not a.attrs["href"].startswith("/static")
+    ]
+    assert hrefs
+    for href in hrefs:
+        assert form_client.get(href.split("#")[0]).status_code == 200, href
+    assert "no longer exists" in page.text
+    listing = form_client.get(f"/plans?team_id={workspace.team_id}")
+    assert "Saved plans of a deleted team" in parse(listing.text).text()
+    assert form_client.get("/plans?team_id=4711").status_code == 404
