@@ -34,8 +34,9 @@ BACKLOG = "backlog"
 
 
 def title_key(title: str) -> str:
-    """How titles are compared to find the same initiative twice: trimmed, ignoring case."""
-    return title.strip().lower()
+    """How titles (and either-or set names) are compared to find the same one twice: runs of
+    spaces as one, trimmed, ignoring case. Pages show "Fare  rules" and "Fare rules" alike."""
+    return " ".join(title.split()).casefold()
 
 
 def _in_period(period_id: int | None) -> Any:

@@ -41,7 +41,9 @@ def _harbour(session: Session, workspace: Workspace) -> Team:
 # --- store ------------------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("title", ["Quay wall", "quay wall", "  QUAY WALL  ", "Quay Wall\t"])
+@pytest.mark.parametrize(
+    "title", ["Quay wall", "quay wall", "  QUAY WALL  ", "Quay Wall\t", "Quay  wall"]
+)
 def test_a_second_title_in_the_team_and_period_is_refused(
     session: Session, workspace: Workspace, snapshot: Callable[[], Snapshot], title: str
 ) -> None:

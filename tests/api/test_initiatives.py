@@ -148,6 +148,13 @@ def test_a_set_name_typed_another_way_joins_the_stored_set(
     build = _create(client, team_id=team, title="Build", effort=8, value=9, either_or="Gate")
     buy = _create(client, team_id=team, title="Buy", effort=2, value=6, either_or="gate ")
     assert buy["either_or"] == "Gate"
+    lease = _create(
+        client, team_id=team, title="Lease", effort=2, value=6, either_or="Provider  switch"
+    )
+    swap = _create(
+        client, team_id=team, title="Swap", effort=2, value=6, either_or="provider switch"
+    )
+    assert (lease["either_or"], swap["either_or"]) == ("Provider  switch", "Provider  switch")
     rent = _create(client, team_id=team, title="Rent", effort=1, value=2, either_or="Other")
     moved = client.patch(
         f"/api/v1/initiatives/{rent['id']}", json={"either_or": "GATE", "version": rent["version"]}
