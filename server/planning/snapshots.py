@@ -26,7 +26,7 @@ from sqlmodel import Session
 
 from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
-from server.message_titles import titled_leavers
+from server.message_titles import titled_leavers, titled_refusal
 from server.models import Period
 from server.planning import curve_chart
 from server.planning.plans import ROUNDING_WARNING_MARK, LivePlan, PlanOptions, plan_for
@@ -233,8 +233,12 @@ def solve_live(session: Session, *, team_id: int, period_id: int, options: PlanO
     """Solve a live plan; input the selector refuses becomes a field-named InputError."""
     try:
         return plan_for(session, team_id=team_id, period_id=period_id, options=options)
-    except SelectorInputError as exc:
-        raise InputError(exc.message, field=exc.field) from exc
+    except SelectorInputError as exc:  # named by title: the selector names initiatives by key
+        records = list_initiatives(
+            session, team_id=team_id, period_id=period_id, involving_team=True
+        )
+        titles = {str(r.row.id): r.row.title for r in records}
+        raise InputError(titled_refusal(exc.message, exc.field, titles), field=exc.field) from exc
     except EstimateError as exc:
         raise InputError(str(exc), field=exc.field) from exc
     except ValueError as exc:  # capacity arithmetic refuses a focus factor or reserve

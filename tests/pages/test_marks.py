@@ -20,6 +20,7 @@ from server.planning.plans import PlanOptions, plan_for
 from server.schemas import InitiativeUpdate
 from server.selector import Item, Problem, SelectorInputError, check_marks, solve
 from server.store.initiatives import get_initiative, update_initiative
+from server.store.plans import create_scenario
 from tests.api.support import error_fields, error_text
 from tests.factories import make_initiative, make_period, make_team
 from tests.pages.test_plan_pages import (
@@ -391,3 +392,21 @@ def test_a_saved_plan_says_blocked_work_is_blocked(
     assert "Ruled out: never in the plan" not in text
     markdown = form_client.get(saved.headers["location"] + "/export.md").text
     assert "Ruled out" not in markdown
+
+
+def test_a_scenario_that_became_unplannable_names_the_blocked_work_by_title(
+    form_client: TestClient, session: Session, harbour
+) -> None:
+    """Forcing in was allowed while the need was met inside the plan; then it moved out."""
+    team, period, needed = harbour
+    fare = make_initiative(session, team, period, "Fare estimate", 3, 17, needs=[needed])
+    scenario = create_scenario(
+        session,
+        team_id=team.id or 0,
+        period_id=period.id or 0,
+        name="Fares first",
+        changes={"forced_in": [fare.row.id]},
+    )  # stored directly: the forcing is checked when made, and blocked only later here
+    text = page(form_client, f"/scenarios/{scenario.id}").text()
+    assert "“Fare estimate” is blocked: it needs “Fare API”" in text
+    assert "initiative '" not in text
