@@ -340,6 +340,8 @@ def test_forcing_in_blocked_work_is_refused_on_the_plan_page(
         form_client, f"/teams/{team.id}/plan/initiatives/{fid}/explain?period_id={period.id}"
     )
     assert "Force in" not in explain.text()  # blocked: nothing to force in
+    assert "What-if (not stored)" not in explain.text()  # and no empty label for it
+    assert "Forcing it in would displace" not in explain.text()
     # Forced in anyway (an old link): no plan with it, and why; before, it was planned "In"
     # without what it needs and its 17 counted in the plan's value.
     forced = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}&force_in={fid}")
