@@ -421,7 +421,11 @@ def parse_plan_csv(text: str) -> ImportedPlan:
     columns = [restore(c).strip().lower() for c in header]
     missing = [c for c in REQUIRED_COLUMNS if c not in columns]
     if missing:
-        raise _fail(header_line, "header", f"missing column(s): {', '.join(missing)}.")
+        raise _fail(
+            header_line,
+            "header",
+            f"missing {'column' if len(missing) == 1 else 'columns'}: {', '.join(missing)}.",
+        )
     if len(set(columns)) != len(columns):
         raise _fail(header_line, "header", "a column name appears twice.")
     body = [(line, row) for line, row in numbered[start + 1 :] if any(c.strip() for c in row)]

@@ -62,7 +62,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         rows = parsed.rows
         if parsed.ignored_columns:
             print(
-                "loadline select: ignoring column(s) " + ", ".join(parsed.ignored_columns),
+                "loadline select: ignoring "
+                + ("column " if len(parsed.ignored_columns) == 1 else "columns ")
+                + ", ".join(parsed.ignored_columns),
                 file=sys.stderr,
             )
         problem = Problem(parsed.items, capacity=args.capacity, resolution=args.resolution)

@@ -79,7 +79,8 @@ def read_items_csv(text: str) -> CsvItems:
     missing = [name for name in REQUIRED_COLUMNS if name not in header]
     if missing:
         raise SelectorInputError(
-            f"row {header_at + 1}: missing column(s) {', '.join(missing)}; the header must "
+            f"row {header_at + 1}: missing {'column' if len(missing) == 1 else 'columns'} "
+            f"{', '.join(missing)}; the header must "
             "include key,effort,value",
             field=missing[0],
             row=header_at + 1,

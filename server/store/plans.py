@@ -25,7 +25,13 @@ from server.planning.exports import ImportedPlan
 from server.planning.scenarios import ScenarioChanges
 from server.planning.snapshots import Snapshot
 from server.store import audit
-from server.store._common import fingerprint, get_or_404, refuse_if_changed
+from server.store._common import (
+    and_list,
+    fingerprint,
+    first_named,
+    get_or_404,
+    refuse_if_changed,
+)
 from server.store.initiatives import (
     add_needs,
     check_marks,
@@ -35,6 +41,7 @@ from server.store.initiatives import (
 )
 from server.store.periods import get_period
 from server.store.teams import get_team
+from server.wording import counted
 
 TOKEN_BYTES = 32
 
@@ -325,11 +332,10 @@ def _refuse_title_clashes(
     clashes = [title for title in titles if title_key(title) in existing]
     if not clashes:
         return
-    named = ", ".join(repr(title) for title in clashes[:_CLASHES_LISTED])
-    if len(clashes) > _CLASHES_LISTED:
-        named += f" and {len(clashes) - _CLASHES_LISTED} more"
+    named = and_list(first_named([repr(title) for title in clashes], _CLASHES_LISTED))
+    are = "is already an initiative" if len(clashes) == 1 else "are already initiatives"
     raise InputError(
-        f"csv: {len(clashes)} title(s) of the file are already initiatives of {db_team.name} "
+        f"csv: {counted(len(clashes), 'title')} of the file {are} of {db_team.name} "
         f"in {db_period.name}: {named}. Nothing was imported; import into another period or "
         "team, or rename or remove those initiatives first.",
         field="csv",

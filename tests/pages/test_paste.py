@@ -272,3 +272,14 @@ def test_plain_form_add_redirects(form_client: TestClient, session: Session) -> 
     assert response.status_code == 303
     assert response.headers["location"] == setup.url
     assert session.exec(select(Initiative).where(Initiative.title == "Tide gauge")).one()
+
+
+def test_a_one_row_preview_offers_to_add_this_initiative(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    base = f"/teams/{setup.team.id}/plan/paste"
+    fields = {"text": "Pasted one\t2\t5", "period_id": str(setup.period.id)}
+    root = parse_html(post_form(form_client, f"{base}/preview", fields, **HX).text)
+    assert root.by_id("paste-add").text() == "Add this initiative"  # not "these 1 initiatives"
+    assert "1 row ready" in root.by_id("paste-preview").text()

@@ -258,7 +258,7 @@ def test_importing_a_plan_where_its_titles_already_are_is_refused(
     assert again.status_code == 422, again.text
     assert error_fields(again) == ["csv"]
     assert error_text(again) == (
-        "csv: 6 title(s) of the file are already initiatives of Harbour in Sprint of Harbour: "
+        "csv: 6 titles of the file are already initiatives of Harbour in Sprint of Harbour: "
         "'Route search', 'Stop alerts', 'Fare capping', 'Depot dashboard', 'Offline "
         "timetable' and 1 more. Nothing was imported; import into another period or team, or "
         "rename or remove those initiatives first."
@@ -294,8 +294,8 @@ def test_import_titles_clash_ignoring_case_and_spaces(
         json={"period_id": workspace.period_id, "csv": spaced},
     )
     assert response.status_code == 422, response.text
-    assert "2 title(s) of the file are already initiatives of Lighthouse" in error_text(response)
-    assert ": 'Stop alerts', 'Fare capping'. Nothing was imported" in error_text(response)
+    assert "2 titles of the file are already initiatives of Lighthouse" in error_text(response)
+    assert ": 'Stop alerts' and 'Fare capping'. Nothing was imported" in error_text(response)
     assert counts(session) == before
 
 
@@ -315,7 +315,7 @@ def test_import_page_refuses_a_plan_already_in_the_period_and_keeps_the_form(
     )
     assert response.status_code == 422
     form = Form(parse(response.text), f"/teams/{workspace.team_id}/plan-import")
-    assert "6 title(s) of the file are already initiatives of Harbour" in form.error("file")
+    assert "6 titles of the file are already initiatives of Harbour" in form.error("file")
     assert form.value("period_id") == str(workspace.period_id)
     assert form.value("csv").strip() == exported.strip()
     assert counts(session) == before

@@ -76,7 +76,7 @@ def test_infeasible_pinned_work_exits_1(tmp_path: Path, capsys: pytest.CaptureFi
         ("key,effort,value,needs\na,1,2,b\nb,1,2,a\n", "needs cycle: a -> b -> a"),
         ("key,effort,value,pinned\na,1,2,maybe\n", "row 2 (key 'a'): pinned must be true/false"),
         ("key;effort;value\na;1;2\n", "not comma-separated"),
-        ("key,effort\na,1\n", "missing column(s) value"),
+        ("key,effort\na,1\n", "missing column value"),
         ("key,effort,value\n=cmd(),1,2\n", "looks like a spreadsheet formula"),
         ("key,effort,value\na,1,2,3\n", "row 2: has 4 cells but the header has 3"),
         ("", "the file is empty"),
@@ -109,7 +109,7 @@ def test_missing_file_exits_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]
 def test_ignored_columns_are_reported(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     text = "key,title,effort,value\na,First,1,2\n"
     assert main([_csv(tmp_path, text), "--capacity", "5"]) == EXIT_OK
-    assert "ignoring column(s) title" in capsys.readouterr().err
+    assert "ignoring column title" in capsys.readouterr().err
 
 
 def test_help_exits_0(capsys: pytest.CaptureFixture[str]) -> None:
