@@ -56,6 +56,19 @@ def test_marks_columns(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> No
     assert body["forced_by_needs"] == ["api"]
 
 
+def test_set_names_typed_another_way_are_one_set(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # All three fit (6 days) and would be worth 20; "Delivery" and " delivery" are one set,
+    # so at most one of build and buy is chosen. By hand: build 9 + rest 3 = 12 is best.
+    text = "key,effort,value,either_or\nbuild,2,9,Delivery\nbuy,2,8, delivery\nrest,2,3,\n"
+    code = main([_csv(tmp_path, text), "--capacity", "6", "--json"])
+    body = json.loads(capsys.readouterr().out)
+    assert code == EXIT_OK
+    assert body["chosen"] == ["build", "rest"]
+    assert body["value"] == 12
+
+
 def test_infeasible_pinned_work_exits_1(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     text = "key,effort,value,pinned\na,5,1,1\nb,6,1,1\n"
     code = main([_csv(tmp_path, text), "--capacity", "10"])
