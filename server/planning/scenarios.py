@@ -285,8 +285,8 @@ def describe(
     members = {m.member_id: m for m in cap.members}
     for member_id, days in sorted(changes.days_off.items()):
         member = members.get(member_id)
-        name = member.name if member is not None else f"member {member_id}"
-        live = _days(member.days_off) if member is not None else "not on the team"
+        name = member.name if member is not None else f"A removed member (id {member_id})"
+        live = _days(member.days_off) if member is not None else "no longer on the team"
         out.append(ChangedInput(f"days_off.{member_id}", f"{name}: days off", live, _days(days)))
     titles = {i.id: i for i in base.initiatives}
     for name, label in (("forced_in", "Forced in"), ("forced_out", "Forced out")):

@@ -185,6 +185,10 @@ def test_changed_inputs_are_listed_against_live_values(
     assert [c.text for c in gone] == [
         "initiative 99999: forced in (live: no longer in this team's plan, so not forced)"
     ]
+    removed = describe(ScenarioChanges(days_off={4711: 3}), base)
+    assert [c.text for c in removed] == [
+        "A removed member (id 4711): days off: 3 days (live: no longer on the team)"
+    ]
 
 
 def test_parse_changes_form_reads_levels_and_keeps_blanks_live() -> None:
