@@ -37,6 +37,12 @@ def percent(value: float | None, digits: int = 0) -> str:
     return f"{value * 100:.{digits}f} %"
 
 
+def form_number(value: float | None) -> str:
+    """A stored number as a form field shows it: every digit that was typed (33.333), no
+    float noise. The display filters round, and a form saved back would store the rounding."""
+    return "" if value is None else f"{float(value):.10g}"
+
+
 def share_percent(value: float | None) -> str:
     """A share typed as a percentage, shown as typed: 0.125 -> "12.5 %" (percent rounds)."""
     return "–" if value is None else f"{number(value * 100)} %"
@@ -93,6 +99,7 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["bare_message"] = bare_message
     env.filters["error_line"] = error_line
     env.filters["counted"] = counted
+    env.filters["form_number"] = form_number
     env.filters["audit_value"] = audit_value
     env.globals["STATE_LABELS"] = STATE_LABELS
     env.globals["may"] = may

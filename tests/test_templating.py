@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from server.templating import audit_value, days, share_percent
+from server.templating import audit_value, days, form_number, share_percent
 
 
 @pytest.mark.parametrize(
@@ -41,3 +41,11 @@ def test_audit_values_read_as_words() -> None:
         "period id 1, days off 4, allocation –"
     )
     assert audit_value([]) == "none"
+
+
+def test_form_numbers_keep_every_typed_digit() -> None:
+    """A share typed as 33.333 % came back as 33.33, and saving the row stored 33.33."""
+    assert form_number(0.33333 * 100) == "33.333"
+    assert form_number(0.755) == "0.755"
+    assert form_number(2.0) == "2"
+    assert form_number(None) == ""

@@ -561,3 +561,14 @@ def test_days_off_saved_over_a_colleagues_change_are_refused(
     kari = Form(opened, url, member_id=str(team.kari)).value("based_on")
     kari_row = {"member_id": str(team.kari), "period_id": str(team.period), "days_off": "1"}
     assert _post(form_client, url, kari_row | {"based_on": kari}).status_code == 303  # type: ignore[attr-defined]
+
+
+def test_a_share_typed_with_three_decimals_is_shown_back_as_typed(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    url = f"/teams/{team.id}/members/{team.kari}"
+    token = Form(parse(form_client.get(f"/teams/{team.id}").text), url).value("based_on")
+    data = {"name": "Kari", "share": "33.333", "based_on": token}
+    assert _post(form_client, url, data).status_code == 303  # type: ignore[attr-defined]
+    shown = Form(parse(form_client.get(f"/teams/{team.id}").text), url)
+    assert shown.value("share") == "33.333"  # was 33.33: saving it again stored the rounding
