@@ -287,7 +287,8 @@ async def set_capacity(
     period_id = optional_int(form_text(form, "period_id"))
     values = {
         "focus_factor": form_text(form, "focus_factor"),
-        "reserve_pct": form_text(form, "reserve_pct"),
+        # "15 %" is 15: the label asks for a percentage, so its sign is no error.
+        "reserve_pct": form_text(form, "reserve_pct").removesuffix("%").strip(),
     }
     settings_in, errors = parse_form(CapacitySettingsIn, values)
     if settings_in is not None and period_id is not None:

@@ -244,7 +244,8 @@ def test_a_bad_member_is_shown_again(
 def test_setting_focus_factor_and_reserve(
     form_client: TestClient, session: Session, team: Team
 ) -> None:
-    data = {"focus_factor": "0.8", "reserve_pct": "10", "period_id": str(team.period)}
+    # The reserve typed with its sign ("10 %") is read as 10: the label asks for a percentage.
+    data = {"focus_factor": "0.8", "reserve_pct": "10 %", "period_id": str(team.period)}
     response = _post(form_client, f"/teams/{team.id}/capacity", data)
     assert response.status_code == 303  # type: ignore[attr-defined]
     page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
