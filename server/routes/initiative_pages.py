@@ -122,7 +122,8 @@ def _in_percent(parsed: tuple[Any, dict[str, str]]) -> tuple[Any, dict[str, str]
 def form_echo(form: FormData) -> dict[str, Any]:
     """The values as typed, to re-show a refused form unchanged."""
     echo: dict[str, Any] = {key: value for key, value in form.items() if isinstance(value, str)}
-    echo["needs"] = [v for v in form.getlist("needs") if isinstance(v, str)]
+    for name in ("needs", "drop_effort"):  # fields sent once per ticked box or option
+        echo[name] = [v for v in form.getlist(name) if isinstance(v, str)]
     return echo
 
 
@@ -157,8 +158,16 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         for needed_id in record.needs
         if needed_id not in listed
     ]
+    names = {t.id: t.name for t in team_store.list_teams(session)}
     return {
         "record": record,
+        # Effort other teams carry for it: listed, and each can be removed here (the way to
+        # free a team another team's initiative holds).
+        "other_efforts": [
+            (names.get(tid, f"team {tid}"), line)
+            for tid, line in sorted(record.efforts.items())
+            if tid != row.team_id
+        ],
         "team": team_store.get_team(session, team_id=row.team_id),
         "periods": period_store.list_periods(session),
         "states": INITIATIVE_STATES,
@@ -203,6 +212,13 @@ async def edit_initiative(
     values = initiative_values(form, team_id)
     values.pop("team_id")
     values["version"] = form_text(form, "version")
+    dropped = {v for v in form.getlist("drop_effort") if isinstance(v, str)}
+    if dropped:  # the other lines are sent back unchanged, low and high included
+        values["other_efforts"] = [
+            {"team_id": line.team_id, "likely": line.likely, "low": line.low, "high": line.high}
+            for _, line in context["other_efforts"]
+            if str(line.team_id) not in dropped
+        ]
     update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
     if update_in is not None:
         try:

@@ -164,8 +164,8 @@ def delete_team(
     held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
     if held:
         raise ConflictError(
-            f"Team {db_team.name!r} cannot be deleted: {'; '.join(held)}. "
-            "Change those initiatives first.",
+            f"Team {db_team.name!r} cannot be deleted: {'; '.join(held)}. Change those "
+            "initiatives first: remove the need, or the team's effort, on their edit pages.",
             field="team_id",
         )
     members = list_members(session, team_id=team_id)

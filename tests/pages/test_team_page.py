@@ -8,8 +8,9 @@ import pytest
 from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
-from server.models import AuditEntry, Availability, CapacitySettings, Member
+from server.models import AuditEntry, Availability, CapacitySettings, EffortLine, Member
 from server.models import Team as TeamRow
+from server.schemas import TeamEffortIn
 from server.store.plans import create_scenario
 from tests.factories import make_initiative, make_member, make_period, make_team, set_days_off
 from tests.pages.parsed_page import (
@@ -573,3 +574,37 @@ def test_a_share_typed_with_three_decimals_is_shown_back_as_typed(
     assert _post(form_client, url, data).status_code == 303  # type: ignore[attr-defined]
     shown = Form(parse(form_client.get(f"/teams/{team.id}").text), url)
     assert shown.value("share") == "33.333"  # was 33.33: saving it again stored the rounding
+
+
+def test_another_teams_effort_is_removed_on_the_edit_page_so_a_team_can_go(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    """The refusal named Lighthouse's initiative carrying effort for Harbour, but no page
+    showed or changed that effort: only the API could."""
+    lighthouse = session.exec(select(TeamRow).where(TeamRow.name == "Lighthouse")).one()
+    beacon = make_initiative(
+        session,
+        lighthouse,
+        None,
+        "Beacon",
+        4,
+        6,
+        other_efforts=[TeamEffortIn(team_id=team.id, likely=1, low=0.5, high=2)],
+    )
+    refused = _post(form_client, f"/teams/{team.id}/delete", {"confirm": "yes"})
+    assert refused.status_code == 409  # type: ignore[attr-defined]
+    refusal = parse(refused.text).text()  # type: ignore[attr-defined]
+    assert "remove the need, or the team's effort, on their edit pages" in refusal
+
+    url = f"/initiatives/{beacon.row.id}"
+    edit = Form(parse(form_client.get(url + "/edit").text), url)
+    assert "Remove Harbour's effort (0.5 / 1 / 2 days)" in edit.element.text()
+    fields = {
+        name: edit.value(name)
+        for name in ("title", "effort.likely", "effort.low", "effort.high", "value", "state")
+    } | {"version": edit.value("version"), "period_id": "backlog", "drop_effort": str(team.id)}
+    assert _post(form_client, url, fields).status_code == 303  # type: ignore[attr-defined]
+    session.expire_all()
+    lines = session.exec(select(EffortLine).where(EffortLine.initiative_id == beacon.row.id))
+    assert [line.team_id for line in lines] == [lighthouse.id]
+    assert _post(form_client, f"/teams/{team.id}/delete", {"confirm": "yes"}).status_code == 303  # type: ignore[attr-defined]
