@@ -51,7 +51,7 @@ from server.routes.api_plans import (
     plan_export,
     plan_summary,
 )
-from server.routes.forms import form_text, see_other
+from server.routes.forms import form_text, render, see_other
 from server.schemas import Title
 from server.store import plans as store
 from server.store.periods import get_period, list_periods
@@ -79,16 +79,6 @@ def _name(raw: str) -> tuple[str | None, dict[str, str]]:
         return _TITLE.validate_python(raw), {}
     except ValidationError as exc:  # the schema's own words: too long, or not visible text
         return None, {"name": field_and_message(exc.errors()[0])[1]}
-
-
-def _render(
-    templates: TemplatesDep,
-    request: Request,
-    name: str,
-    context: dict[str, Any],
-    status_code: int = 200,
-) -> Response:
-    return templates.TemplateResponse(request, name, context, status_code=status_code)
 
 
 # --- saving a plan -------------------------------------------------------------------------
@@ -119,7 +109,7 @@ def new_plan_page(
     scenario_id: QueryId = None,
 ) -> Response:
     context = _save_context(session, team_id, period_id, scenario_id)
-    return _render(templates, request, "plans/save.html", context)
+    return render(templates, request, "plans/save.html", context)
 
 
 @router.post("/plans")
@@ -160,7 +150,7 @@ async def save_plan(
             return see_other(f"/plans/{db_plan.id}")
     context = _save_context(session, team_id, period_id, scenario_id)
     context |= {"form": {"name": form_text(form, "name")}, "errors": errors}
-    return _render(templates, request, "plans/save.html", context, status_code=422)
+    return render(templates, request, "plans/save.html", context, status_code=422)
 
 
 # --- saved plans ---------------------------------------------------------------------------
@@ -194,7 +184,7 @@ def plans_page(
     period_id: QueryId = None,
 ) -> Response:
     context = _plans_context(session, team_id, period_id)
-    return _render(templates, request, "plans/list.html", context)
+    return render(templates, request, "plans/list.html", context)
 
 
 def _exists(session: SessionDep, model: Any, row_id: int) -> bool:
@@ -217,7 +207,7 @@ def saved_plan_page(
         "chart": single_curve_chart(view, label="Plan", name=db_plan.name),
         "publications": store.list_publications(session, plan_id=plan_id),
     }
-    return _render(templates, request, "plans/saved.html", context)
+    return render(templates, request, "plans/saved.html", context)
 
 
 @router.get("/plans/{plan_id}/changes")
@@ -230,8 +220,8 @@ def plan_changes_page(
     )
     context = {"plan": db_plan, "drift": drift}
     if request.headers.get("hx-request") == "true":
-        return _render(templates, request, "plans/_drift.html", context)
-    return _render(templates, request, "plans/changes.html", context)
+        return render(templates, request, "plans/_drift.html", context)
+    return render(templates, request, "plans/changes.html", context)
 
 
 @router.get("/plans/{plan_id}/export.{fmt}")
@@ -282,7 +272,7 @@ def compare_page(
         context = _plans_context(session, team_id, period_id)
         text = bare_message(exc.message, "plans")  # shown beside the boxes: a sentence
         context |= {"ticked": _ticked(plans), "errors": {"plans": text[:1].upper() + text[1:]}}
-        return _render(templates, request, "plans/list.html", context, status_code=422)
+        return render(templates, request, "plans/list.html", context, status_code=422)
     query = ",".join(str(i) for i in ids)
     if len(plans) > 1 or team_id is not None or period_id is not None:
         # Ticked boxes arrive as plans=1&plans=2 (and the list's filter): the stable URL.
@@ -294,7 +284,7 @@ def compare_page(
         "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
         "query": query,
     }
-    return _render(templates, request, "plans/compare.html", context)
+    return render(templates, request, "plans/compare.html", context)
 
 
 @router.get("/compare/export.{fmt}")
@@ -358,7 +348,7 @@ def scenarios_page(
         for key, value in request.query_params.items()
         if key == "confidence" or (key.startswith("forced.") and value in ("in", "out"))
     }
-    return _render(templates, request, "plans/scenarios.html", context)
+    return render(templates, request, "plans/scenarios.html", context)
 
 
 def _read_changes(
@@ -401,7 +391,7 @@ async def create_scenario(
         return see_other(f"/scenarios/{db_scenario.id}")
     context = _scenarios_context(session, team_id, period_id, settings)
     context |= {"form": _echo(form), "errors": errors}
-    return _render(templates, request, "plans/scenarios.html", context, status_code=422)
+    return render(templates, request, "plans/scenarios.html", context, status_code=422)
 
 
 def _echo(form: FormData) -> dict[str, str]:
@@ -470,7 +460,7 @@ def scenario_page(
     settings: SettingsDep,
 ) -> Response:
     context = _scenario_context(session, scenario_id, settings)
-    return _render(templates, request, "plans/scenario.html", context)
+    return render(templates, request, "plans/scenario.html", context)
 
 
 @router.post("/scenarios/{scenario_id}")
@@ -505,7 +495,7 @@ async def update_scenario(
             return see_other(f"/scenarios/{scenario_id}")
     context = _scenario_context(session, scenario_id, settings)
     context |= {"form": _echo(form), "errors": errors}
-    return _render(templates, request, "plans/scenario.html", context, status_code=status_code)
+    return render(templates, request, "plans/scenario.html", context, status_code=status_code)
 
 
 @router.post("/scenarios/{scenario_id}/delete")
@@ -534,7 +524,7 @@ def _import_context(session: SessionDep, team_id: int) -> dict[str, Any]:
 def import_page(
     team_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
-    return _render(templates, request, "plans/import.html", _import_context(session, team_id))
+    return render(templates, request, "plans/import.html", _import_context(session, team_id))
 
 
 async def _uploaded_text(form: FormData) -> str:
@@ -586,7 +576,7 @@ async def _import_from_form(
         # Notes about the import (a blocked row imported as ruled out, another spread) are
         # said once, here, before the scenario: a redirect would drop them.
         done = {"team": get_team(session, team_id=team_id), "outcome": outcome}
-        return _render(templates, request, "plans/import_done.html", done)
+        return render(templates, request, "plans/import_done.html", done)
     context = _import_context(session, team_id)
     context |= {
         "form": {
@@ -595,4 +585,4 @@ async def _import_from_form(
         },
         "errors": errors,
     }
-    return _render(templates, request, "plans/import.html", context, status_code=422)
+    return render(templates, request, "plans/import.html", context, status_code=422)

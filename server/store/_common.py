@@ -39,10 +39,11 @@ def refuse_if_changed(
     """Refuse an edit made on a form built from values someone has changed since.
 
     Rows without a version column (capacity settings, members, teams, days off, periods,
-    scenarios) are guarded this way: the form carries the fingerprint of what it showed, and a save on top of a newer
-    change is refused instead of silently undoing it. None: the caller sent no fingerprint
-    (the JSON API), so the last write wins as before. `now` says the stored values in
-    words, so the person sees what the colleague changed before saving again.
+    scenarios) are guarded this way: the form carries the fingerprint of what it showed,
+    and a save on top of a newer change is refused instead of silently undoing it. None:
+    the caller sent no fingerprint (the JSON API), so the last write wins as before. `now`
+    says the stored values in words, so the person sees what the colleague changed before
+    saving again.
     """
     if based_on is not None and based_on != fingerprint(current):
         raise StaleVersionError(
