@@ -23,6 +23,7 @@ from server.selector import (
     selection_to_dict,
     solve,
 )
+from server.selector.set_names import SetNames
 from server.text_rules import VISIBLE_TEXT
 
 router = APIRouter(prefix="/api/v1", tags=["selector"], responses=ERRORS)
@@ -154,6 +155,7 @@ def _selector_error(exc: SelectorInputError, keys: list[str]) -> JSONResponse:
     "Stateless: nothing is stored. Efforts round up and the capacity down to the resolution.",
 )
 def select(request_in: SelectRequest) -> Any:
+    set_names = SetNames()
     items = tuple(
         Item(
             key=item.key,
@@ -162,7 +164,7 @@ def select(request_in: SelectRequest) -> Any:
             pinned=item.pinned,
             ruled_out=item.ruled_out,
             needs=tuple(item.needs),
-            either_or=item.either_or,
+            either_or=set_names.spelling(item.either_or),
         )
         for item in request_in.items
     )

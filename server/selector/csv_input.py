@@ -8,6 +8,7 @@ from dataclasses import dataclass
 
 from .errors import SelectorInputError
 from .model import Item
+from .set_names import SetNames
 
 REQUIRED_COLUMNS = ("key", "effort", "value")
 OPTIONAL_COLUMNS = ("pinned", "ruled_out", "needs", "either_or")
@@ -97,9 +98,7 @@ def read_items_csv(text: str) -> CsvItems:
     position = {name: k for k, name in enumerate(header)}
     items: list[Item] = []
     rows: dict[str, int] = {}
-    # Set names typed another way ("Search", "search ") are one set, as in the app: the
-    # first spelling names it.
-    set_names: dict[str, str] = {}
+    set_names = SetNames()
     for offset, cells in enumerate(lines[header_at + 1 :]):
         row = header_at + 2 + offset
         if not any(cell.strip() for cell in cells):
@@ -122,9 +121,7 @@ def read_items_csv(text: str) -> CsvItems:
         needs = tuple(
             _text(name, row, key, "needs") for name in cell("needs").replace(";", " ").split()
         )
-        either_or = _text(cell("either_or"), row, key, "either_or") or None
-        if either_or is not None:
-            either_or = set_names.setdefault(" ".join(either_or.split()).casefold(), either_or)
+        either_or = set_names.spelling(_text(cell("either_or"), row, key, "either_or") or None)
         items.append(
             Item(
                 key=key,

@@ -66,6 +66,18 @@ def test_matches_brute_force_with_constraints(client: TestClient) -> None:
     assert allowed(set(answer["chosen"]))
 
 
+def test_set_names_typed_another_way_are_one_set(client: TestClient) -> None:
+    """As in the app and the CLI: "Delivery" and " delivery" are one either-or set. All three
+    fit in 6 days; with one set, the best is build 9 + rest 3 = 12 (by hand)."""
+    items = [
+        {"key": "build", "effort": 2, "value": 9, "either_or": "Delivery"},
+        {"key": "buy", "effort": 2, "value": 8, "either_or": " delivery"},
+        {"key": "rest", "effort": 2, "value": 3},
+    ]
+    answer = client.post("/api/v1/select", json={"capacity": 6, "items": items}).json()
+    assert (answer["chosen"], answer["value"]) == (["build", "rest"], 12)
+
+
 def test_curve_and_explanations_on_request(client: TestClient) -> None:
     body = {
         "capacity": 10,
