@@ -26,6 +26,7 @@ from server.schemas import (
 )
 from server.selector import Item, SelectorInputError
 from server.selector import check_marks as selector_check_marks
+from server.selector.set_names import SetNames, name_key
 from server.store import audit
 from server.store._common import and_list, first_named, get_or_404
 from server.wording import counted
@@ -34,9 +35,9 @@ BACKLOG = "backlog"
 
 
 def title_key(title: str) -> str:
-    """How titles (and either-or set names) are compared to find the same one twice: runs of
-    spaces as one, trimmed, ignoring case. Pages show "Fare  rules" and "Fare rules" alike."""
-    return " ".join(title.split()).casefold()
+    """How titles are compared to find the same one twice, as either-or set names are: runs
+    of spaces as one, trimmed, ignoring case. Pages show "Fare  rules" and "Fare rules" alike."""
+    return name_key(title)
 
 
 def _in_period(period_id: int | None) -> Any:
@@ -53,9 +54,9 @@ def _titles_query(team_id: int, period_id: int | None) -> Any:
 
 def _set_spellings(
     session: Session, team_id: int, period_id: int | None, *, excluding: int | None = None
-) -> dict[str, str]:
-    """The either-or set names the team uses in the period, by `title_key`: a set is one set
-    however its name is typed ("Search", "search "), so new members take the stored spelling.
+) -> SetNames:
+    """The either-or set names the team uses in the period: a set is one set however its name
+    is typed ("Search", "search "), so new members take the stored spelling.
     `excluding`: an initiative whose own name does not count (the one being changed)."""
     query = (
         select(Initiative.either_or)
@@ -64,10 +65,7 @@ def _set_spellings(
         .where(col(Initiative.id) != (excluding or 0))
         .order_by(col(Initiative.id))
     )
-    spellings: dict[str, str] = {}
-    for name in session.exec(query):
-        spellings.setdefault(title_key(name or ""), name or "")
-    return spellings
+    return SetNames(name for name in session.exec(query) if name is not None)
 
 
 def title_keys_in(session: Session, *, team_id: int, period_id: int | None) -> frozenset[str]:
@@ -531,7 +529,7 @@ def create_initiatives(
         session, [(item.team_id, item.period_id, item.title) for item in initiatives_in]
     )
     positions = _next_positions(session, (item.team_id for item in initiatives_in))
-    spellings: dict[tuple[int, int | None], dict[str, str]] = {}
+    spellings: dict[tuple[int, int | None], SetNames] = {}
     rows: list[Initiative] = []
     for item in initiatives_in:
         either_or = item.either_or
@@ -539,7 +537,7 @@ def create_initiatives(
             place = (item.team_id, item.period_id)
             if place not in spellings:
                 spellings[place] = _set_spellings(session, *place)
-            either_or = spellings[place].setdefault(title_key(either_or), either_or)
+            either_or = spellings[place].spelling(either_or)
         positions[item.team_id] += 1  # unique in the team, so (team_id, position) finds the id
         rows.append(
             Initiative(
@@ -716,7 +714,7 @@ def update_initiative(
             spellings = _set_spellings(
                 session, db_row.team_id, db_row.period_id, excluding=initiative_id
             )
-            db_row.either_or = spellings.get(title_key(db_row.either_or), db_row.either_or)
+            db_row.either_or = spellings.spelling(db_row.either_or)
         if "effort" in changes and initiative_in.effort is not None:
             _set_effort(session, db_row, db_row.team_id, initiative_in.effort)
         if other is not None:
