@@ -34,6 +34,7 @@ from server.schemas import (
 )
 from server.store import periods as period_store
 from server.store import teams as team_store
+from server.templating import form_number
 from server.validation import parse_form
 
 router = APIRouter(include_in_schema=False)
@@ -181,10 +182,6 @@ def _member_input(schema: Any, values: dict[str, str], **fixed: Any) -> tuple[An
     return parsed, refused_as_percentage(errors, "allocation", "share", SHARE_RULE)
 
 
-def _percentage(share: float) -> str:
-    return f"{round(share * 100, 6):g}"
-
-
 def _member_of_team(session: SessionDep, team_id: int, member_id: int) -> Any:
     db_member = team_store.get_member(session, member_id=member_id)
     if db_member.team_id != team_id:
@@ -226,7 +223,7 @@ async def remove_member(
         context = _team_context(session, team_id, period_id) | {
             "member_edit": {
                 "id": member_id,
-                "form": {"name": db_member.name, "share": _percentage(db_member.allocation)},
+                "form": {"name": db_member.name, "share": form_number(db_member.allocation * 100)},
                 "errors": {"form": f"Tick “Yes, remove {db_member.name}” to remove them."},
             },
         }
