@@ -31,6 +31,7 @@ from server.schemas import (
 from server.store import initiatives as initiative_store
 from server.store import periods as period_store
 from server.store import teams as team_store
+from server.templating import form_number
 from server.validation import parse_form
 
 router = APIRouter(include_in_schema=False)
@@ -175,11 +176,11 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         "form": {
             "title": row.title,
             "notes": row.notes,
-            "effort.likely": _plain(effort.likely),
-            "effort.low": _plain(effort.low),
-            "effort.high": _plain(effort.high),
-            "value": _plain(row.value),
-            "confidence": _plain(row.confidence * 100 if row.confidence is not None else None),
+            "effort.likely": form_number(effort.likely),
+            "effort.low": form_number(effort.low),
+            "effort.high": form_number(effort.high),
+            "value": form_number(row.value),
+            "confidence": form_number(row.confidence * 100 if row.confidence is not None else None),
             "state": row.state,
             "either_or": row.either_or or "",
             "period_id": str(row.period_id) if row.period_id else initiative_store.BACKLOG,
@@ -189,10 +190,6 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         "errors": {},
         "current": None,
     }
-
-
-def _plain(value: float | None) -> str:
-    return "" if value is None else f"{value:g}"
 
 
 @router.get("/initiatives/{initiative_id}/edit")

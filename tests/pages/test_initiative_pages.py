@@ -437,3 +437,17 @@ def test_list_names_needs_in_other_periods(
     row = page.find("table", cls="initiatives").find_all("tr")[1]
     assert row.find("th").text() == later.row.title
     assert row.find_all("td")[5].text() == "Crane rail"  # by title, not by number
+
+
+def test_the_edit_form_shows_stored_numbers_with_every_digit(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    """Six significant digits showed a value score of 123456.75 as 123457, which a save of
+    the form would then have stored."""
+    current = _record(session, stored.quay)
+    form_client.patch(
+        f"/api/v1/initiatives/{stored.quay}",
+        json={"version": current.row.version, "value": 123456.75},
+    )
+    url = f"/initiatives/{stored.quay}"
+    assert Form(parse(form_client.get(url + "/edit").text), url).value("value") == "123456.75"
