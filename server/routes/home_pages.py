@@ -16,9 +16,12 @@ from starlette.datastructures import FormData
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
 from server.routes.forms import (
+    SPREAD_RULE,
     based_on,
     form_text,
+    percent_to_share,
     refusal_status,
+    refused_as_percentage,
     render,
     see_other,
     store_or_errors,
@@ -44,7 +47,7 @@ def _home_context(session: SessionDep) -> dict[str, Any]:
         "teams": team_store.list_teams(session),
         "periods": periods,
         "working_days": {p.id: period_store.period_working_days(p) for p in periods},
-        "team_form": {},
+        "team_form": {"spread_pct": "0"},
         "team_errors": {},
         "period_form": {"kind": "sprint", "weekmask": "1111100"},
         "period_errors": {},
@@ -59,8 +62,12 @@ def home(request: Request, session: SessionDep, templates: TemplatesDep) -> Resp
 @router.post("/teams")
 async def add_team(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
     form = await request.form()
-    values = {"name": form_text(form, "name")}
-    team_in, errors = parse_form(TeamCreate, values)
+    # A post without the field (an older page, a script) keeps the 0 % default; a blank
+    # field is refused like on the team page, not read as 0 %.
+    values = {"name": form_text(form, "name"), "spread_pct": form_text(form, "spread_pct")}
+    spread = percent_to_share(values["spread_pct"]) if "spread_pct" in form else 0.0
+    team_in, errors = parse_form(TeamCreate, {"name": values["name"], "default_spread": spread})
+    refused_as_percentage(errors, "default_spread", "spread_pct", SPREAD_RULE)
     if team_in is not None:
         db_team, errors = store_or_errors(lambda: team_store.create_team(session, team_in=team_in))
         if db_team is not None:

@@ -69,6 +69,36 @@ def test_adding_a_team_redirects_to_its_page(form_client: TestClient, session: S
     assert "Harbour" in form_client.get(response.headers["location"]).text
 
 
+def test_a_new_team_gets_the_spread_typed_on_the_home_page(
+    form_client: TestClient, session: Session
+) -> None:
+    form = Form(parse(form_client.get("/").text), "/teams")
+    assert form.value("spread_pct") == "0"  # offered, so a new team's risk is a choice
+    data = {"name": "Harbour", "spread_pct": "12.5 %", "csrf_token": form_client.csrf}
+    assert form_client.post("/teams", data=data, follow_redirects=False).status_code == 303
+    session.expire_all()
+    assert session.exec(select(Team)).one().default_spread == pytest.approx(0.125)
+    # A post without the field (a script, an older page) keeps the 0 % default.
+    data = {"name": "Quay", "csrf_token": form_client.csrf}
+    assert form_client.post("/teams", data=data, follow_redirects=False).status_code == 303
+    session.expire_all()
+    assert session.exec(select(Team).where(Team.name == "Quay")).one().default_spread == 0
+
+
+@pytest.mark.parametrize("typed", ["", "100", "-5", "wide"])
+def test_a_bad_spread_for_a_new_team_is_shown_again_and_adds_nothing(
+    form_client: TestClient, session: Session, typed: str
+) -> None:
+    data = {"name": "Harbour", "spread_pct": typed, "csrf_token": form_client.csrf}
+    response = form_client.post("/teams", data=data)
+    assert response.status_code == 422
+    form = Form(parse(response.text), "/teams")
+    assert form.value("name") == "Harbour"
+    assert form.value("spread_pct") == typed
+    assert "Enter a percentage from 0 to below 100." in form.error("spread_pct")
+    assert _teams(session) == []
+
+
 def test_a_form_without_its_token_is_refused_and_stores_nothing(
     form_client: TestClient, session: Session
 ) -> None:

@@ -466,6 +466,24 @@ def test_fit_probability_and_spread_leaders(form_client: TestClient, session: Se
     ]
 
 
+def test_a_plan_of_single_estimates_without_a_spread_points_to_the_setting(
+    form_client: TestClient, viewer: TestClient, session: Session
+) -> None:
+    setup = build(session)  # single estimates, the team's spread 0 %
+    note = page(form_client, setup.url).by_id("no-spread")
+    assert note is not None
+    link = note.find("a")
+    assert link is not None
+    assert link.attrs["href"] == (
+        f"/teams/{setup.team.id}?period_id={setup.period.id}#team-f-spread_pct"
+    )
+    team_page = page(form_client, link.attrs["href"].split("#")[0])
+    assert team_page.by_id("team-f-spread_pct") is not None  # the link lands on the field
+    read_only = page(viewer, setup.url).by_id("no-spread")
+    assert read_only is not None
+    assert read_only.find("a") is None  # a viewer cannot change the spread
+
+
 def test_custom_confidence_and_bad_levels(form_client: TestClient, session: Session) -> None:
     setup = build(session)
     ok = form_client.get(setup.url + "&confidence=custom&confidence_pct=85")
