@@ -12,7 +12,10 @@ under a header. Importing it into an empty team creates the same initiatives, in
 order, with the same estimates as entered, values, states, either-or sets and needs, and a
 scenario holding the plan's capacity, confidence level and forced initiatives: solving that
 scenario gives the same plan (at a confidence level, when the team spreads single estimates
-as the file's team did; the import warns otherwise).
+as the file's team did; the import warns otherwise). Two things of the wider workspace do not
+travel, and the import says so per initiative: work blocked by needs on initiatives outside
+the plan (`blocked_by`) comes back ruled out, and effort other teams spend on an initiative
+(`other_teams`, names only) is not recreated.
 """
 
 from __future__ import annotations
@@ -51,6 +54,7 @@ INITIATIVE_COLUMNS = (
     "either_or",
     "needs",
     "blocked_by",
+    "other_teams",
     "confidence",
     "reason",
 )
@@ -155,6 +159,7 @@ def plan_csv(db_plan: SavedPlan) -> str:
                 i.either_or or "",
                 " ".join(i.needs),
                 "; ".join(i.blocked_by),
+                "; ".join(i.other_teams),
                 _number(i.confidence),
                 explanation.reason if explanation else "",
             ]
@@ -206,6 +211,12 @@ def _level(confidence: float | None) -> str:
     return "likely estimates" if confidence is None else f"P{round(confidence * 100, 1):g}"
 
 
+def _titled(i: Any) -> str:
+    """The title, and the other teams that spend effort on it, as the saved plan page shows."""
+    also = f" (also {md(', '.join(i.other_teams))})" if i.other_teams else ""
+    return md(i.title) + also
+
+
 def plan_markdown(db_plan: SavedPlan) -> str:
     view = view_of(db_plan.inputs, db_plan.result)
     r = view.result
@@ -232,7 +243,7 @@ def plan_markdown(db_plan: SavedPlan) -> str:
     lines += ["", f"## In the plan ({len(view.chosen)})", ""]
     lines += ["| Initiative | Effort (days) | Value | State |", "| --- | ---: | ---: | --- |"]
     lines += [
-        f"| {md(i.title)} | {_d(i.planned_effort)} | {_d(i.value)} | {md(i.state)} |"
+        f"| {_titled(i)} | {_d(i.planned_effort)} | {_d(i.value)} | {md(i.state)} |"
         for i in view.chosen
     ]
     lines += ["", f"## Left out ({len(view.left_out)})", ""]
@@ -240,7 +251,7 @@ def plan_markdown(db_plan: SavedPlan) -> str:
     for i in view.left_out:
         e = view.explanations.get(i.key)
         lines.append(
-            f"| {md(i.title)} | {_d(i.planned_effort)} | {_d(i.value)} | "
+            f"| {_titled(i)} | {_d(i.planned_effort)} | {_d(i.value)} | "
             f"{md(e.reason) if e else ''} |"
         )
     lines += ["", "Plans are estimates, not promises.", ""]
@@ -476,6 +487,12 @@ def parse_plan_csv(text: str) -> ImportedPlan:
             warnings.append(
                 f"“{initiative.title}” was blocked by needs outside the plan; imported as "
                 "ruled out."
+            )
+        others = cell.get("other_teams", "").strip()
+        if others:
+            warnings.append(
+                f"“{initiative.title}” also took effort from {others.replace(';', ',')}; only "
+                "this team's effort was imported. Add the other teams' effort on its edit page."
             )
         rows.append(
             ImportedRow(

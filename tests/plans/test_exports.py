@@ -29,7 +29,7 @@ from server.planning.exports import (
     plan_markdown,
     restore,
 )
-from server.schemas import TeamUpdate
+from server.schemas import TeamEffortIn, TeamUpdate
 from server.store import plans as store
 from server.store.teams import update_team
 from tests.api.conftest import read_snapshot
@@ -344,11 +344,13 @@ def _good_csv(client: TestClient, ws: Workspace) -> str:
         (lambda t: t.replace('"12","candidate"', '"twelve","candidate"'), "value"),
         (lambda t: t.replace('"12","candidate"', '"12","maybe"'), "state"),
         (
-            lambda t: t + '"1","Dup","no","","1","","1","1","candidate","","","","","",""\r\n',
+            lambda t: t + '"1","Dup","no","","1","","1","1","candidate","","","","","","",""\r\n',
             "twice",
         ),
         (
-            lambda t: t + '"99","Needy","no","","1","","1","1","candidate","","","42","","",""\r\n',
+            lambda t: (
+                t + '"99","Needy","no","","1","","1","1","candidate","","","42","","","",""\r\n'
+            ),
             "needs",
         ),
         (lambda t: t.replace("\r\n\r\n", "\r\n"), "empty row"),
@@ -475,6 +477,36 @@ def test_single_estimates_stay_single_through_export_and_import(
     assert any(
         "spread ±20 %; No spread spreads them ±0 %" in warning for warning in other["warnings"]
     )
+
+
+def test_other_teams_effort_is_named_in_the_csv_and_the_import_says_it_stays_behind(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """The CSV had no trace of other teams' effort: an import silently dropped it."""
+    quay = make_team(session, "Quay")
+    shared = workspace.id_of("Stop alerts")
+    edit(session, shared, other_efforts=[TeamEffortIn(team_id=quay.id or 0, likely=1.5)])
+    original = save_live(client, workspace, "Shared plan")
+    exported = client.get(f"/api/v1/plans/{original['id']}/export.csv").text
+    rows = list(csv.DictReader(io.StringIO(exported.split("\r\n\r\n", 1)[1])))
+    others = {row["title"]: row["other_teams"] for row in rows}
+    assert others["Stop alerts"] == "Quay"
+    assert {title for title, names in others.items() if names} == {"Stop alerts"}
+    summary = client.get(f"/api/v1/plans/{original['id']}/export.md").text
+    assert "| Stop alerts (also Quay) |" in summary
+
+    empty = make_team(session, "Empty")
+    period = make_period(session, name="Later sprint")
+    imported = client.post(
+        f"/api/v1/teams/{empty.id}/plan-imports",
+        json={"period_id": period.id, "csv": exported},
+    )
+    assert imported.status_code == 201, imported.text
+    notes = [w for w in imported.json()["warnings"] if "also took effort" in w]
+    assert notes == [
+        "“Stop alerts” also took effort from Quay; only this team's effort was imported. "
+        "Add the other teams' effort on its edit page."
+    ]
 
 
 def test_import_page_shows_the_imports_notes_before_the_scenario(
