@@ -160,6 +160,18 @@ def _rich_workspace(session: Session, ws: Workspace) -> None:
     add_initiative(session, ws.team, ws.period, "Old widget", 0.5, 50.0, state="ruled_out")
 
 
+def _import_into_an_empty_team(session: Session, client: TestClient, exported: str) -> dict:
+    """Import a plan CSV into a new team "Empty" and a new period; the API's answer."""
+    empty = make_team(session, "Empty")
+    period = make_period(session, name="Later sprint")
+    imported = client.post(
+        f"/api/v1/teams/{empty.id}/plan-imports",
+        json={"period_id": period.id, "csv": exported},
+    )
+    assert imported.status_code == 201, imported.text
+    return imported.json()
+
+
 def test_csv_export_imported_into_an_empty_team_gives_the_same_plan(
     session: Session, workspace: Workspace, client: TestClient
 ) -> None:
@@ -173,14 +185,7 @@ def test_csv_export_imported_into_an_empty_team_gives_the_same_plan(
     original = save_live(client, workspace, "Rich plan", changes=changes)
     exported = client.get(f"/api/v1/plans/{original['id']}/export.csv").text
 
-    empty = make_team(session, "Empty")
-    period = make_period(session, name="Later sprint")
-    imported = client.post(
-        f"/api/v1/teams/{empty.id}/plan-imports",
-        json={"period_id": period.id, "csv": exported},
-    )
-    assert imported.status_code == 201, imported.text
-    body = imported.json()
+    body = _import_into_an_empty_team(session, client, exported)
     assert len(body["initiative_ids"]) == len(original["inputs"]["initiatives"])
     assert body["scenario"]["changes"]["capacity_days"] == original["result"]["capacity"]
 
@@ -495,14 +500,8 @@ def test_other_teams_effort_is_named_in_the_csv_and_the_import_says_it_stays_beh
     summary = client.get(f"/api/v1/plans/{original['id']}/export.md").text
     assert "| Stop alerts (also Quay) |" in summary
 
-    empty = make_team(session, "Empty")
-    period = make_period(session, name="Later sprint")
-    imported = client.post(
-        f"/api/v1/teams/{empty.id}/plan-imports",
-        json={"period_id": period.id, "csv": exported},
-    )
-    assert imported.status_code == 201, imported.text
-    notes = [w for w in imported.json()["warnings"] if "also took effort" in w]
+    body = _import_into_an_empty_team(session, client, exported)
+    notes = [w for w in body["warnings"] if "also took effort" in w]
     assert notes == [
         "“Stop alerts” also took effort from Quay; only this team's effort was imported. "
         "Add the other teams' effort on its edit page."
