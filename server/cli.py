@@ -115,7 +115,7 @@ def _create_user(args: argparse.Namespace) -> int:
     password = os.environ.get("LOADLINE_NEW_PASSWORD") or getpass.getpass("Password: ")
     with Session(make_engine(settings)) as session:
         user = create_user(session, username=args.username, password=password, role=args.role)
-        print(f"Created {user.role} {user.username!r}.")
+        print(f"Created {user.role} “{user.username}”.")
     return 0
 
 
@@ -129,10 +129,10 @@ def _api_token(args: argparse.Namespace) -> int:
     with Session(make_engine(Settings.from_env())) as session:
         user = find_user(session, username=args.username)
         if user is None:
-            raise NotFoundError(f"No user named {args.username!r}.", field="username")
+            raise NotFoundError(f"No user named “{args.username}”.", field="username")
         name, role = user.username, user.role
         token = start_session(session, user=user, api_token=True)
-    print(f"Bearer token for {name!r} ({role}), valid {API_TOKEN_DAYS} days:")
+    print(f"Bearer token for “{name}” ({role}), valid {API_TOKEN_DAYS} days:")
     print(token)
     return 0
 

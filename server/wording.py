@@ -1,4 +1,4 @@
-"""Counts with their noun in the right number, for messages and pages."""
+"""Wording shared by messages and pages: counts with their noun, names in quotes."""
 
 from __future__ import annotations
 
@@ -10,3 +10,8 @@ def counted(count: int, singular: str, plural: str | None = None) -> str:
     """
     noun = singular if count == 1 else (plural or f"{singular}s")
     return f"{count:,} {noun}"
+
+
+def quoted(name: object) -> str:
+    """A name inside a sentence, in the curly quotes the pages use: “Quay wall”."""
+    return f"“{name}”"

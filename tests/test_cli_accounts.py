@@ -16,7 +16,7 @@ def test_create_user_then_api_token_signs_in(
     monkeypatch.setenv("DATABASE_URL", settings.database_url)
     monkeypatch.setenv("LOADLINE_NEW_PASSWORD", "a-long-enough-password")
     assert main(["create-user", "Planner", "--role", "editor"]) == 0
-    assert "Created editor 'Planner'" in capsys.readouterr().out
+    assert "Created editor “Planner”" in capsys.readouterr().out
     assert main(["api-token", "Planner"]) == 0
     token = capsys.readouterr().out.strip().splitlines()[-1]
     app = create_app(settings)
@@ -24,7 +24,7 @@ def test_create_user_then_api_token_signs_in(
         assert client.post("/api/v1/teams", json={"name": "Via token"}).status_code == 201
     app.state.engine.dispose()
     assert main(["api-token", "nobody"]) == 2
-    assert "No user named 'nobody'" in capsys.readouterr().err
+    assert "No user named “nobody”" in capsys.readouterr().err
     monkeypatch.setenv("LOADLINE_NEW_PASSWORD", "short")
     assert main(["create-user", "Other"]) == 2
 

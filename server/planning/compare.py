@@ -90,7 +90,7 @@ def parse_plan_ids(raw: Sequence[str]) -> list[int]:
     ids: list[int] = []
     for part in parts:
         if not part.isdigit() or not 1 <= int(part) <= MAX_ID:
-            raise InputError(f"plans: {part!r} is not a plan id.", field="plans")
+            raise InputError(f"plans: “{part}” is not a plan id.", field="plans")
         ids.append(int(part))
     if len(set(ids)) != len(ids):
         raise InputError("plans: each plan may appear only once.", field="plans")

@@ -355,7 +355,7 @@ def _float(line: int, column: str, raw: str, *, required: bool) -> float | None:
     try:
         value = float(text)
     except ValueError:
-        raise _fail(line, column, f"{text!r} is not a number.") from None
+        raise _fail(line, column, f"“{text}” is not a number.") from None
     if value != value or value in (float("inf"), float("-inf")):
         raise _fail(line, column, "must be a finite number.")
     return value
@@ -456,7 +456,7 @@ def parse_plan_csv(text: str) -> ImportedPlan:
         if not key:
             raise _fail(line, "key", "is empty.")
         if key in seen:
-            raise _fail(line, "key", f"{key!r} appears twice.")
+            raise _fail(line, "key", f"“{key}” appears twice.")
         seen.add(key)
         low = _float(line, "low", cell.get("low", ""), required=False)
         likely = _float(line, "likely", cell["likely"], required=True)

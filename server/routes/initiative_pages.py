@@ -50,7 +50,7 @@ def _initiatives_context(session: SessionDep, team_id: int, period: str | None) 
         number = optional_int(period)
         if number is None:
             raise NotFoundError(
-                f"No period {period!r}: choose one from the list, or the backlog.", field="period"
+                f"No period “{period}”: choose one from the list, or the backlog.", field="period"
             )
         period_id = period_store.get_period(session, period_id=number).id or 0
     records = initiative_store.list_initiatives(session, team_id=team_id, period_id=period_id)

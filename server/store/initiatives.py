@@ -29,7 +29,7 @@ from server.selector import check_marks as selector_check_marks
 from server.selector.set_names import SetNames, name_key
 from server.store import audit
 from server.store._common import and_list, first_named, get_or_404
-from server.wording import counted
+from server.wording import counted, quoted
 
 BACKLOG = "backlog"
 
@@ -419,7 +419,7 @@ def _titles(session: Session, ids: Iterable[int]) -> str:
         row.id: row.title
         for row in session.exec(select(Initiative).where(col(Initiative.id).in_(list(ids))))
     }
-    return " -> ".join(repr(rows.get(i, str(i))) for i in ids)
+    return " -> ".join(quoted(rows.get(i, str(i))) for i in ids)
 
 
 def _set_effort(session: Session, db_row: Initiative, team_id: int, effort: EffortIn) -> None:
@@ -800,10 +800,10 @@ def needs_from_outside(session: Session, rows: Sequence[Initiative]) -> list[str
         if not dependants:
             continue
         names = [
-            repr(d.title) + (f" (team {teams[d.team_id]})" if d.team_id in teams else "")
+            quoted(d.title) + (f" (team {teams[d.team_id]})" if d.team_id in teams else "")
             for d in dependants
         ]
-        parts.append(f"{doomed[needed_id].title!r} is needed by {and_list(first_named(names))}")
+        parts.append(f"“{doomed[needed_id].title}” is needed by {and_list(first_named(names))}")
     return parts
 
 

@@ -55,7 +55,7 @@ def get_period(session: Session, *, period_id: int) -> Period:
 def _check_name_free(session: Session, name: str, period_id: int | None) -> None:
     clash = session.exec(select(Period).where(func.lower(Period.name) == name.lower())).first()
     if clash is not None and clash.id != period_id:
-        raise ConflictError(f"A period named {clash.name!r} already exists.", field="name")
+        raise ConflictError(f"A period named “{clash.name}” already exists.", field="name")
 
 
 def _apply(db_period: Period, fields: PeriodFields) -> None:
@@ -89,7 +89,7 @@ def create_period(session: Session, *, period_in: PeriodCreate, actor: str = "")
     )
     _apply(db_period, period_in)
     session.add(db_period)
-    message = f"A period named {period_in.name!r} already exists."
+    message = f"A period named “{period_in.name}” already exists."
     flush_or_conflict(session, message, "name")
     audit.record(
         session,
@@ -229,7 +229,7 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
         steps.append("delete the scenarios")
     if plans:
         uses.append(counted(plans, "saved plan"))
-    message = f"Period {db_period.name!r} still has {and_list(uses)}."
+    message = f"Period “{db_period.name}” still has {and_list(uses)}."
     if steps:
         message += f" To delete it, {and_list(steps)} first."
     if plans:

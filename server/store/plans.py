@@ -41,7 +41,7 @@ from server.store.initiatives import (
 )
 from server.store.periods import get_period
 from server.store.teams import get_team
-from server.wording import counted
+from server.wording import counted, quoted
 
 TOKEN_BYTES = 32
 
@@ -332,7 +332,7 @@ def _refuse_title_clashes(
     clashes = [title for title in titles if title_key(title) in existing]
     if not clashes:
         return
-    named = and_list(first_named([repr(title) for title in clashes], _CLASHES_LISTED))
+    named = and_list(first_named([quoted(title) for title in clashes], _CLASHES_LISTED))
     are = "is already an initiative" if len(clashes) == 1 else "are already initiatives"
     raise InputError(
         f"csv: {counted(len(clashes), 'title')} of the file {are} of {db_team.name} "

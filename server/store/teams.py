@@ -50,7 +50,7 @@ def get_team(session: Session, *, team_id: int) -> Team:
 def _check_name_free(session: Session, name: str, team_id: int | None = None) -> None:
     clash = session.exec(select(Team).where(func.lower(Team.name) == name.lower())).first()
     if clash is not None and clash.id != team_id:
-        raise ConflictError(f"A team named {clash.name!r} already exists.", field="name")
+        raise ConflictError(f"A team named “{clash.name}” already exists.", field="name")
 
 
 def _team_values(db_team: Team) -> dict[str, Any]:
@@ -66,7 +66,7 @@ def create_team(session: Session, *, team_in: TeamCreate, actor: str = "") -> Te
     _check_name_free(session, team_in.name)
     db_team = Team(name=team_in.name, default_spread=team_in.default_spread)
     session.add(db_team)
-    message = f"A team named {team_in.name!r} already exists."
+    message = f"A team named “{team_in.name}” already exists."
     flush_or_conflict(session, message, "name")
     audit.record(
         session,
@@ -156,7 +156,7 @@ def delete_team(
     owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
     if owned and not with_initiatives:
         raise ConflictError(
-            f"Team {db_team.name!r} still has {counted(len(owned), 'initiative')}; delete "
+            f"Team “{db_team.name}” still has {counted(len(owned), 'initiative')}; delete "
             f"{'it' if len(owned) == 1 else 'them'} first or ask to delete "
             f"{'it' if len(owned) == 1 else 'them'} with the team.",
             field="team_id",
@@ -164,7 +164,7 @@ def delete_team(
     held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
     if held:
         raise ConflictError(
-            f"Team {db_team.name!r} cannot be deleted: {'; '.join(held)}. Change those "
+            f"Team “{db_team.name}” cannot be deleted: {'; '.join(held)}. Change those "
             "initiatives first: remove the need, or the team's effort, on their edit pages.",
             field="team_id",
         )
@@ -210,11 +210,11 @@ def _effort_held_by_others(session: Session, db_team: Team) -> list[str]:
         .where(EffortLine.team_id == db_team.id, Initiative.team_id != db_team.id)
         .order_by(func.lower(Team.name), col(Initiative.position), col(Initiative.id))
     )
-    carriers = [f"{row.title!r} (team {owner})" for row, owner in session.exec(query)]
+    carriers = [f"“{row.title}” (team {owner})" for row, owner in session.exec(query)]
     if not carriers:
         return []
     verb = "carries" if len(carriers) == 1 else "carry"
-    return [f"{and_list(first_named(carriers))} {verb} effort for team {db_team.name!r}"]
+    return [f"{and_list(first_named(carriers))} {verb} effort for team “{db_team.name}”"]
 
 
 def list_members(session: Session, *, team_id: int | None = None) -> list[Member]:
@@ -234,7 +234,7 @@ def _check_member_name_free(
     query = select(Member).where(Member.team_id == team_id, func.lower(Member.name) == name.lower())
     clash = session.exec(query).first()
     if clash is not None and clash.id != member_id:
-        raise ConflictError(f"This team already has a member named {clash.name!r}.", field="name")
+        raise ConflictError(f"This team already has a member named “{clash.name}”.", field="name")
 
 
 def _member_values(db_member: Member) -> dict[str, Any]:

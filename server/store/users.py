@@ -57,10 +57,10 @@ def create_user(session: Session, *, username: str, password: str, role: str) ->
     if problem:
         raise InputError(f"password: {problem}", field="password")
     if find_user(session, username=username) is not None:
-        raise ConflictError(f"A user named {username!r} already exists.", field="username")
+        raise ConflictError(f"A user named “{username}” already exists.", field="username")
     db_user = UserAccount(username=username, password_hash=hash_password(password), role=role)
     session.add(db_user)
-    commit_or_conflict(session, f"A user named {username!r} already exists.", "username")
+    commit_or_conflict(session, f"A user named “{username}” already exists.", "username")
     session.refresh(db_user)
     return db_user
 

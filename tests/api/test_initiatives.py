@@ -302,7 +302,7 @@ def test_deleting_a_needed_initiative_is_refused_naming_who_needs_it(
     assert response.status_code == 409
     assert error_fields(response) == ["initiative_id"]
     assert error_text(response) == (
-        "'Quay wall' is needed by 'Crane rail' and 'Beacon on the quay' (team Lighthouse); "
+        "“Quay wall” is needed by “Crane rail” and “Beacon on the quay” (team Lighthouse); "
         "remove it from their needs first."
     )
     assert snapshot() == before  # the needs, versions and audit trail are as they were
@@ -325,8 +325,8 @@ def test_an_initiative_needed_by_many_names_the_first_ten(
     response = client.delete(f"/api/v1/initiatives/{workspace.initiative}")
     assert response.status_code == 409
     message = error_text(response)
-    assert "'Crane rail', 'Bollard 0', " in message
-    assert "'Bollard 8' and 2 more; remove it" in message
+    assert "“Crane rail”, “Bollard 0”, " in message
+    assert "“Bollard 8” and 2 more; remove it" in message
     assert "Bollard 9" not in message
 
 
@@ -349,7 +349,7 @@ def test_initiatives_deleted_together_may_need_each_other(
 ) -> None:
     # Crane rail needs Quay wall: Quay wall alone is refused, both together are deleted.
     before = snapshot()
-    with pytest.raises(ConflictError, match="'Quay wall' is needed by 'Crane rail'"):
+    with pytest.raises(ConflictError, match="“Quay wall” is needed by “Crane rail”"):
         delete_initiatives(session, initiative_ids=[workspace.initiative])
     assert snapshot() == before
     delete_initiatives(session, initiative_ids=[workspace.initiative, workspace.dependant])

@@ -138,7 +138,7 @@ def test_deleting_a_period_in_use_is_refused_and_changes_nothing(
     assert response.status_code == 409
     assert error_fields(response) == ["period_id"]
     message = error_text(response)
-    assert "'Sprint 1' still has 3 initiatives (Harbour 2, Lighthouse 1)" in message
+    assert "“Sprint 1” still has 3 initiatives (Harbour 2, Lighthouse 1)" in message
     assert "1 availability entry" in message
     assert "move the initiatives to another period or to the backlog" in message
     assert snapshot() == before

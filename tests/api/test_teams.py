@@ -109,8 +109,8 @@ def test_a_team_another_team_depends_on_is_kept(
     response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
     assert response.status_code == 409
     message = error_text(response)
-    assert "is needed by 'Beacon on the quay' (team Lighthouse)" in message
-    assert "'Beacon on the quay' (team Lighthouse) carries effort for team 'Harbour'" in message
+    assert "is needed by “Beacon on the quay” (team Lighthouse)" in message
+    assert "“Beacon on the quay” (team Lighthouse) carries effort for team “Harbour”" in message
     assert snapshot() == before
 
     # Without the need, the effort line alone still holds the team.
@@ -120,7 +120,7 @@ def test_a_team_another_team_depends_on_is_kept(
     response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
     assert response.status_code == 409
     assert "is needed by" not in error_text(response)
-    assert "carries effort for team 'Harbour'" in error_text(response)
+    assert "carries effort for team “Harbour”" in error_text(response)
 
     client.patch(
         f"/api/v1/initiatives/{other['id']}",

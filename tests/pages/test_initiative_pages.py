@@ -375,7 +375,7 @@ def test_deleting_a_needed_initiative_through_the_form_shows_why_not(
     page = parse(response.text)
     ids_are_unique_and_labels_point_at_fields(page)
     refusal = Form(page, f"/initiatives/{stored.quay}/delete").errors()
-    assert refusal == ["'Quay wall' is needed by 'Crane rail'; remove it from their needs first."]
+    assert refusal == ["“Quay wall” is needed by “Crane rail”; remove it from their needs first."]
     # The edit form is shown again with the stored values; nothing was changed.
     edit = Form(page, f"/initiatives/{stored.quay}")
     assert (edit.value("title"), edit.value("version")) == ("Quay wall", "1")

@@ -61,7 +61,7 @@ def test_bad_addresses_of_pages_get_pages_not_json(
     assert "No period with id 999" in unknown.text
     letters = form_client.get(f"/teams/{team.id}/initiatives?period=abc")
     assert letters.status_code == 404
-    assert "No period 'abc'" in parse_html(letters.text).text()
+    assert "No period “abc”" in parse_html(letters.text).text()
     # The JSON API keeps its JSON errors.
     api = form_client.get("/api/v1/plans?team_id=abc")
     assert api.status_code == 422

@@ -466,7 +466,7 @@ def test_a_team_another_team_needs_is_kept_with_the_boxes_still_ticked(
     refused = _post(form_client, url, {"confirm": "yes", "with_initiatives": "yes"})
     assert refused.status_code == 409  # type: ignore[attr-defined]
     form = Form(parse(refused.text), url)  # type: ignore[attr-defined]
-    assert "'Quay lights' is needed by 'Beacon' (team Lighthouse)" in form.element.text()
+    assert "“Quay lights” is needed by “Beacon” (team Lighthouse)" in form.element.text()
     assert form.control("with_initiatives").attrs.get("checked") is not None
     assert _team_exists(session, team.id)
 

@@ -144,7 +144,7 @@ def test_undoing_a_creation_that_another_team_now_needs_is_refused(session: Sess
     period = make_period(session)
     quay = make_initiative(session, harbour, period, "Quay wall", 5, 40).row.id or 0
     make_initiative(session, lighthouse, period, "Lamp", 2, 10, needs=[quay])
-    with pytest.raises(ConflictError, match=r"'Quay wall' is needed by 'Lamp' \(team Lighthouse\)"):
+    with pytest.raises(ConflictError, match=r"“Quay wall” is needed by “Lamp” \(team Lighthouse\)"):
         undo_last_change(session, team_id=harbour.id or 0, period_id=period.id)
     assert _fresh(session, quay) is not None
     assert _entries(session, "initiative.undo") == []
@@ -170,7 +170,7 @@ def test_undoing_a_paste_removes_every_row_or_none(
     refused = post_form(form_client, url, {"period_id": str(period.id)}, **HX)
     assert refused.status_code == 409
     notice = parse_html(refused.text).by_id("notice").text()
-    assert "'Pilot boat' is needed by 'Lamp' (team Lighthouse)" in notice
+    assert "“Pilot boat” is needed by “Lamp” (team Lighthouse)" in notice
     # Neither pasted row was deleted, not even the one nothing needs.
     assert _fresh(session, gauge) is not None
     assert _fresh(session, boat) is not None
