@@ -12,6 +12,7 @@ from server.routes.preconditions import (
     CONDITIONAL,
     CONDITIONAL_DELETE,
     TAGGED,
+    TAGGED_CREATED,
     ETagDep,
     IfMatchDep,
     entity_tag,
@@ -42,7 +43,12 @@ def list_periods(session: SessionDep) -> list[PeriodPublic]:
     return [period_public(p) for p in store.list_periods(session)]
 
 
-@router.post("/periods", response_model=PeriodPublic, status_code=status.HTTP_201_CREATED)
+@router.post(
+    "/periods",
+    response_model=PeriodPublic,
+    status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
+)
 def create_period(period_in: PeriodCreate, session: SessionDep, etag: ETagDep) -> PeriodPublic:
     return etag(period_public(store.create_period(session, period_in=period_in)))
 

@@ -28,6 +28,7 @@ from server.routes.preconditions import (
     CONDITIONAL,
     CONDITIONAL_DELETE,
     TAGGED,
+    TAGGED_CREATED,
     ETagDep,
     IfMatchDep,
     entity_tag,
@@ -529,6 +530,7 @@ def _solved(db_scenario: Scenario, session: SessionDep, resolution: float) -> Sc
     "/scenarios",
     response_model=ScenarioSolvedPublic,
     status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
     description="Make a scenario of a team's live plan and solve it.",
 )
 def create_scenario(

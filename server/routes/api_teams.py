@@ -11,6 +11,7 @@ from server.routes.preconditions import (
     CONDITIONAL,
     CONDITIONAL_DELETE,
     TAGGED,
+    TAGGED_CREATED,
     ETagDep,
     IfMatchDep,
     entity_tag,
@@ -58,7 +59,12 @@ def list_teams(session: SessionDep) -> list[TeamPublic]:
     return [_team(t) for t in store.list_teams(session)]
 
 
-@router.post("/teams", response_model=TeamPublic, status_code=status.HTTP_201_CREATED)
+@router.post(
+    "/teams",
+    response_model=TeamPublic,
+    status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
+)
 def create_team(team_in: TeamCreate, session: SessionDep, etag: ETagDep) -> TeamPublic:
     return etag(_team(store.create_team(session, team_in=team_in)))
 
@@ -102,7 +108,12 @@ def list_members(session: SessionDep, team_id: int | None = None) -> list[Member
     return [_member(m) for m in store.list_members(session, team_id=team_id)]
 
 
-@router.post("/members", response_model=MemberPublic, status_code=status.HTTP_201_CREATED)
+@router.post(
+    "/members",
+    response_model=MemberPublic,
+    status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
+)
 def create_member(member_in: MemberCreate, session: SessionDep, etag: ETagDep) -> MemberPublic:
     return etag(_member(store.create_member(session, member_in=member_in)))
 
@@ -141,6 +152,7 @@ def list_availability(
     "/availability",
     response_model=AvailabilityPublic,
     status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
     description="Set a member's days off (and optional allocation) in a period; replaces any "
     "earlier row for the same member and period. Days only: never store a reason.",
 )

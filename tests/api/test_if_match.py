@@ -303,13 +303,22 @@ def test_lists_show_each_rows_etag(client: TestClient, workspace: Workspace) -> 
 
 
 def test_a_created_row_answers_with_its_etag(client: TestClient, workspace: Workspace) -> None:
-    created = client.post("/api/v1/members", json={"team_id": workspace.team, "name": "Kari"})
-    assert created.status_code == 201
-    assert created.headers["etag"] == created.json()["etag"]
-    assert (
-        client.get(f"/api/v1/members/{created.json()['id']}").headers["etag"]
-        == (created.headers["etag"])
-    )
+    sprint = {"kind": "sprint", "start_date": "2027-05-03", "end_date": "2027-05-14"}
+    for path, body in [
+        ("/api/v1/teams", {"name": "Pier"}),
+        ("/api/v1/members", {"team_id": workspace.team, "name": "Kari"}),
+        ("/api/v1/availability", {"member_id": workspace.member, "period_id": workspace.period}),
+        ("/api/v1/periods", {"name": "Sprint 9", **sprint}),
+        (
+            "/api/v1/scenarios",
+            {"name": "Lean", "team_id": workspace.team, "period_id": workspace.period},
+        ),
+    ]:
+        created = client.post(path, json=body)
+        assert created.status_code == 201, path
+        assert created.headers["etag"] == created.json()["etag"], path
+        read = client.get(f"{path}/{created.json()['id']}")
+        assert read.headers["etag"] == created.headers["etag"], path
 
 
 CONDITIONAL_ROUTES = [
@@ -341,3 +350,6 @@ def test_the_api_docs_describe_if_match_412_and_etag(client: TestClient) -> None
             assert "ETag" in operation["responses"]["200"]["headers"], (path, method)
     for path in TAGGED_READS:
         assert "ETag" in spec["paths"][path]["get"]["responses"]["200"]["headers"], path
+    for path in ["/teams", "/members", "/availability", "/periods", "/scenarios"]:
+        created = spec["paths"][f"/api/v1{path}"]["post"]["responses"]["201"]
+        assert "ETag" in created["headers"], path
