@@ -151,15 +151,16 @@ def if_match(
     except StaleVersionError as exc:
         if based_on is None or exc.changed is None:
             raise
-        message = (
-            f"{exc.changed} Nothing was saved: {HEADER} names the values as they were before "
-            f"that change. Read them again and send the new ETag in {HEADER} to apply your "
-            "change over it."
-        )
-        if weak and not based_on:
-            message += (
-                f' {HEADER} held only weak entity tags (W/"..."), which never match a write; '
-                "send the ETag exactly as the answer gave it."
+        if weak and not based_on:  # nothing may have changed: say what was wrong instead
+            message = (
+                f'{HEADER} held only weak entity tags (W/"..."), which never match a write. '
+                "Nothing was saved; send the ETag exactly as the answer gave it, without W/."
+            )
+        else:
+            message = (
+                f"{exc.changed} Nothing was saved: {HEADER} names the values as they were "
+                f"before that change. Read them again and send the new ETag in {HEADER} to "
+                "apply your change over it."
             )
         raise PreconditionFailedError(message, current=exc.current) from exc
 
