@@ -124,7 +124,9 @@ def _add_error_handlers(app: FastAPI) -> None:
             }
             return JSONResponse({"detail": [error]}, status_code=422)
         if _wants_json(request):
-            return JSONResponse({"detail": exc.detail()}, status_code=exc.status_code)
+            return JSONResponse(
+                {"detail": exc.detail()}, status_code=exc.status_code, headers=exc.headers()
+            )
         return request.app.state.templates.TemplateResponse(
             request, "error.html", {"message": exc.message}, status_code=exc.status_code
         )

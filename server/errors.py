@@ -21,6 +21,10 @@ class LoadlineError(Exception):
             body["field"] = self.field
         return body
 
+    def headers(self) -> dict[str, str]:
+        """Response headers that go with the error (none unless a subclass says so)."""
+        return {}
+
 
 class InputError(LoadlineError):
     """A value is not acceptable; `field` names it."""
@@ -41,9 +45,13 @@ class ConflictError(LoadlineError):
 class StaleVersionError(ConflictError):
     """An update was based on an older version; carries the current values."""
 
-    def __init__(self, message: str, *, current: dict[str, Any]) -> None:
+    def __init__(
+        self, message: str, *, current: dict[str, Any], changed: str | None = None
+    ) -> None:
         super().__init__(message, field="version")
         self.current = current
+        # The sentence naming what changed, without a form's advice (refuse_if_changed).
+        self.changed = changed
 
     def detail(self) -> dict[str, Any]:
         return {**super().detail(), "current": self.current}

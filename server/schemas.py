@@ -60,6 +60,13 @@ Weekmask = Annotated[str, StringConstraints(pattern=WEEKMASK)]
 PeriodKind = Literal["sprint", "quarter"]
 InitiativeState = Literal["candidate", "pinned", "ruled_out"]
 INITIATIVE_STATES: tuple[str, ...] = ("candidate", "pinned", "ruled_out")
+ETag = Annotated[
+    str,
+    Field(
+        description="The row's entity tag, as the ETag header sends it (quotes included): "
+        "send it back in If-Match so a write made on these values cannot undo a newer change."
+    ),
+]
 
 
 class _Strict(BaseModel):
@@ -84,6 +91,7 @@ class TeamPublic(BaseModel):
     name: str
     default_spread: float
     created_at: dt.datetime
+    etag: ETag
 
 
 class MemberCreate(_Strict):
@@ -102,6 +110,7 @@ class MemberPublic(BaseModel):
     team_id: int
     name: str
     allocation: float
+    etag: ETag
 
 
 # --- periods and availability --------------------------------------------------------------
@@ -154,6 +163,7 @@ class PeriodPublic(BaseModel):
     weekmask: str
     non_working_dates: list[dt.date]
     working_days: int
+    etag: ETag
 
 
 class AvailabilityCreate(_Strict):
@@ -174,6 +184,7 @@ class AvailabilityPublic(BaseModel):
     period_id: int
     days_off: float
     allocation: float | None
+    etag: ETag
 
 
 class CapacitySettingsIn(_Strict):
@@ -202,6 +213,7 @@ class CapacityPublic(BaseModel):
     reserve_pct: float
     reserve_days: float
     capacity_days: float
+    etag: ETag
 
 
 # --- initiatives ---------------------------------------------------------------------------

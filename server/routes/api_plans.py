@@ -24,8 +24,17 @@ from server.planning.scenarios import (
     solve_scenario,
 )
 from server.planning.snapshots import PlanInputs, PlanResult, drift_of, view_of
+from server.routes.preconditions import (
+    CONDITIONAL,
+    CONDITIONAL_DELETE,
+    TAGGED,
+    TAGGED_CREATED,
+    ETagDep,
+    IfMatchDep,
+    entity_tag,
+)
 from server.routes.responses import ERRORS, ErrorDetail
-from server.schemas import Title
+from server.schemas import ETag, Title
 from server.store import plans as store
 
 Actor = Annotated[str, StringConstraints(strip_whitespace=True, max_length=NAME_MAX)]
@@ -182,6 +191,7 @@ class ScenarioPublic(BaseModel):
     created_at: dt.datetime
     created_by: str
     url: str
+    etag: ETag
 
 
 class ScenarioSolvedPublic(ScenarioPublic):
@@ -269,6 +279,7 @@ def _scenario_public(db_scenario: Scenario) -> ScenarioPublic:
         created_at=db_scenario.created_at,
         created_by=db_scenario.created_by,
         url=f"/scenarios/{db_scenario.id}",
+        etag=entity_tag(store.scenario_fingerprint(db_scenario)),
     )
 
 
@@ -519,10 +530,11 @@ def _solved(db_scenario: Scenario, session: SessionDep, resolution: float) -> Sc
     "/scenarios",
     response_model=ScenarioSolvedPublic,
     status_code=status.HTTP_201_CREATED,
+    responses=TAGGED_CREATED,
     description="Make a scenario of a team's live plan and solve it.",
 )
 def create_scenario(
-    scenario_in: ScenarioCreateIn, session: SessionDep, settings: SettingsDep
+    scenario_in: ScenarioCreateIn, session: SessionDep, settings: SettingsDep, etag: ETagDep
 ) -> ScenarioSolvedPublic:
     check_for_team(
         session,
@@ -538,7 +550,7 @@ def create_scenario(
         changes=scenario_in.changes.to_json(),
         actor=scenario_in.created_by,
     )
-    return _solved(db_scenario, session, settings.resolution_days)
+    return etag(_solved(db_scenario, session, settings.resolution_days))
 
 
 @router.get("/scenarios", response_model=list[ScenarioPublic])
@@ -549,17 +561,29 @@ def list_scenarios(
     return [_scenario_public(s) for s in rows]
 
 
-@router.get("/scenarios/{scenario_id}", response_model=ScenarioSolvedPublic)
+@router.get(
+    "/scenarios/{scenario_id}",
+    response_model=ScenarioSolvedPublic,
+    responses=TAGGED,
+    description="A scenario, solved on today's live data. The ETag is that of the stored "
+    "scenario (name and changes), what PATCH and DELETE check; the solved plans are not in it.",
+)
 def read_scenario(
-    scenario_id: PathId, session: SessionDep, settings: SettingsDep
+    scenario_id: PathId, session: SessionDep, settings: SettingsDep, etag: ETagDep
 ) -> ScenarioSolvedPublic:
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
-    return _solved(db_scenario, session, settings.resolution_days)
+    return etag(_solved(db_scenario, session, settings.resolution_days))
 
 
-@router.patch("/scenarios/{scenario_id}", response_model=ScenarioSolvedPublic)
+@router.patch(
+    "/scenarios/{scenario_id}", response_model=ScenarioSolvedPublic, responses=CONDITIONAL
+)
 def update_scenario(
-    scenario_id: PathId, scenario_in: ScenarioUpdateIn, session: SessionDep, settings: SettingsDep
+    scenario_id: PathId,
+    scenario_in: ScenarioUpdateIn,
+    session: SessionDep,
+    settings: SettingsDep,
+    condition: IfMatchDep,
 ) -> ScenarioSolvedPublic:
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
     if scenario_in.changes is not None:
@@ -574,13 +598,18 @@ def update_scenario(
         scenario_id=scenario_id,
         name=scenario_in.name,
         changes=scenario_in.changes.to_json() if scenario_in.changes is not None else None,
+        based_on=condition.based_on,
     )
-    return _solved(db_scenario, session, settings.resolution_days)
+    return condition(_solved(db_scenario, session, settings.resolution_days))
 
 
-@router.delete("/scenarios/{scenario_id}", status_code=status.HTTP_204_NO_CONTENT)
-def delete_scenario(scenario_id: PathId, session: SessionDep) -> None:
-    store.delete_scenario(session, scenario_id=scenario_id)
+@router.delete(
+    "/scenarios/{scenario_id}",
+    status_code=status.HTTP_204_NO_CONTENT,
+    responses=CONDITIONAL_DELETE,
+)
+def delete_scenario(scenario_id: PathId, session: SessionDep, condition: IfMatchDep) -> None:
+    store.delete_scenario(session, scenario_id=scenario_id, based_on=condition.based_on)
 
 
 @router.post(

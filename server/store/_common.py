@@ -14,6 +14,10 @@ from server.errors import ConflictError, NotFoundError, StaleVersionError
 
 RowT = TypeVar("RowT", bound=SQLModel)
 
+# What an edit is based on: one fingerprint (a form's `based_on`), a set of them (the
+# entity tags of an If-Match header, any of which may match), or None (no condition).
+BasedOn = str | frozenset[str] | None
+
 
 def and_list(parts: Sequence[str]) -> str:
     """'a', 'a and b', 'a, b and c': a list inside a sentence."""
@@ -33,23 +37,26 @@ def fingerprint(values: Mapping[str, Any]) -> str:
     return hashlib.sha256(canonical.encode()).hexdigest()[:16]
 
 
-def refuse_if_changed(
-    based_on: str | None, current: Mapping[str, Any], what: str, now: str
-) -> None:
+def refuse_if_changed(based_on: BasedOn, current: Mapping[str, Any], what: str, now: str) -> None:
     """Refuse an edit made on a form built from values someone has changed since.
 
     Rows without a version column (capacity settings, members, teams, days off, periods,
-    scenarios) are guarded this way: the form carries the fingerprint of what it showed,
-    and a save on top of a newer change is refused instead of silently undoing it. None:
-    the caller sent no fingerprint (the JSON API), so the last write wins as before. `now`
-    says the stored values in words, so the person sees what the colleague changed before
-    saving again.
+    scenarios) are guarded this way: the form carries the fingerprint of what it showed (the
+    JSON API: the entity tags of If-Match), and a save on top of a newer change is refused
+    instead of silently undoing it. None: the caller sent no fingerprint, so the last write
+    wins as before. `now` says the stored values in words, so the person sees what the
+    colleague changed before saving again; the error's `changed` is that sentence alone.
     """
-    if based_on is not None and based_on != fingerprint(current):
+    if based_on is None:
+        return
+    accepted = frozenset({based_on}) if isinstance(based_on, str) else based_on
+    if fingerprint(current) not in accepted:
+        changed = f"{what} changed while you were editing: now {now}."
         raise StaleVersionError(
-            f"{what} changed while you were editing: now {now}. Your values were not saved; "
-            "they are in the form again. Save again to apply them over that change.",
+            f"{changed} Your values were not saved; they are in the form again. Save again to "
+            "apply them over that change.",
             current=dict(current),
+            changed=changed,
         )
 
 

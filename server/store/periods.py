@@ -27,6 +27,7 @@ from server.models import (
 from server.schemas import CapacitySettingsIn, PeriodCreate, PeriodFields, PeriodUpdate
 from server.store import audit
 from server.store._common import (
+    BasedOn,
     and_list,
     commit_or_conflict,
     fingerprint,
@@ -111,17 +112,7 @@ def period_fingerprint(db_period: Period) -> str:
     return fingerprint(period_values(db_period))
 
 
-def update_period(
-    session: Session,
-    *,
-    period_id: int,
-    period_in: PeriodUpdate,
-    actor: str = "",
-    based_on: str | None = None,
-) -> Period:
-    """Merge the change with the stored period and check the whole again; `based_on`: see
-    `refuse_if_changed`."""
-    db_period = get_period(session, period_id=period_id)
+def _refuse_if_period_changed(db_period: Period, based_on: BasedOn) -> None:
     refuse_if_changed(
         based_on,
         period_values(db_period),
@@ -129,6 +120,20 @@ def update_period(
         f"{db_period.start_date} to {db_period.end_date}, "
         f"{counted(period_working_days(db_period), 'working day')}",
     )
+
+
+def update_period(
+    session: Session,
+    *,
+    period_id: int,
+    period_in: PeriodUpdate,
+    actor: str = "",
+    based_on: BasedOn = None,
+) -> Period:
+    """Merge the change with the stored period and check the whole again; `based_on`: see
+    `refuse_if_changed`."""
+    db_period = get_period(session, period_id=period_id)
+    _refuse_if_period_changed(db_period, based_on)
     merged = {
         "name": db_period.name,
         "kind": db_period.kind,
@@ -237,14 +242,18 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
     return message
 
 
-def delete_period(session: Session, *, period_id: int, actor: str = "") -> None:
+def delete_period(
+    session: Session, *, period_id: int, actor: str = "", based_on: BasedOn = None
+) -> None:
     """Delete a period that nothing refers to any more; refuse (ConflictError) otherwise.
 
     The database would otherwise move its initiatives to the backlog, delete its availability
     entries and scenarios and cut saved plans loose from it, without a word. The teams'
-    capacity settings of the period go with it; the audit entry keeps them.
+    capacity settings of the period go with it; the audit entry keeps them. `based_on`: see
+    `refuse_if_changed`.
     """
     db_period = get_period(session, period_id=period_id)
+    _refuse_if_period_changed(db_period, based_on)
     message = _uses_message(session, db_period)
     if message is not None:
         raise ConflictError(message, field="period_id")
@@ -309,7 +318,7 @@ def set_capacity_settings(
     period_id: int,
     settings_in: CapacitySettingsIn,
     actor: str = "",
-    based_on: str | None = None,
+    based_on: BasedOn = None,
 ) -> CapacitySettings:
     """Store the focus factor and reserve; `based_on`: see `refuse_if_changed`."""
     # Unknown ids are a 404, not a foreign-key clash reported as a conflict.

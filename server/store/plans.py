@@ -26,6 +26,7 @@ from server.planning.scenarios import ScenarioChanges
 from server.planning.snapshots import Snapshot
 from server.store import audit
 from server.store._common import (
+    BasedOn,
     and_list,
     fingerprint,
     first_named,
@@ -115,6 +116,16 @@ def scenario_fingerprint(db_scenario: Scenario) -> str:
     return fingerprint({"name": db_scenario.name, "changes": db_scenario.changes})
 
 
+def _refuse_if_scenario_changed(db_scenario: Scenario, based_on: BasedOn) -> None:
+    changed = [name.replace("_", " ") for name in db_scenario.changes]
+    refuse_if_changed(
+        based_on,
+        {"name": db_scenario.name, "changes": db_scenario.changes},
+        f"Scenario “{db_scenario.name}” was",
+        f"changing {and_list(changed)}" if changed else "changing nothing",
+    )
+
+
 def update_scenario(
     session: Session,
     *,
@@ -122,17 +133,12 @@ def update_scenario(
     name: str | None = None,
     changes: dict[str, Any] | None = None,
     actor: str = "",
-    based_on: str | None = None,
+    based_on: BasedOn = None,
 ) -> Scenario:
     """Rename a scenario or replace its changes; `based_on`: see `refuse_if_changed`."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
     before = {"name": db_scenario.name, "changes": db_scenario.changes}
-    refuse_if_changed(
-        based_on,
-        before,
-        f"Scenario “{db_scenario.name}” was",
-        "as shown at the top of this page",
-    )
+    _refuse_if_scenario_changed(db_scenario, based_on)
     if name is not None:
         db_scenario.name = name
     if changes is not None:
@@ -154,8 +160,12 @@ def update_scenario(
     return db_scenario
 
 
-def delete_scenario(session: Session, *, scenario_id: int, actor: str = "") -> None:
+def delete_scenario(
+    session: Session, *, scenario_id: int, actor: str = "", based_on: BasedOn = None
+) -> None:
+    """Delete a scenario; `based_on`: see `refuse_if_changed`."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
+    _refuse_if_scenario_changed(db_scenario, based_on)
     audit.record(
         session,
         actor=actor,

@@ -26,6 +26,7 @@ from server.schemas import (
 )
 from server.store import audit
 from server.store._common import (
+    BasedOn,
     and_list,
     commit_or_conflict,
     fingerprint,
@@ -62,6 +63,15 @@ def team_fingerprint(db_team: Team) -> str:
     return fingerprint(_team_values(db_team))
 
 
+def _refuse_if_team_changed(db_team: Team, based_on: BasedOn) -> None:
+    refuse_if_changed(
+        based_on,
+        _team_values(db_team),
+        "The team's name and spread were",
+        f"“{db_team.name}”, spread {db_team.default_spread * 100:g} %",
+    )
+
+
 def create_team(session: Session, *, team_in: TeamCreate, actor: str = "") -> Team:
     _check_name_free(session, team_in.name)
     db_team = Team(name=team_in.name, default_spread=team_in.default_spread)
@@ -89,16 +99,11 @@ def update_team(
     team_id: int,
     team_in: TeamUpdate,
     actor: str = "",
-    based_on: str | None = None,
+    based_on: BasedOn = None,
 ) -> Team:
     """Rename the team or set its spread; `based_on`: see `refuse_if_changed`."""
     db_team = get_team(session, team_id=team_id)
-    refuse_if_changed(
-        based_on,
-        _team_values(db_team),
-        "The team's name and spread were",
-        f"“{db_team.name}”, spread {db_team.default_spread * 100:g} %",
-    )
+    _refuse_if_team_changed(db_team, based_on)
     changes = team_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_name_free(session, changes["name"], team_id)
@@ -144,15 +149,21 @@ def count_team_scenarios(session: Session, *, team_id: int) -> int:
 
 
 def delete_team(
-    session: Session, *, team_id: int, with_initiatives: bool = False, actor: str = ""
+    session: Session,
+    *,
+    team_id: int,
+    with_initiatives: bool = False,
+    actor: str = "",
+    based_on: BasedOn = None,
 ) -> None:
     """Delete a team; refuse while it owns initiatives unless asked to delete those too.
 
     Refused in any case while another team's initiative needs one of the team's initiatives
     or carries effort for the team: the database would drop that need or effort line from an
-    initiative nobody asked to change.
+    initiative nobody asked to change. `based_on`: see `refuse_if_changed`.
     """
     db_team = get_team(session, team_id=team_id)
+    _refuse_if_team_changed(db_team, based_on)
     owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
     if owned and not with_initiatives:
         raise ConflictError(
@@ -250,6 +261,15 @@ def _share(allocation: float | None) -> str:
     return "the member's usual share" if allocation is None else f"share {allocation * 100:g} %"
 
 
+def _refuse_if_member_changed(db_member: Member, based_on: BasedOn) -> None:
+    refuse_if_changed(
+        based_on,
+        _member_values(db_member),
+        f"{db_member.name}'s name and share were",
+        f"{db_member.name}, {_share(db_member.allocation)}",
+    )
+
+
 def create_member(session: Session, *, member_in: MemberCreate, actor: str = "") -> Member:
     db_team = get_team(session, team_id=member_in.team_id)
     _check_member_name_free(session, member_in.team_id, member_in.name, None)
@@ -279,16 +299,11 @@ def update_member(
     member_id: int,
     member_in: MemberUpdate,
     actor: str = "",
-    based_on: str | None = None,
+    based_on: BasedOn = None,
 ) -> Member:
     """Rename a member or change their share; `based_on`: see `refuse_if_changed`."""
     db_member = get_member(session, member_id=member_id)
-    refuse_if_changed(
-        based_on,
-        _member_values(db_member),
-        f"{db_member.name}'s name and share were",
-        f"{db_member.name}, {_share(db_member.allocation)}",
-    )
+    _refuse_if_member_changed(db_member, based_on)
     changes = member_in.model_dump(exclude_unset=True, exclude_none=True)
     if "name" in changes:
         _check_member_name_free(session, db_member.team_id, changes["name"], member_id)
@@ -321,8 +336,12 @@ def update_member(
     return db_member
 
 
-def delete_member(session: Session, *, member_id: int, actor: str = "") -> None:
+def delete_member(
+    session: Session, *, member_id: int, actor: str = "", based_on: BasedOn = None
+) -> None:
+    """Remove a member and their availability; `based_on`: see `refuse_if_changed`."""
     db_member = get_member(session, member_id=member_id)
+    _refuse_if_member_changed(db_member, based_on)
     team_name = get_team(session, team_id=db_member.team_id).name
     # The database cascades the member's availability; the entry keeps it, as days.
     kept = [
@@ -431,7 +450,7 @@ def set_availability(
     *,
     availability_in: AvailabilityCreate,
     actor: str = "",
-    based_on: str | None = None,
+    based_on: BasedOn = None,
 ) -> Availability:
     """Create or replace a member's availability in a period (one row per member and period);
     `based_on`: see `refuse_if_changed`."""
@@ -473,14 +492,33 @@ def set_availability(
     return db_row
 
 
+def _refuse_if_availability_changed(
+    session: Session, db_row: Availability, based_on: BasedOn
+) -> None:
+    if based_on is None:
+        return  # no condition: no need to read the member and period for the message
+    db_member = get_member(session, member_id=db_row.member_id)
+    period = get_or_404(session, Period, db_row.period_id, "period")
+    values = _availability_values(db_row)
+    refuse_if_changed(
+        based_on,
+        values,
+        f"{db_member.name}'s days off in {period.name} were",
+        _availability_words(values),
+    )
+
+
 def update_availability(
     session: Session,
     *,
     availability_id: int,
     availability_in: AvailabilityUpdate,
     actor: str = "",
+    based_on: BasedOn = None,
 ) -> Availability:
+    """Change a days-off row; `based_on`: see `refuse_if_changed`."""
     db_row = get_availability(session, availability_id=availability_id)
+    _refuse_if_availability_changed(session, db_row, based_on)
     changes = availability_in.model_dump(exclude_unset=True)
     if changes.get("days_off") is not None:
         _check_days_off(
@@ -507,8 +545,12 @@ def update_availability(
     return db_row
 
 
-def delete_availability(session: Session, *, availability_id: int, actor: str = "") -> None:
+def delete_availability(
+    session: Session, *, availability_id: int, actor: str = "", based_on: BasedOn = None
+) -> None:
+    """Clear a days-off row; `based_on`: see `refuse_if_changed`."""
     db_row = get_availability(session, availability_id=availability_id)
+    _refuse_if_availability_changed(session, db_row, based_on)
     _record_availability(
         session,
         action="availability.delete",

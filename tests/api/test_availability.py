@@ -27,16 +27,21 @@ def test_availability_round_trip(client: TestClient, workspace: Workspace) -> No
         "period_id": workspace.period,
         "days_off": 1.5,
         "allocation": None,
+        "etag": created.headers["etag"],
     }
     assert client.get(f"/api/v1/availability/{row['id']}").json() == row
 
     # A share for this period only, then cleared again with null.
     changed = client.patch(f"/api/v1/availability/{row['id']}", json={"allocation": 0.2})
-    assert changed.json() == row | {"allocation": 0.2}
+    assert changed.json() == row | {"allocation": 0.2, "etag": changed.headers["etag"]}
     changed = client.patch(f"/api/v1/availability/{row['id']}", json={"days_off": 3})
-    assert changed.json() == row | {"allocation": 0.2, "days_off": 3}
+    assert changed.json() == row | {
+        "allocation": 0.2,
+        "days_off": 3,
+        "etag": changed.headers["etag"],
+    }
     cleared = client.patch(f"/api/v1/availability/{row['id']}", json={"allocation": None})
-    assert cleared.json() == row | {"days_off": 3}
+    assert cleared.json() == row | {"days_off": 3, "etag": cleared.headers["etag"]}
 
     listed = client.get(
         f"/api/v1/availability?team_id={workspace.team}&period_id={workspace.period}"

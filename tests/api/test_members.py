@@ -22,13 +22,18 @@ def test_member_round_trip(client: TestClient, workspace: Workspace) -> None:
         "team_id": workspace.team,
         "name": "Kari",
         "allocation": 0.5,
+        "etag": created.headers["etag"],
     }
     assert client.get(f"/api/v1/members/{member['id']}").json() == member
 
     updated = client.patch(f"/api/v1/members/{member['id']}", json={"allocation": 0.8})
-    assert updated.json() == member | {"allocation": 0.8}
+    assert updated.json() == member | {"allocation": 0.8, "etag": updated.headers["etag"]}
     renamed = client.patch(f"/api/v1/members/{member['id']}", json={"name": "Kari N."})
-    assert renamed.json() == member | {"allocation": 0.8, "name": "Kari N."}
+    assert renamed.json() == member | {
+        "allocation": 0.8,
+        "name": "Kari N.",
+        "etag": renamed.headers["etag"],
+    }
 
     client.post("/api/v1/members", json={"team_id": workspace.other_team, "name": "Sol"})
     mine = client.get(f"/api/v1/members?team_id={workspace.team}").json()

@@ -32,7 +32,11 @@ def test_period_round_trip(client: TestClient) -> None:
     # Moving the end one week on adds five weekdays; the working days follow.
     moved = client.patch(f"/api/v1/periods/{period['id']}", json={"end_date": "2027-04-02"})
     assert moved.status_code == 200
-    assert moved.json() == period | {"end_date": "2027-04-02", "working_days": 13}
+    assert moved.json() == period | {
+        "end_date": "2027-04-02",
+        "working_days": 13,
+        "etag": moved.headers["etag"],
+    }
     # A four-day week: Monday to Thursday over the three weeks is 12, minus the Tuesday
     # non-working date 16 March (19 March is a Friday, already off) gives 11.
     four_days = client.patch(f"/api/v1/periods/{period['id']}", json={"weekmask": "1111000"})

@@ -22,7 +22,7 @@ def test_team_round_trip(client: TestClient) -> None:
 
     updated = client.patch(f"/api/v1/teams/{team['id']}", json={"name": "Harbour Works"})
     assert updated.status_code == 200
-    assert updated.json() == team | {"name": "Harbour Works"}
+    assert updated.json() == team | {"name": "Harbour Works", "etag": updated.headers["etag"]}
     assert client.get(f"/api/v1/teams/{team['id']}").json()["name"] == "Harbour Works"
 
     client.post("/api/v1/teams", json={"name": "anchor"})

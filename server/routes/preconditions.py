@@ -1,0 +1,196 @@
+"""Lost-update protection on the JSON API: ETag and If-Match (RFC 9110, sections 8.8.3, 13.1.1).
+
+Rows without a version column (teams, members, days-off rows, periods, scenarios and a team's
+capacity settings in a period) answer a single-row GET and every successful write with an
+`ETag`: the row's fingerprint (`store._common.fingerprint`, the digest the pages send back as
+`based_on`) as a strong entity tag. A write may send it back in `If-Match`; the store then
+refuses the write when the row has changed since (`refuse_if_changed`), and `if_match` turns
+that refusal into 412 Precondition Failed, naming the stored values and carrying their ETag.
+No If-Match, or `If-Match: *`, writes without a condition, as before.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterator
+from typing import Annotated, Any, Protocol, TypeVar
+
+from fastapi import Depends, Header, Request, Response
+from pydantic import BaseModel
+from sqlmodel import SQLModel
+
+from server.errors import LoadlineError, StaleVersionError
+from server.routes.responses import ErrorBody, ErrorDetail
+from server.store._common import fingerprint
+
+HEADER = "If-Match"
+_ENTITY_TAG = re.compile(r'(W/)?"([\x21\x23-\x7e\x80-\xff]*)"')
+_SHOWN_CHARS = 60
+
+IF_MATCH_HELP = (
+    "The ETag you read (quotes included), so the write is refused with 412 if someone "
+    "changed the row since. Several tags may be listed, comma-separated; `*` or no header "
+    "writes without a condition (the last write wins). Clients should send it."
+)
+ETAG_HELP = "The row's entity tag: a fingerprint of its stored values. Send it back in If-Match."
+
+
+class _Tagged(Protocol):
+    etag: str
+
+
+TaggedT = TypeVar("TaggedT", bound=_Tagged)
+PublicT = TypeVar("PublicT", bound=BaseModel)
+
+
+def entity_tag(row_fingerprint: str) -> str:
+    """A store fingerprint as a strong entity tag, as the ETag header and `etag` fields show."""
+    return f'"{row_fingerprint}"'
+
+
+def tagged_public(model: type[PublicT], row: SQLModel, row_fingerprint: str) -> PublicT:
+    """The row's public shape with its `etag`."""
+    return model.model_validate({**row.model_dump(), "etag": entity_tag(row_fingerprint)})
+
+
+class BadIfMatchError(LoadlineError):
+    """The If-Match header cannot be read."""
+
+    status_code = 400
+
+    def __init__(self, value: str, problem: str) -> None:
+        shown = value if len(value) <= _SHOWN_CHARS else f"{value[:_SHOWN_CHARS]}…"
+        super().__init__(
+            f"{HEADER}: {problem}; expected * or entity tags in double quotes as the ETag "
+            f'header sends them, such as "0123456789abcdef", got {shown!r}.',
+            field=HEADER,
+        )
+
+
+class PreconditionFailedError(StaleVersionError):
+    """If-Match names values that are no longer stored (412); carries the stored ones."""
+
+    status_code = 412
+
+    def __init__(self, message: str, *, current: dict[str, Any]) -> None:
+        super().__init__(message, current=current)
+        self.field = HEADER
+
+    def headers(self) -> dict[str, str]:
+        return {"ETag": entity_tag(fingerprint(self.current))}
+
+
+def parse_if_match(values: list[str]) -> tuple[frozenset[str] | None, bool]:
+    """The strong tags an If-Match asks for (None: no condition) and whether it held weak ones.
+
+    Weak tags (W/"...") are valid but never match a write: If-Match compares strongly.
+    """
+    if not values:
+        return None, False
+    text = ", ".join(values)
+    if text.strip(" \t") == "*":
+        return None, False
+    strong: set[str] = set()
+    weak = False
+    pos = 0
+    while pos < len(text):
+        if text[pos] in " \t,":
+            pos += 1
+            continue
+        found = _ENTITY_TAG.match(text, pos)
+        if found is None:
+            problem = "* must stand alone" if text[pos] == "*" else "not an entity tag"
+            raise BadIfMatchError(text, problem)
+        if found.group(1):
+            weak = True
+        else:
+            strong.add(found.group(2))
+        pos = found.end()
+        rest = text[pos:].lstrip(" \t")
+        if rest and not rest.startswith(","):
+            raise BadIfMatchError(text, "entity tags must be separated by commas")
+    if not strong and not weak:
+        raise BadIfMatchError(text, "no entity tag")
+    return frozenset(strong), weak
+
+
+class ETagged:
+    """Sets the ETag header of a successful answer from the row it answers with."""
+
+    def __init__(self, response: Response) -> None:
+        self._response = response
+
+    def __call__(self, body: TaggedT) -> TaggedT:
+        self._response.headers["ETag"] = body.etag
+        return body
+
+
+class Precondition(ETagged):
+    """A write's If-Match: `based_on` goes to the store (None: no condition)."""
+
+    def __init__(self, response: Response, based_on: frozenset[str] | None, weak: bool) -> None:
+        super().__init__(response)
+        self.based_on = based_on
+        self.weak = weak
+
+
+def etagged(response: Response) -> ETagged:
+    return ETagged(response)
+
+
+def if_match(
+    request: Request,
+    response: Response,
+    if_match_header: Annotated[str | None, Header(alias=HEADER, description=IF_MATCH_HELP)] = None,
+) -> Iterator[Precondition]:
+    """The If-Match of a write; the store's refusal of a stale one becomes 412."""
+    based_on, weak = parse_if_match(request.headers.getlist(HEADER))
+    precondition = Precondition(response, based_on, weak)
+    try:
+        yield precondition
+    except StaleVersionError as exc:
+        if based_on is None or exc.changed is None:
+            raise
+        if weak and not based_on:  # nothing may have changed: say what was wrong instead
+            message = (
+                f'{HEADER} held only weak entity tags (W/"..."), which never match a write. '
+                "Nothing was saved; send the ETag exactly as the answer gave it, without W/."
+            )
+        else:
+            message = (
+                f"{exc.changed} Nothing was saved: {HEADER} names the values as they were "
+                f"before that change. Read them again and send the new ETag in {HEADER} to "
+                "apply your change over it."
+            )
+        raise PreconditionFailedError(message, current=exc.current) from exc
+
+
+ETagDep = Annotated[ETagged, Depends(etagged)]
+IfMatchDep = Annotated[Precondition, Depends(if_match)]
+
+
+class BadRequestBody(BaseModel):
+    """A malformed If-Match (a message naming the header), or a body that cannot be read."""
+
+    detail: ErrorDetail | str
+
+
+_ETAG_HEADER = {"ETag": {"description": ETAG_HELP, "schema": {"type": "string"}}}
+_PRECONDITION_ERRORS: dict[int | str, dict[str, Any]] = {
+    400: {
+        "model": BadRequestBody,
+        "description": f"The {HEADER} header is malformed (detail.field is {HEADER}), or the "
+        "body could not be read.",
+    },
+    412: {
+        "model": ErrorBody,
+        "description": f"Precondition Failed: the row changed since the ETag sent in {HEADER}. "
+        "Nothing was stored; detail.current holds the stored values and the ETag header their "
+        "tag.",
+    },
+}
+
+TAGGED: dict[int | str, dict[str, Any]] = {200: {"headers": _ETAG_HEADER}}
+TAGGED_CREATED: dict[int | str, dict[str, Any]] = {201: {"headers": _ETAG_HEADER}}
+CONDITIONAL: dict[int | str, dict[str, Any]] = {**TAGGED, **_PRECONDITION_ERRORS}
+CONDITIONAL_DELETE: dict[int | str, dict[str, Any]] = dict(_PRECONDITION_ERRORS)
