@@ -41,10 +41,14 @@ def test_home_lists_the_demo_teams_and_periods(client: TestClient, app: FastAPI)
     for name in demo.TEAMS:
         assert links[name].startswith("/teams/")
     rows = {
-        row.find("td").text(): [cell.text() for cell in row.find_all("td")]
+        row.find("td").find("a").text(): [cell.text() for cell in row.find_all("td")]
         for row in page.find("table").find_all("tr")[1:]
     }
     assert set(rows) == {demo.QUARTER} | {f"Sprint 27.{n}" for n in range(1, 7)}
+    # Each period's name leads to its overview of every team's plan, which it used not to.
+    overview = links[demo.QUARTER]
+    assert overview.endswith("/overview")
+    assert demo.QUARTER in parse(client.get(overview).text).find("h1").text()
     # The quarter: 13 weeks of 5 weekdays minus two company days off (counted on a calendar).
     assert rows[demo.QUARTER][1] == "quarter"
     assert rows[demo.QUARTER][-1] == "63"
