@@ -8,20 +8,9 @@ from fastapi.templating import Jinja2Templates
 from jinja2 import pass_context
 
 from server.access import allowed
-from server.wording import counted
+from server.wording import counted, day_word, days, in_days
 
 STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
-
-
-def days(value: float | None) -> str:
-    """Show person-days with at most one decimal: 12, 12.5; below 0.05 but not 0, "< 0.1"
-    (an effort of 0.01 day shown as "0" would read as no effort at all)."""
-    if value is None:
-        return "–"
-    rounded = round(float(value), 1)
-    if rounded == 0 and value != 0:
-        return "< 0.1" if value > 0 else "> −0.1"
-    return f"{rounded:g}" if abs(rounded) < 1e6 else f"{rounded:,.0f}"
 
 
 def number(value: float | None) -> str:
@@ -93,6 +82,8 @@ def may(context: Any, path: str, method: str = "POST") -> bool:
 def configure_templates(templates: Jinja2Templates) -> None:
     env = templates.env
     env.filters["days"] = days
+    env.filters["day_word"] = day_word
+    env.filters["in_days"] = in_days
     env.filters["number"] = number
     env.filters["percent"] = percent
     env.filters["share_percent"] = share_percent

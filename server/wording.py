@@ -1,6 +1,11 @@
-"""Wording shared by messages and pages: counts with their noun, names in quotes."""
+"""Wording shared by messages and pages: counts with their noun, days with their unit, names
+in quotes."""
 
 from __future__ import annotations
+
+from decimal import ROUND_HALF_UP, Decimal
+
+_HUNDREDTH = Decimal("0.01")
 
 
 def counted(count: int, singular: str, plural: str | None = None) -> str:
@@ -15,3 +20,27 @@ def counted(count: int, singular: str, plural: str | None = None) -> str:
 def quoted(name: object) -> str:
     """A name inside a sentence, in the curly quotes the pages use: “Quay wall”."""
     return f"“{name}”"
+
+
+def days(value: float | None) -> str:
+    """Show person-days with at most two decimals: 12, 12.5, 0.25 (a quarter-day step shown
+    as 0.2 would misstate it); below 0.005 but not 0, "< 0.01" (an effort shown as "0" would
+    read as no effort at all)."""
+    if value is None:
+        return "–"
+    # Half up from the value as ten significant digits, so 7.735 computed as 7.734999... shows
+    # as 7.74, the figure worked by hand, not 7.73.
+    rounded = float(Decimal(f"{float(value):.10g}").quantize(_HUNDREDTH, ROUND_HALF_UP))
+    if rounded == 0 and value != 0:
+        return "< 0.01" if value > 0 else "> −0.01"
+    return f"{rounded:g}" if abs(rounded) < 1e6 else f"{rounded:,.0f}"
+
+
+def day_word(value: float | None) -> str:
+    """The unit after a number of days as `days` shows it: "1 day", "0.5 days", "2 days"."""
+    return "day" if value is not None and days(value) == "1" else "days"
+
+
+def in_days(value: float | None) -> str:
+    """A number of days with its unit: "1 day", "12.5 days"."""
+    return f"{days(value)} {day_word(value)}"

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from server.templating import audit_value, days, form_number, share_percent
+from server.templating import audit_value, day_word, days, form_number, in_days, share_percent
 
 
 @pytest.mark.parametrize(
@@ -14,16 +14,28 @@ from server.templating import audit_value, days, form_number, share_percent
         (0, "0"),
         (12, "12"),
         (12.5, "12.5"),
-        (12.04, "12"),
-        (0.01, "< 0.1"),  # not "0": it is some effort
-        (-0.01, "> −0.1"),
+        (12.04, "12.04"),
+        (12.001, "12"),
+        (0.25, "0.25"),  # a quarter-day step, not "0.2"
+        (0.7 * 13 * 0.85, "7.74"),  # 7.735 by hand, 7.734999... in floats
+        (1.365, "1.37"),
+        (0.004, "< 0.01"),  # not "0": it is some effort
+        (-0.004, "> −0.01"),
         (2_500_000, "2,500,000"),
     ],
 )
-def test_days_show_one_decimal_and_never_hide_a_small_effort(
+def test_days_show_two_decimals_and_never_hide_a_small_effort(
     value: float | None, shown: str
 ) -> None:
     assert days(value) == shown
+
+
+@pytest.mark.parametrize(
+    ("value", "shown"), [(1, "1 day"), (1.001, "1 day"), (0.5, "0.5 days"), (2, "2 days")]
+)
+def test_a_number_of_days_takes_the_unit_in_the_right_number(value: float, shown: str) -> None:
+    assert in_days(value) == shown
+    assert shown.endswith(day_word(value))
 
 
 @pytest.mark.parametrize(

@@ -37,6 +37,7 @@ from server.planning.scenarios import MAX_CAPACITY_DAYS, MIN_CAPACITY_DAYS
 from server.planning.snapshots import PlanView, view_of
 from server.schemas import EffortIn, InitiativeCreate
 from server.validation import field_and_message
+from server.wording import days, in_days
 
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 MAX_IMPORT_ROWS = 2000
@@ -200,7 +201,7 @@ def md(text: object) -> str:
 
 
 def _d(value: float | None) -> str:
-    return "–" if value is None else f"{round(value, 1):g}"
+    return days(value)
 
 
 def _pct(value: float | None) -> str:
@@ -228,7 +229,7 @@ def plan_markdown(db_plan: SavedPlan) -> str:
         f"{_stamp(db_plan)} UTC" + (f" by {md(db_plan.created_by)}" if db_plan.created_by else ""),
         "",
         f"- Value: **{_d(r.value)}**",
-        f"- Effort: {_d(r.effort)} of {_d(r.capacity)} days (headroom {_d(r.headroom)} days, "
+        f"- Effort: {_d(r.effort)} of {_d(r.capacity)} days (headroom {in_days(r.headroom)}, "
         f"utilisation {_pct(r.utilisation)})",
         f"- Planned at: {_level(r.confidence)}",
         f"- Chance the chosen work fits: {md(r.fit.label) if r.fit else 'not estimated'}",

@@ -42,7 +42,7 @@ from server.selector.risk import (
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period
 from server.store.teams import get_team
-from server.wording import counted
+from server.wording import counted, in_days
 
 FIT_DRAWS = 10_000
 # In the warning about rounding; stored plans' pages find it by this and say it once, their way.
@@ -349,9 +349,10 @@ def _kept_out_by_rounding(
         and row.effort_days <= selection.headroom + 1e-9
     ]
     return [
-        f"“{row.title}” ({row.effort_days:g} days) would fit in the {selection.headroom:g} days "
-        f"of headroom, but the plan counts in whole {resolution:g}-day steps (each effort "
-        "rounded up, the capacity down), so it does not fit there. A finer step (the "
+        f"“{row.title}” ({in_days(row.effort_days)}) would fit in the "
+        f"{in_days(selection.headroom)} of headroom, but the plan counts in whole "
+        f"{resolution:g}-day steps (each effort rounded up, the capacity down), so it does not "
+        "fit there. A finer step (the "
         "LOADLINE_RESOLUTION setting) plans closer to the days entered."
         for row in fitting
     ]

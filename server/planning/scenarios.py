@@ -31,6 +31,7 @@ from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
 from server.store.teams import get_team, list_members
 from server.validation import parse_form
+from server.wording import in_days
 
 MAX_CAPACITY_DAYS = 100_000.0
 MAX_FORCED = 500
@@ -228,7 +229,7 @@ class ChangedInput:
 
 
 def _days(value: float) -> str:
-    return f"{round(value, 2):g} days"
+    return in_days(value)
 
 
 def _level(confidence: float | None) -> str:

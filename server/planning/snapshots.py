@@ -36,6 +36,7 @@ from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
 from server.store.teams import get_team, list_members
+from server.wording import in_days
 
 SNAPSHOT_FORMAT = 1
 
@@ -688,7 +689,7 @@ def _capacity_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange]:
                     None,
                     None,
                     m.name,
-                    f"Member {m.name} joined ({_n(m.contributed_days)} days)",
+                    f"Member {m.name} joined ({in_days(m.contributed_days)})",
                 )
             )
     return out
@@ -787,7 +788,7 @@ def _initiative_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange
                     None,
                     None,
                     after.title,
-                    f"“{after.title}” was added ({_n(after.planned_effort)} days, value "
+                    f"“{after.title}” was added ({in_days(after.planned_effort)}, value "
                     f"{_n(after.value)})",
                 )
             )

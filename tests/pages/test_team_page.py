@@ -73,15 +73,15 @@ def test_team_page_shows_members_availability_and_capacity(client: TestClient, t
     )
 
     # Worked by hand: (10 - 2) x 1 = 8 and (10 - 0) x 0.5 = 5; 13 x 0.7 = 9.1;
-    # reserve 15 % = 1.365 (shown 1.4); capacity 7.735 (shown 7.7).
+    # reserve 15 % = 1.365 (shown 1.37); capacity 7.735 (shown 7.74).
     breakdown = _breakdown(page)
     assert breakdown["Working days in the period"] == "10"
     assert breakdown["Ola: (10 − 2 days off) × 100 %"] == "8"
     assert breakdown["Kari: (10 − 0 days off) × 50 %"] == "5"
     assert breakdown["Available person-days"] == "13"
     assert breakdown["× focus factor 0.7"] == "9.1"
-    assert breakdown["− reserve 15 %"] == "1.4"
-    assert breakdown["Capacity for planned work"] == "7.7 days"
+    assert breakdown["− reserve 15 %"] == "1.37"
+    assert breakdown["Capacity for planned work"] == "7.74 days"
     settings = Form(page, f"/teams/{team.id}/capacity")
     assert (settings.value("focus_factor"), settings.value("reserve_pct")) == ("0.7", "15")
     ids_are_unique_and_labels_point_at_fields(page)
@@ -110,9 +110,9 @@ def test_setting_days_off_through_the_form(
     response = _post(form_client, url, data)
     assert response.status_code == 303  # type: ignore[attr-defined]
     assert _days_off(session, team.ola) == [3]
-    # (7 + 5) x 0.7 = 8.4; reserve 15 % = 1.26; capacity 7.14 (shown 7.1).
+    # (7 + 5) x 0.7 = 8.4; reserve 15 % = 1.26; capacity 7.14.
     page = parse(form_client.get(response.headers["location"]).text)  # type: ignore[attr-defined]
-    assert _breakdown(page)["Capacity for planned work"] == "7.1 days"
+    assert _breakdown(page)["Capacity for planned work"] == "7.14 days"
 
 
 @pytest.mark.parametrize(
@@ -208,8 +208,8 @@ def test_adding_a_member_through_the_form(
     eli = session.exec(select(Member).where(Member.name == "Eli")).one()
     assert eli.allocation == 0.6
     page = parse(form_client.get(f"/teams/{team.id}").text)
-    # Eli adds 10 x 0.6 = 6 person-days: (13 + 6) x 0.7 x 0.85 = 11.305 (shown 11.3).
-    assert _breakdown(page)["Capacity for planned work"] == "11.3 days"
+    # Eli adds 10 x 0.6 = 6 person-days: (13 + 6) x 0.7 x 0.85 = 11.305 (shown 11.31).
+    assert _breakdown(page)["Capacity for planned work"] == "11.31 days"
 
 
 @pytest.mark.parametrize(
@@ -250,10 +250,10 @@ def test_setting_focus_factor_and_reserve(
     response = _post(form_client, f"/teams/{team.id}/capacity", data)
     assert response.status_code == 303  # type: ignore[attr-defined]
     page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
-    # 13 x 0.8 = 10.4; reserve 10 % = 1.04; capacity 9.36 (shown 9.4).
+    # 13 x 0.8 = 10.4; reserve 10 % = 1.04; capacity 9.36.
     breakdown = _breakdown(page)
     assert breakdown["× focus factor 0.8"] == "10.4"
-    assert breakdown["Capacity for planned work"] == "9.4 days"
+    assert breakdown["Capacity for planned work"] == "9.36 days"
 
 
 @pytest.mark.parametrize(

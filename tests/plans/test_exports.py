@@ -264,8 +264,8 @@ def test_importing_a_plan_where_its_titles_already_are_is_refused(
     assert error_fields(again) == ["csv"]
     assert error_text(again) == (
         "csv: 6 titles of the file are already initiatives of Harbour in Sprint of Harbour: "
-        "'Route search', 'Stop alerts', 'Fare capping', 'Depot dashboard', 'Offline "
-        "timetable' and 1 more. Nothing was imported; import into another period or team, or "
+        "“Route search”, “Stop alerts”, “Fare capping”, “Depot dashboard”, “Offline "
+        "timetable” and 1 more. Nothing was imported; import into another period or team, or "
         "rename or remove those initiatives first."
     )
     assert read_snapshot(app.state.engine) == before  # no initiative, scenario or audit entry
@@ -300,7 +300,7 @@ def test_import_titles_clash_ignoring_case_and_spaces(
     )
     assert response.status_code == 422, response.text
     assert "2 titles of the file are already initiatives of Lighthouse" in error_text(response)
-    assert ": 'Stop alerts' and 'Fare capping'. Nothing was imported" in error_text(response)
+    assert ": “Stop alerts” and “Fare capping”. Nothing was imported" in error_text(response)
     assert counts(session) == before
 
 
