@@ -11,11 +11,25 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from sqlalchemy import JSON, Column, ForeignKey, Integer, UniqueConstraint, false
+from sqlalchemy import (
+    JSON,
+    Column,
+    ForeignKey,
+    Index,
+    Integer,
+    UniqueConstraint,
+    event,
+    false,
+    text,
+)
 from sqlmodel import Field, SQLModel
+
+from server.selector.set_names import name_key
 
 NAME_MAX = 80
 TITLE_MAX = 200
+# Case folding can lengthen a title ("ß" -> "ss", at most three characters for one).
+TITLE_KEY_MAX = 3 * TITLE_MAX
 NOTES_MAX = 4000
 
 
@@ -94,8 +108,25 @@ class CapacitySettings(SQLModel, table=True):
 _initiative_version = Column("version", Integer, nullable=False, default=1)
 
 
+# No scheduled or backlog row of a team repeats a title_key in its period: the database
+# refuses the second of two writers that both passed the store's check. A NULL period_id
+# (the backlog) never equals another in a unique index, so the backlog has its own index.
+_BACKLOG_ONLY = text("period_id IS NULL")
+
+
 class Initiative(SQLModel, table=True):
     __mapper_args__ = {"version_id_col": _initiative_version}
+    __table_args__ = (
+        Index("uq_initiative_title_key", "team_id", "period_id", "title_key", unique=True),
+        Index(
+            "uq_initiative_backlog_title_key",
+            "team_id",
+            "title_key",
+            unique=True,
+            sqlite_where=_BACKLOG_ONLY,
+            postgresql_where=_BACKLOG_ONLY,
+        ),
+    )
 
     id: int | None = Field(default=None, primary_key=True)
     # The team that owns the initiative; effort lines may name other teams too.
@@ -103,6 +134,10 @@ class Initiative(SQLModel, table=True):
     # None: unscheduled backlog.
     period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
     title: str = Field(max_length=TITLE_MAX)
+    # name_key(title), kept by the listener below whenever title is set (no default, so the
+    # constructor does not overwrite it after setting title); rows written past the ORM
+    # (workspace restore) compute it themselves.
+    title_key: str = Field(max_length=TITLE_KEY_MAX)
     notes: str = Field(default="", max_length=NOTES_MAX)
     value: float
     confidence: float | None = Field(default=None)  # 0 < confidence <= 1, optional
@@ -113,6 +148,11 @@ class Initiative(SQLModel, table=True):
     version: int = Field(default=1, sa_column=_initiative_version)
     created_at: dt.datetime = Field(default_factory=utcnow)
     updated_at: dt.datetime = Field(default_factory=utcnow)
+
+
+@event.listens_for(Initiative.title, "set")
+def _keep_title_key(target: Initiative, value: str, _old: object, _initiator: object) -> None:
+    target.title_key = name_key(value)
 
 
 class EffortLine(SQLModel, table=True):
