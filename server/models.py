@@ -85,7 +85,8 @@ class Availability(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     member_id: int = _fk("member.id", "CASCADE")
-    period_id: int = _fk("period.id", "CASCADE")
+    # RESTRICT: a period is deleted only once nothing refers to it (store.periods.delete_period).
+    period_id: int = _fk("period.id", "RESTRICT")
     days_off: float = Field(default=0.0)
     allocation: float | None = Field(default=None)
 
@@ -131,8 +132,8 @@ class Initiative(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     # The team that owns the initiative; effort lines may name other teams too.
     team_id: int = _fk("team.id", "RESTRICT")
-    # None: unscheduled backlog.
-    period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
+    # None: unscheduled backlog. RESTRICT: a period with initiatives is not deleted.
+    period_id: int | None = _fk("period.id", "RESTRICT", nullable=True)
     title: str = Field(max_length=TITLE_MAX)
     # name_key(title), kept by the listener below whenever title is set (no default, so the
     # constructor does not overwrite it after setting title); rows written past the ORM
@@ -163,7 +164,8 @@ class EffortLine(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     initiative_id: int = _fk("initiative.id", "CASCADE")
-    team_id: int = _fk("team.id", "CASCADE")
+    # RESTRICT: a team is not deleted while another team's initiative carries effort for it.
+    team_id: int = _fk("team.id", "RESTRICT")
     likely: float
     low: float | None = Field(default=None)
     high: float | None = Field(default=None)
@@ -177,7 +179,9 @@ class Need(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     initiative_id: int = _fk("initiative.id", "CASCADE")
-    needed_id: int = _fk("initiative.id", "CASCADE")
+    # RESTRICT: a needed initiative is not deleted while its dependant stays (needs among
+    # initiatives deleted together are deleted first, by the store).
+    needed_id: int = _fk("initiative.id", "RESTRICT")
 
 
 # --- saved plans, scenarios and published links -------------------------------------------
@@ -189,7 +193,7 @@ class Scenario(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)
     team_id: int = _fk("team.id", "CASCADE")
-    period_id: int = _fk("period.id", "CASCADE")
+    period_id: int = _fk("period.id", "RESTRICT")
     # The what-if settings, as planning.plans.PlanOptions fields (JSON-ready).
     changes: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))
     created_at: dt.datetime = Field(default_factory=utcnow)
@@ -204,7 +208,8 @@ class SavedPlan(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)
     # Kept for listing; the snapshot itself holds names, so deleting a team keeps the plan.
-    period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
+    # RESTRICT: saved plans are never changed, so the period they refer to is kept.
+    period_id: int | None = _fk("period.id", "RESTRICT", nullable=True)
     team_ids: list[int] = Field(default_factory=list, sa_column=Column(JSON, nullable=False))
     scenario_changes: dict[str, Any] = Field(
         default_factory=dict, sa_column=Column(JSON, nullable=False)

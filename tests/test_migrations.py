@@ -115,7 +115,7 @@ def test_the_comparison_notices_a_column_the_models_do_not_have(settings: Settin
     assert [(d[0], d[3].name) for d in differences] == [("remove_column", "stray_column")]
 
 
-# --- 0003 title keys ---------------------------------------------------
+# --- 0003 title keys, 0004 restricted deletes ---------------------------------------------------
 
 LONG = "L" * 199 + "x"  # 200 characters, the longest title
 
@@ -223,7 +223,7 @@ def test_0003_parts_existing_twins_and_loses_nothing(empty_settings: Settings) -
     assert _revision(empty_settings) == _head()
 
 
-def test_the_title_indexes_refuse_what_the_store_refuses(
+def test_the_title_indexes_and_restricted_deletes_refuse_what_the_store_refuses(
     empty_settings: Settings,
 ) -> None:
     migrate.upgrade(empty_settings, "0002")
@@ -237,6 +237,9 @@ def test_the_title_indexes_refuse_what_the_store_refuses(
         "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, state, "
         "position, version, created_at, updated_at) VALUES (1, NULL, 'x', 'fare capping', '', 1, "
         "'candidate', 99, 1, '2026-01-01', '2026-01-01')",
+        "DELETE FROM period WHERE id = 1",  # initiatives are in it
+        "DELETE FROM initiative WHERE id = 1",  # 2 needs it
+        "DELETE FROM team WHERE id = 2",  # owns initiative 7
     ]
     for statement in refused:
         with pytest.raises(IntegrityError), engine.begin() as conn:

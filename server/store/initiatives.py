@@ -7,7 +7,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from sqlalchemy import Select, insert
+from sqlalchemy import Select, delete, insert
 from sqlalchemy import inspect as sa_inspect
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import make_transient_to_detached
@@ -898,16 +898,57 @@ def needs_from_outside(session: Session, rows: Sequence[Initiative]) -> list[str
     return parts
 
 
+def delete_needs_among(session: Session, initiative_ids: Iterable[int]) -> None:
+    """Delete the needs between these initiatives, before the initiatives themselves.
+
+    A need's needed_id is ON DELETE RESTRICT: the database refuses to delete an initiative
+    that another one needs. Rows deleted together may need each other; those needs go first.
+    A need from outside the rows is left, so the database refuses one that another writer
+    added after the store's check.
+    """
+    ids = sorted(set(initiative_ids))
+    doomed = set(ids)
+    among: list[int] = []
+    for start in range(0, len(ids), _IN_CHUNK):
+        query = select(Need.id, Need.initiative_id).where(
+            col(Need.needed_id).in_(ids[start : start + _IN_CHUNK])
+        )
+        among.extend(need_id for need_id, dependant in session.exec(query) if dependant in doomed)
+    for start in range(0, len(among), _IN_CHUNK):
+        session.exec(delete(Need).where(col(Need.id).in_(among[start : start + _IN_CHUNK])))
+
+
+def needed_refusal(session: Session, rows: Sequence[Initiative]) -> ConflictError | None:
+    """The refusal to delete `rows` while an initiative not among them needs one, or None."""
+    needed = needs_from_outside(session, rows)
+    if not needed:
+        return None
+    advice = "remove those needs" if len(needed) > 1 else "remove it from their needs"
+    return ConflictError(f"{'; '.join(needed)}; {advice} first.", field="initiative_id")
+
+
+def _refuse_needed(session: Session, rows: Sequence[Initiative]) -> None:
+    """The check before deleting: raise `needed_refusal`'s refusal, if any."""
+    refusal = needed_refusal(session, rows)
+    if refusal is not None:
+        raise refusal
+
+
+def _still_stored(session: Session, ids: Iterable[int]) -> list[Initiative]:
+    rows = (session.get(Initiative, row_id) for row_id in ids)
+    return [row for row in rows if row is not None]
+
+
 def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor: str = "") -> None:
     """Delete initiatives together, with an `initiative.delete` audit entry each, in one commit.
 
-    Refused, with nothing deleted, while an initiative not among them needs one of them.
+    Refused, with nothing deleted, while an initiative not among them needs one of them: by
+    the check here, and by the database (needs are ON DELETE RESTRICT) when another writer
+    adds such a need between the check and the commit; the refusal is the same.
     """
     records = [get_initiative(session, initiative_id=i) for i in dict.fromkeys(initiative_ids)]
-    needed = needs_from_outside(session, [record.row for record in records])
-    if needed:
-        advice = "remove those needs" if len(needed) > 1 else "remove it from their needs"
-        raise ConflictError(f"{'; '.join(needed)}; {advice} first.", field="initiative_id")
+    _refuse_needed(session, [record.row for record in records])
+    ids = [record.row.id or 0 for record in records]
     for record in records:
         audit.record(
             session,
@@ -919,8 +960,17 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
             summary=f"Deleted “{record.row.title}”",
             before=record.to_public().model_dump(mode="json"),
         )
+    delete_needs_among(session, ids)
+    for record in records:
         session.delete(record.row)
-    session.commit()
+    try:
+        session.commit()
+    except IntegrityError as exc:  # a need added by another writer since the check
+        session.rollback()
+        refusal = needed_refusal(session, _still_stored(session, ids))
+        if refusal is None:
+            raise
+        raise refusal from exc
 
 
 def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:

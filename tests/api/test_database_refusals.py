@@ -2,9 +2,9 @@
 
 Each test stores the row that the winner of the race would have stored, then makes the
 losing write with the store's check before writing turned off (as if it had read the rows an
-instant before the winner committed). The title indexes (migration 0003) must refuse it: the
-same ConflictError (409 on the API) as the check gives, the session rolled back, and every
-table as it was.
+instant before the winner committed). The title indexes (migration 0003) and the RESTRICT
+foreign keys (0004) must refuse it: the same ConflictError (409 on the API) as the check gives,
+the session rolled back, and every table as it was.
 
 Workspace: team Harbour with "Quay wall" and "Crane rail" (which needs it) in Sprint 1,
 team Lighthouse.
@@ -23,22 +23,29 @@ from sqlmodel import Session
 
 from server.db import one_transaction
 from server.errors import ConflictError
-from server.models import Period, Team
+from server.models import Period, SavedPlan, Team
 from server.planning.paste import commit_paste, parse_paste
+from server.planning.scenarios import ScenarioChanges
 from server.schemas import (
+    AvailabilityCreate,
     EffortIn,
     InitiativeCreate,
     InitiativeUpdate,
     PeriodCreate,
+    TeamEffortIn,
 )
 from server.store import initiatives as initiative_store
+from server.store import periods as period_store
 from server.store import plans as plan_store
+from server.store import teams as team_store
 from server.store.initiatives import (
     create_initiative,
     create_initiatives,
+    delete_initiative,
     update_initiative,
 )
-from server.store.periods import create_period
+from server.store.periods import create_period, delete_period
+from server.store.teams import delete_team
 from tests.api.conftest import Snapshot, Workspace
 from tests.api.support import error_fields, error_text
 from tests.factories import make_initiative, make_period
@@ -278,6 +285,171 @@ def read_titles(session: Session) -> list[str]:
     return sorted(record.row.title for record in initiative_store.list_initiatives(session))
 
 
+# --- deletes ----------------------------------------------------------------------------------
+
+
+def test_deleting_an_initiative_needed_since_the_check_is_refused(
+    session: Session,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    monkeypatch.setattr(initiative_store, "_refuse_needed", _no_check)
+    before = snapshot()
+    with pytest.raises(ConflictError) as refused:
+        delete_initiative(session, initiative_id=workspace.initiative)
+    assert refused.value.field == "initiative_id"
+    assert refused.value.message == (
+        "'Quay wall' is needed by 'Crane rail'; remove it from their needs first."
+    )
+    assert snapshot() == before
+
+
+def test_initiatives_that_need_each_other_still_go_together(
+    session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setattr(initiative_store, "_refuse_needed", _no_check)
+    initiative_store.delete_initiatives(
+        session, initiative_ids=[workspace.initiative, workspace.dependant]
+    )
+    assert read_titles(session) == []
+
+
+def _lighthouse_beacon(session: Session, workspace: Workspace, **fields: object) -> None:
+    """Lighthouse's "Beacon", stored by the other writer of the race."""
+    create_initiative(
+        session,
+        initiative_in=InitiativeCreate(
+            team_id=workspace.other_team,
+            period_id=workspace.period,
+            title="Beacon",
+            effort=EffortIn(likely=1),
+            value=3,
+            **fields,  # type: ignore[arg-type]
+        ),
+    )
+
+
+@pytest.mark.parametrize(
+    ("relies", "held"),
+    [
+        ("needs", "'Quay wall' is needed by 'Beacon' (team Lighthouse)"),
+        ("effort", "'Beacon' (team Lighthouse) carries effort for team 'Harbour'"),
+    ],
+)
+def test_deleting_a_team_another_team_came_to_rely_on_is_refused(
+    session: Session,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    monkeypatch: pytest.MonkeyPatch,
+    relies: str,
+    held: str,
+) -> None:
+    if relies == "needs":
+        _lighthouse_beacon(session, workspace, needs=[workspace.initiative])
+    else:
+        effort = TeamEffortIn(team_id=workspace.team, likely=1)
+        _lighthouse_beacon(session, workspace, other_efforts=[effort])
+    monkeypatch.setattr(team_store, "_refuse_team_delete", _no_check)
+    before = snapshot()
+    with pytest.raises(ConflictError) as refused:
+        delete_team(session, team_id=workspace.team, with_initiatives=True)
+    assert refused.value.field == "team_id"
+    assert refused.value.message == (
+        f"Team 'Harbour' cannot be deleted: {held}. Change those initiatives first: remove the "
+        "need, or the team's effort, on their edit pages."
+    )
+    assert snapshot() == before
+
+
+def test_deleting_a_team_given_an_initiative_meanwhile_is_refused(
+    session: Session,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    monkeypatch.setattr(team_store, "_refuse_team_delete", _no_check)
+    before = snapshot()
+    with pytest.raises(ConflictError) as refused:
+        delete_team(session, team_id=workspace.team)
+    assert refused.value.field == "team_id"
+    assert refused.value.message == (
+        "Team 'Harbour' still has 2 initiatives; delete them first or ask to delete them with "
+        "the team."
+    )
+    assert snapshot() == before
+
+
+def test_a_team_nothing_else_relies_on_still_goes_with_its_initiatives(
+    session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setattr(team_store, "_refuse_team_delete", _no_check)
+    delete_team(session, team_id=workspace.team, with_initiatives=True)
+    assert session.get(Team, workspace.team) is None
+    assert read_titles(session) == []
+
+
+def test_the_api_refuses_a_team_delete_lost_to_a_race_with_409(
+    client: TestClient,
+    session: Session,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    _lighthouse_beacon(session, workspace, needs=[workspace.initiative])
+    monkeypatch.setattr(team_store, "_refuse_team_delete", _no_check)
+    before = snapshot()
+    response = client.delete(f"/api/v1/teams/{workspace.team}?with_initiatives=true")
+    assert response.status_code == 409, response.text
+    assert error_fields(response) == ["team_id"]
+    assert "is needed by 'Beacon' (team Lighthouse)" in error_text(response)
+    assert snapshot() == before
+
+
+@pytest.mark.parametrize("use", ["initiative", "availability", "scenario", "saved plan"])
+def test_deleting_a_period_that_got_a_use_meanwhile_is_refused(
+    session: Session,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    monkeypatch: pytest.MonkeyPatch,
+    use: str,
+) -> None:
+    period = make_period(session, "Sprint 2")
+    period_id = period.id or 0
+    if use == "initiative":
+        make_initiative(session, _team(session, workspace.team), period, "Tide gauge")
+        expected = "Period 'Sprint 2' still has 1 initiative (Harbour 1)."
+    elif use == "availability":
+        team_store.set_availability(
+            session,
+            availability_in=AvailabilityCreate(
+                member_id=workspace.member, period_id=period_id, days_off=1
+            ),
+        )
+        expected = "Period 'Sprint 2' still has 1 availability entry."
+    elif use == "scenario":
+        plan_store.create_scenario(
+            session,
+            team_id=workspace.team,
+            period_id=period_id,
+            name="Fewer days",
+            changes=ScenarioChanges(capacity_days=3).to_json(),
+        )
+        expected = "Period 'Sprint 2' still has 1 scenario."
+    else:
+        session.add(SavedPlan(name="Kept", period_id=period_id, inputs_digest="0" * 64))
+        session.commit()
+        expected = "Period 'Sprint 2' still has 1 saved plan."
+    monkeypatch.setattr(period_store, "_refuse_period_delete", _no_check)
+    before = snapshot()
+    with pytest.raises(ConflictError) as refused:
+        delete_period(session, period_id=period_id)
+    assert refused.value.field == "period_id"
+    assert refused.value.message.startswith(expected)
+    assert refused.value.message == period_store.period_delete_refusal(session, period).message
+    assert snapshot() == before
+
+
 # --- the race itself: another session commits between the check and the write ----------------
 
 
@@ -304,3 +476,51 @@ def test_a_title_committed_between_the_check_and_the_insert_is_refused(
     assert read_titles(session) == ["Crane rail", "Quay wall", "TIDE gauge"]
     audit = [row for row in snapshot()["audit_entry"] if "Tide gauge" in str(row)]
     assert audit == []
+
+
+def test_a_need_committed_between_the_check_and_the_delete_is_refused(
+    app: FastAPI,
+    session: Session,
+    workspace: Workspace,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    checked = team_store._refuse_team_delete
+
+    def check_then_lose_the_race(*args: Any, **kwargs: Any) -> None:
+        checked(*args, **kwargs)  # passes: nothing outside Harbour relies on it yet
+        with Session(app.state.engine) as other:
+            _lighthouse_beacon(other, workspace, needs=[workspace.initiative])
+
+    monkeypatch.setattr(team_store, "_refuse_team_delete", check_then_lose_the_race)
+    with pytest.raises(ConflictError) as refused:
+        delete_team(session, team_id=workspace.team, with_initiatives=True)
+    assert refused.value.message.startswith(
+        "Team 'Harbour' cannot be deleted: 'Quay wall' is needed by 'Beacon' (team Lighthouse)."
+    )
+    assert session.get(Team, workspace.team) is not None
+    assert read_titles(session) == ["Beacon", "Crane rail", "Quay wall"]
+
+
+def test_an_initiative_added_between_the_check_and_the_delete_keeps_the_team(
+    app: FastAPI,
+    session: Session,
+    workspace: Workspace,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    checked = team_store._refuse_team_delete
+
+    def check_then_lose_the_race(*args: Any, **kwargs: Any) -> None:
+        checked(*args, **kwargs)  # passes: both initiatives are to go with the team
+        with Session(app.state.engine) as other:
+            create_initiative(other, initiative_in=_new(workspace, "Tide gauge"))
+
+    monkeypatch.setattr(team_store, "_refuse_team_delete", check_then_lose_the_race)
+    with pytest.raises(ConflictError) as refused:
+        delete_team(session, team_id=workspace.team, with_initiatives=True)
+    assert refused.value.field == "team_id"
+    assert refused.value.message == (
+        "Team 'Harbour' was changed while it was being deleted: 'Tide gauge' was added to it. "
+        "Nothing was deleted; look at the team again and delete it again if it should still go."
+    )
+    assert read_titles(session) == ["Crane rail", "Quay wall", "Tide gauge"]
+    assert session.get(Team, workspace.team) is not None
