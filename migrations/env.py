@@ -41,14 +41,31 @@ def run_migrations_online() -> None:
 
 
 def _run(connection) -> None:  # type: ignore[no-untyped-def]
-    context.configure(
-        connection=connection,
-        target_metadata=target_metadata,
-        compare_type=True,
-        render_as_batch=True,
-    )
-    with context.begin_transaction():
-        context.run_migrations()
+    # SQLite's batch mode copies a table, drops it and renames the copy: with foreign keys on,
+    # the drop would delete (or detach) the rows of the tables that refer to it. They are off
+    # while the migrations run (SQLite ignores the pragma inside a transaction, so it is set
+    # before) and checked when they are done.
+    sqlite = connection.dialect.name == "sqlite"
+    if sqlite:
+        connection.exec_driver_sql("PRAGMA foreign_keys=OFF")
+        connection.commit()
+    try:
+        context.configure(
+            connection=connection,
+            target_metadata=target_metadata,
+            compare_type=True,
+            render_as_batch=True,
+        )
+        with context.begin_transaction():
+            context.run_migrations()
+            if sqlite:
+                broken = connection.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
+                if broken:
+                    raise RuntimeError(f"the migration left rows without their parent: {broken}")
+    finally:
+        if sqlite:
+            connection.exec_driver_sql("PRAGMA foreign_keys=ON")
+            connection.commit()
 
 
 if context.is_offline_mode():

@@ -20,6 +20,7 @@ from sqlmodel import SQLModel
 
 import server.models  # noqa: F401  (registers the tables)
 from server.errors import InputError
+from server.store.initiatives import parted_titles, title_key
 
 FORMAT = "loadline-workspace"
 FORMAT_VERSION = 1
@@ -118,12 +119,13 @@ def restore_workspace(engine: Engine, data: dict[str, Any]) -> dict[str, int]:
                     "into an empty database.",
                     field="database",
                 )
-        # Rows go in as exported, past the store's checks: an export made before titles were
-        # refused twice in one team and period may hold such twins, and refusing it would
-        # leave that workspace with no way back. The store refuses only new clashes, so the
-        # twins stay editable and can be renamed apart.
+        # Rows go in as exported, past the store's checks. The title key is computed again
+        # from the title, never taken from the file, and twins (an edited file may hold them;
+        # the title indexes refuse them) are parted as migration 0003 parts them.
         for table in _tables():
             rows = [_typed(table, row) for row in data.get("tables", {}).get(table.name, [])]
+            if table.name == "initiative":
+                _keyed_titles(rows)
             if rows:
                 conn.execute(table.insert(), rows)
             counts[table.name] = len(rows)
@@ -138,6 +140,18 @@ def restore_workspace(engine: Engine, data: dict[str, Any]) -> dict[str, int]:
                         )
                     )
     return counts
+
+
+def _keyed_titles(rows: list[dict[str, Any]]) -> None:
+    """Give restored initiatives their title key, renaming later twins apart."""
+    renamed = parted_titles(
+        (row["id"], row["team_id"], row.get("period_id"), row["title"]) for row in rows
+    )
+    for row in rows:
+        if row["id"] in renamed:
+            row["title"] = renamed[row["id"]]
+            row["version"] = row.get("version", 1) + 1
+        row["title_key"] = title_key(row["title"])
 
 
 def write_export(engine: Engine, destination: Path) -> Path:

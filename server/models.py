@@ -11,11 +11,25 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from sqlalchemy import JSON, Column, ForeignKey, Integer, UniqueConstraint, false
+from sqlalchemy import (
+    JSON,
+    Column,
+    ForeignKey,
+    Index,
+    Integer,
+    UniqueConstraint,
+    event,
+    false,
+    text,
+)
 from sqlmodel import Field, SQLModel
+
+from server.selector.set_names import name_key
 
 NAME_MAX = 80
 TITLE_MAX = 200
+# Case folding can lengthen a title ("ß" -> "ss", at most three characters for one).
+TITLE_KEY_MAX = 3 * TITLE_MAX
 NOTES_MAX = 4000
 
 
@@ -71,7 +85,8 @@ class Availability(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     member_id: int = _fk("member.id", "CASCADE")
-    period_id: int = _fk("period.id", "CASCADE")
+    # RESTRICT: a period is deleted only once nothing refers to it (store.periods.delete_period).
+    period_id: int = _fk("period.id", "RESTRICT")
     days_off: float = Field(default=0.0)
     allocation: float | None = Field(default=None)
 
@@ -94,15 +109,36 @@ class CapacitySettings(SQLModel, table=True):
 _initiative_version = Column("version", Integer, nullable=False, default=1)
 
 
+# No scheduled or backlog row of a team repeats a title_key in its period: the database
+# refuses the second of two writers that both passed the store's check. A NULL period_id
+# (the backlog) never equals another in a unique index, so the backlog has its own index.
+_BACKLOG_ONLY = text("period_id IS NULL")
+
+
 class Initiative(SQLModel, table=True):
     __mapper_args__ = {"version_id_col": _initiative_version}
+    __table_args__ = (
+        Index("uq_initiative_title_key", "team_id", "period_id", "title_key", unique=True),
+        Index(
+            "uq_initiative_backlog_title_key",
+            "team_id",
+            "title_key",
+            unique=True,
+            sqlite_where=_BACKLOG_ONLY,
+            postgresql_where=_BACKLOG_ONLY,
+        ),
+    )
 
     id: int | None = Field(default=None, primary_key=True)
     # The team that owns the initiative; effort lines may name other teams too.
     team_id: int = _fk("team.id", "RESTRICT")
-    # None: unscheduled backlog.
-    period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
+    # None: unscheduled backlog. RESTRICT: a period with initiatives is not deleted.
+    period_id: int | None = _fk("period.id", "RESTRICT", nullable=True)
     title: str = Field(max_length=TITLE_MAX)
+    # name_key(title), kept by the listener below whenever title is set (no default, so the
+    # constructor does not overwrite it after setting title); rows written past the ORM
+    # (workspace restore) compute it themselves.
+    title_key: str = Field(max_length=TITLE_KEY_MAX)
     notes: str = Field(default="", max_length=NOTES_MAX)
     value: float
     confidence: float | None = Field(default=None)  # 0 < confidence <= 1, optional
@@ -115,6 +151,11 @@ class Initiative(SQLModel, table=True):
     updated_at: dt.datetime = Field(default_factory=utcnow)
 
 
+@event.listens_for(Initiative.title, "set")
+def _keep_title_key(target: Initiative, value: str, _old: object, _initiator: object) -> None:
+    target.title_key = name_key(value)
+
+
 class EffortLine(SQLModel, table=True):
     """Effort one team spends on an initiative: a single estimate or low / likely / high."""
 
@@ -123,7 +164,8 @@ class EffortLine(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     initiative_id: int = _fk("initiative.id", "CASCADE")
-    team_id: int = _fk("team.id", "CASCADE")
+    # RESTRICT: a team is not deleted while another team's initiative carries effort for it.
+    team_id: int = _fk("team.id", "RESTRICT")
     likely: float
     low: float | None = Field(default=None)
     high: float | None = Field(default=None)
@@ -137,7 +179,9 @@ class Need(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     initiative_id: int = _fk("initiative.id", "CASCADE")
-    needed_id: int = _fk("initiative.id", "CASCADE")
+    # RESTRICT: a needed initiative is not deleted while its dependant stays (needs among
+    # initiatives deleted together are deleted first, by the store).
+    needed_id: int = _fk("initiative.id", "RESTRICT")
 
 
 # --- saved plans, scenarios and published links -------------------------------------------
@@ -149,7 +193,7 @@ class Scenario(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)
     team_id: int = _fk("team.id", "CASCADE")
-    period_id: int = _fk("period.id", "CASCADE")
+    period_id: int = _fk("period.id", "RESTRICT")
     # The what-if settings, as planning.plans.PlanOptions fields (JSON-ready).
     changes: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))
     created_at: dt.datetime = Field(default_factory=utcnow)
@@ -164,7 +208,8 @@ class SavedPlan(SQLModel, table=True):
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)
     # Kept for listing; the snapshot itself holds names, so deleting a team keeps the plan.
-    period_id: int | None = _fk("period.id", "SET NULL", nullable=True)
+    # RESTRICT: saved plans are never changed, so the period they refer to is kept.
+    period_id: int | None = _fk("period.id", "RESTRICT", nullable=True)
     team_ids: list[int] = Field(default_factory=list, sa_column=Column(JSON, nullable=False))
     scenario_changes: dict[str, Any] = Field(
         default_factory=dict, sa_column=Column(JSON, nullable=False)

@@ -102,7 +102,7 @@ def test_file_round_trip(settings: Settings, tmp_path: Path) -> None:
     engine.dispose()
 
 
-def test_twins_of_an_older_export_are_restored_and_no_third_is_added(
+def test_a_restore_keys_titles_itself_and_parts_twins_as_migration_0003_does(
     settings: Settings, empty_database_url: Callable[[], str]
 ) -> None:
     source = make_engine(settings)
@@ -112,19 +112,20 @@ def test_twins_of_an_older_export_are_restored_and_no_third_is_added(
         make_initiative(session, team, period, "Fare capping")
         make_initiative(session, team, period, "Stop alerts")
     exported = export_workspace(source)
-    # Written before one title per team and period was enforced: both rows are "Fare capping".
+    # An edited file: both rows are "Fare capping", and their keys say something else.
     for row in exported["tables"]["initiative"]:
         row["title"] = "Fare capping"
+        row["title_key"] = "not the key"
     target_settings = make_settings(empty_database_url())
     migrate.upgrade(target_settings)
     target = make_engine(target_settings)
     assert restore_workspace(target, exported)["initiative"] == 2
     with Session(target) as session:
-        first, second = session.exec(select(Initiative).order_by(Initiative.id)).scalars()
-        # A twin stays editable (it makes no new clash) and can be renamed apart.
-        update_initiative(
-            session, initiative_id=first.id or 0, initiative_in=InitiativeUpdate(version=1, value=9)
-        )
+        rows = session.exec(select(Initiative).order_by(Initiative.id)).scalars().all()
+        assert [(r.title, r.title_key, r.version) for r in rows] == [
+            ("Fare capping", "fare capping", 1),
+            ("Fare capping (2)", "fare capping (2)", 2),
+        ]
         with pytest.raises(ConflictError, match="“fare capping” already exists in team Harbour"):
             make_initiative(
                 session, session.get(Team, team_id), session.get(Period, period_id), "fare capping"
@@ -132,10 +133,10 @@ def test_twins_of_an_older_export_are_restored_and_no_third_is_added(
         session.rollback()
         renamed = update_initiative(
             session,
-            initiative_id=second.id or 0,
-            initiative_in=InitiativeUpdate(version=1, title="Stop alerts"),
+            initiative_id=rows[1].id or 0,
+            initiative_in=InitiativeUpdate(version=2, title="Stop alerts"),
         )
-        assert renamed.row.title == "Stop alerts"
+        assert (renamed.row.title, renamed.row.title_key) == ("Stop alerts", "stop alerts")
     source.dispose()
     target.dispose()
 

@@ -12,6 +12,7 @@ from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
 from sqlalchemy import inspect, text
+from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, SQLModel
 
 from server import migrate
@@ -112,3 +113,136 @@ def test_the_comparison_notices_a_column_the_models_do_not_have(settings: Settin
         differences = compare_metadata(context, SQLModel.metadata)
     engine.dispose()
     assert [(d[0], d[3].name) for d in differences] == [("remove_column", "stray_column")]
+
+
+# --- 0003 title keys, 0004 restricted deletes ---------------------------------------------------
+
+LONG = "L" * 199 + "x"  # 200 characters, the longest title
+
+
+def _insert_at_0002(settings: Settings) -> None:
+    """Rows as a database at 0002 may hold them: twins of one title in a team and period."""
+    engine = make_engine(settings)
+    with engine.begin() as conn:
+        conn.execute(
+            text(
+                "INSERT INTO team (id, name, default_spread, created_at) VALUES "
+                "(1, 'Harbour', 0, '2026-01-01'), (2, 'Lighthouse', 0, '2026-01-01')"
+            )
+        )
+        conn.execute(
+            text(
+                "INSERT INTO period (id, name, kind, start_date, end_date, weekmask, "
+                "non_working_dates) VALUES "
+                "(1, 'Sprint 1', 'sprint', '2027-03-01', '2027-03-12', '1111100', '[]')"
+            )
+        )
+        rows = [
+            (1, 1, 1, "Fare capping"),
+            (2, 1, 1, "fare  CAPPING"),  # twin of 1
+            (3, 1, 1, "Fare capping (2)"),  # taken already: 2 becomes "... (3)"
+            (4, 1, 1, "FARE CAPPING"),  # a third: "(4)"
+            (5, 1, None, "Fare capping"),  # the backlog is another place
+            (6, 1, None, "fare capping"),  # twin in the backlog
+            (7, 2, 1, "Fare capping"),  # another team
+            (8, 1, 1, LONG),
+            (9, 1, 1, LONG.lower()),  # shortened to fit " (2)"
+        ]
+        for row_id, team_id, period_id, title in rows:
+            conn.execute(
+                text(
+                    "INSERT INTO initiative (id, team_id, period_id, title, notes, value, "
+                    "state, position, version, created_at, updated_at) VALUES (:id, :team, "
+                    ":period, :title, '', 1, 'candidate', :id, 1, '2026-01-01', '2026-01-01')"
+                ),
+                {"id": row_id, "team": team_id, "period": period_id, "title": title},
+            )
+            conn.execute(
+                text(
+                    "INSERT INTO effort_line (initiative_id, team_id, likely) "
+                    "VALUES (:id, :team, 1)"
+                ),
+                {"id": row_id, "team": team_id},
+            )
+        conn.execute(
+            text("INSERT INTO initiative_need (initiative_id, needed_id) VALUES (2, 1), (7, 2)")
+        )
+    engine.dispose()
+
+
+def _initiatives(settings: Settings) -> list[tuple[object, ...]]:
+    engine = make_engine(settings)
+    with engine.connect() as conn:
+        columns = [c["name"] for c in inspect(conn).get_columns("initiative")]
+        key = ", title_key" if "title_key" in columns else ""
+        rows = conn.execute(text(f"SELECT id, title, version{key} FROM initiative ORDER BY id"))
+        found = [tuple(row) for row in rows]
+    engine.dispose()
+    return found
+
+
+def _count(settings: Settings, table: str) -> int:
+    engine = make_engine(settings)
+    with engine.connect() as conn:
+        count = conn.execute(text(f"SELECT COUNT(*) FROM {table}")).scalar_one()
+    engine.dispose()
+    return int(count)
+
+
+def test_0003_parts_existing_twins_and_loses_nothing(empty_settings: Settings) -> None:
+    migrate.upgrade(empty_settings, "0002")
+    _insert_at_0002(empty_settings)
+
+    migrate.upgrade(empty_settings, "0003")
+    short = "L" * 196 + " (2)"
+    assert _initiatives(empty_settings) == [
+        (1, "Fare capping", 1, "fare capping"),
+        (2, "fare  CAPPING (3)", 2, "fare capping (3)"),
+        (3, "Fare capping (2)", 1, "fare capping (2)"),
+        (4, "FARE CAPPING (4)", 2, "fare capping (4)"),
+        (5, "Fare capping", 1, "fare capping"),
+        (6, "fare capping (2)", 2, "fare capping (2)"),
+        (7, "Fare capping", 1, "fare capping"),
+        (8, LONG, 1, LONG.lower()),
+        (9, short.lower(), 2, short.lower()),
+    ]
+    # Batch mode copied the initiative table: the rows that refer to it are all still there.
+    assert (_count(empty_settings, "effort_line"), _count(empty_settings, "initiative_need")) == (
+        9,
+        2,
+    )
+
+    migrate.downgrade(empty_settings, "0002")
+    assert _revision(empty_settings) == "0002"
+    assert _initiatives(empty_settings)[1] == (2, "fare  CAPPING (3)", 2)  # renamed stays renamed
+    assert (_count(empty_settings, "effort_line"), _count(empty_settings, "initiative_need")) == (
+        9,
+        2,
+    )
+    migrate.upgrade(empty_settings)
+    assert _revision(empty_settings) == _head()
+
+
+def test_the_title_indexes_and_restricted_deletes_refuse_what_the_store_refuses(
+    empty_settings: Settings,
+) -> None:
+    migrate.upgrade(empty_settings, "0002")
+    _insert_at_0002(empty_settings)
+    migrate.upgrade(empty_settings)
+    engine = make_engine(empty_settings)
+    refused = [
+        "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, state, "
+        "position, version, created_at, updated_at) VALUES (1, 1, 'x', 'fare capping', '', 1, "
+        "'candidate', 99, 1, '2026-01-01', '2026-01-01')",
+        "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, state, "
+        "position, version, created_at, updated_at) VALUES (1, NULL, 'x', 'fare capping', '', 1, "
+        "'candidate', 99, 1, '2026-01-01', '2026-01-01')",
+        "DELETE FROM period WHERE id = 1",  # initiatives are in it
+        "DELETE FROM initiative WHERE id = 1",  # 2 needs it
+        "DELETE FROM team WHERE id = 2",  # owns initiative 7
+    ]
+    for statement in refused:
+        with pytest.raises(IntegrityError), engine.begin() as conn:
+            conn.execute(text(statement))
+    engine.dispose()
+    assert _count(empty_settings, "initiative") == 9

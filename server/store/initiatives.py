@@ -7,15 +7,16 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from sqlalchemy import Select, insert
+from sqlalchemy import Select, delete, insert
 from sqlalchemy import inspect as sa_inspect
+from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import make_transient_to_detached
 from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, SQLModel, col, func, select
 
 from server.errors import ConflictError, InputError, StaleVersionError
 from server.message_titles import conflict_with_titles
-from server.models import EffortLine, Initiative, Need, Period, Team, utcnow
+from server.models import TITLE_MAX, EffortLine, Initiative, Need, Period, Team, utcnow
 from server.schemas import (
     EffortIn,
     EffortPublic,
@@ -111,17 +112,19 @@ def titles_in_use(session: Session, *, team_id: int, period_id: int | None) -> T
     )
 
 
-def _refuse_title_clashes(
+def title_clash(
     session: Session,
     wanted: Sequence[tuple[int, int | None, str]],
     *,
     ignore_id: int | None = None,
-) -> None:
-    """Refuse (team_id, period_id, title) rows whose title the team already has in the period.
+) -> ConflictError | None:
+    """The refusal of (team_id, period_id, title) rows whose title the team already has in
+    the period, or None.
 
     Two rows of one title in one plan cannot be told apart in plans, explanations, exports and
-    comparisons. ignore_id is the initiative being changed: its own title is no clash. Raises
-    ConflictError on field "title", naming the clashing titles of the first place that has any.
+    comparisons. ignore_id is the initiative being changed: its own title is no clash. The
+    refusal is a ConflictError on field "title", naming the clashing titles of the first place
+    that has any.
     """
     by_place: dict[tuple[int, int | None], list[str]] = defaultdict(list)
     for team_id, period_id, title in wanted:
@@ -135,12 +138,96 @@ def _refuse_title_clashes(
         if clashes:
             team = get_or_404(session, Team, team_id, "team")
             period = None if period_id is None else get_or_404(session, Period, period_id, "period")
-            raise ConflictError(
+            return ConflictError(
                 title_clash_message(
                     clashes, team_name=team.name, period_name=period.name if period else None
                 ),
                 field="title",
             )
+    return None
+
+
+def _refuse_title_clashes(
+    session: Session,
+    wanted: Sequence[tuple[int, int | None, str]],
+    *,
+    ignore_id: int | None = None,
+) -> None:
+    """The check before writing: raise `title_clash`'s refusal, if any."""
+    refusal = title_clash(session, wanted, ignore_id=ignore_id)
+    if refusal is not None:
+        raise refusal
+
+
+def refused_title_clash(
+    session: Session,
+    exc: IntegrityError,
+    wanted: Sequence[tuple[int, int | None, str]],
+    *,
+    ignore_id: int | None = None,
+) -> ConflictError:
+    """The refusal for a write the title indexes turned down (`exc`, raised at the write).
+
+    Another writer stored one of the titles after this one's check read the titles: the
+    session is rolled back (nothing of this transaction stays) and the check runs again, so
+    the refusal is the one the check gives when it sees the clash first (should the other row
+    be gone again by then, the titles of the first place are named). An IntegrityError of
+    another constraint is raised again as it was.
+    """
+    session.rollback()
+    if not _is_title_index(exc):
+        raise exc
+    refusal = title_clash(session, wanted, ignore_id=ignore_id)
+    if refusal is not None:
+        return refusal
+    team_id, period_id, _ = wanted[0]
+    team = get_or_404(session, Team, team_id, "team")
+    period = None if period_id is None else get_or_404(session, Period, period_id, "period")
+    titles = [title for t, p, title in wanted if (t, p) == (team_id, period_id)]
+    return ConflictError(
+        title_clash_message(
+            titles, team_name=team.name, period_name=period.name if period else None
+        ),
+        field="title",
+    )
+
+
+def _is_title_index(exc: IntegrityError) -> bool:
+    """Whether the database refused the write for the title indexes (SQLite names the
+    columns, PostgreSQL the index; both mention title_key)."""
+    return "title_key" in str(exc.orig)
+
+
+def parted_titles(rows: Iterable[tuple[int, int, int | None, str]]) -> dict[int, str]:
+    """New titles for the later twins among (id, team_id, period_id, title) rows.
+
+    The rule of migration 0003, for rows written past the store (a workspace restore): in each
+    team and period the lowest id keeps its title, and each later row of the same `title_key`
+    gets " (2)", " (3)", ... appended, the first number whose title is still free there (the
+    title shortened to fit TITLE_MAX first). Returns id -> new title for the renamed rows.
+    """
+    rows = sorted(rows)
+    taken: dict[tuple[int, int | None], set[str]] = defaultdict(set)
+    for _, team_id, period_id, title in rows:
+        taken[(team_id, period_id)].add(title_key(title))
+    kept: dict[tuple[int, int | None], set[str]] = defaultdict(set)
+    renamed: dict[int, str] = {}
+    for row_id, team_id, period_id, title in rows:
+        place, key = (team_id, period_id), title_key(title)
+        if key not in kept[place]:
+            kept[place].add(key)
+            continue
+        number = 2
+        while True:
+            suffix = f" ({number})"
+            candidate = title[: TITLE_MAX - len(suffix)].rstrip() + suffix
+            if title_key(candidate) not in taken[place]:
+                break
+            number += 1
+        taken[place].add(title_key(candidate))
+        kept[place].add(title_key(candidate))
+        renamed[row_id] = candidate
+    return renamed
 
 
 def _refuse_repeated_titles(initiatives_in: Sequence[InitiativeCreate]) -> None:
@@ -525,9 +612,8 @@ def create_initiatives(
         return []
     _check_batch(session, initiatives_in)
     _refuse_repeated_titles(initiatives_in)
-    _refuse_title_clashes(
-        session, [(item.team_id, item.period_id, item.title) for item in initiatives_in]
-    )
+    wanted = [(item.team_id, item.period_id, item.title) for item in initiatives_in]
+    _refuse_title_clashes(session, wanted)
     positions = _next_positions(session, (item.team_id for item in initiatives_in))
     spellings: dict[tuple[int, int | None], SetNames] = {}
     rows: list[Initiative] = []
@@ -553,7 +639,10 @@ def create_initiatives(
                 version=1,
             )
         )
-    _insert_rows(session, rows, ("team_id", "position"))
+    try:
+        _insert_rows(session, rows, ("team_id", "position"))
+    except IntegrityError as exc:  # a title stored by another writer since the check
+        raise refused_title_clash(session, exc, wanted) from exc
     records: list[InitiativeRecord] = []
     for db_row, item in zip(rows, initiatives_in, strict=True):
         record = InitiativeRecord(row=db_row, needs=list(dict.fromkeys(item.needs)))
@@ -689,12 +778,11 @@ def update_initiative(
         initiative_id=initiative_id,
     )
     title = initiative_in.title if "title" in changes and initiative_in.title else db_row.title
-    # Only a new title or period can make a clash. Twins already stored (restored from an
-    # export made before titles were checked) stay editable until one of them is renamed.
+    # Only a new title or period can make a clash; the title indexes refuse one that another
+    # writer makes between this check and the flush below.
+    wanted = [(db_row.team_id, period_id, title)]
     if period_id != db_row.period_id or title_key(title) != title_key(db_row.title):
-        _refuse_title_clashes(
-            session, [(db_row.team_id, period_id, title)], ignore_id=initiative_id
-        )
+        _refuse_title_clashes(session, wanted, ignore_id=initiative_id)
     if needs is not None:
         cycle = _needs_cycle(session, initiative_id, needs)
         if cycle:
@@ -724,7 +812,10 @@ def update_initiative(
         db_row.updated_at = utcnow()  # also makes the row dirty, so its version is bumped
         session.add(db_row)
     try:
-        session.flush()
+        try:
+            session.flush()
+        except IntegrityError as exc:  # a title stored by another writer since the check
+            raise refused_title_clash(session, exc, wanted, ignore_id=initiative_id) from exc
         stored = get_initiative(session, initiative_id=initiative_id)
         if changes & {"state", "either_or", "needs", "period_id", "other_efforts"}:
             try:
@@ -807,16 +898,57 @@ def needs_from_outside(session: Session, rows: Sequence[Initiative]) -> list[str
     return parts
 
 
+def delete_needs_among(session: Session, initiative_ids: Iterable[int]) -> None:
+    """Delete the needs between these initiatives, before the initiatives themselves.
+
+    A need's needed_id is ON DELETE RESTRICT: the database refuses to delete an initiative
+    that another one needs. Rows deleted together may need each other; those needs go first.
+    A need from outside the rows is left, so the database refuses one that another writer
+    added after the store's check.
+    """
+    ids = sorted(set(initiative_ids))
+    doomed = set(ids)
+    among: list[int] = []
+    for start in range(0, len(ids), _IN_CHUNK):
+        query = select(Need.id, Need.initiative_id).where(
+            col(Need.needed_id).in_(ids[start : start + _IN_CHUNK])
+        )
+        among.extend(need_id for need_id, dependant in session.exec(query) if dependant in doomed)
+    for start in range(0, len(among), _IN_CHUNK):
+        session.exec(delete(Need).where(col(Need.id).in_(among[start : start + _IN_CHUNK])))
+
+
+def needed_refusal(session: Session, rows: Sequence[Initiative]) -> ConflictError | None:
+    """The refusal to delete `rows` while an initiative not among them needs one, or None."""
+    needed = needs_from_outside(session, rows)
+    if not needed:
+        return None
+    advice = "remove those needs" if len(needed) > 1 else "remove it from their needs"
+    return ConflictError(f"{'; '.join(needed)}; {advice} first.", field="initiative_id")
+
+
+def _refuse_needed(session: Session, rows: Sequence[Initiative]) -> None:
+    """The check before deleting: raise `needed_refusal`'s refusal, if any."""
+    refusal = needed_refusal(session, rows)
+    if refusal is not None:
+        raise refusal
+
+
+def _still_stored(session: Session, ids: Iterable[int]) -> list[Initiative]:
+    rows = (session.get(Initiative, row_id) for row_id in ids)
+    return [row for row in rows if row is not None]
+
+
 def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor: str = "") -> None:
     """Delete initiatives together, with an `initiative.delete` audit entry each, in one commit.
 
-    Refused, with nothing deleted, while an initiative not among them needs one of them.
+    Refused, with nothing deleted, while an initiative not among them needs one of them: by
+    the check here, and by the database (needs are ON DELETE RESTRICT) when another writer
+    adds such a need between the check and the commit; the refusal is the same.
     """
     records = [get_initiative(session, initiative_id=i) for i in dict.fromkeys(initiative_ids)]
-    needed = needs_from_outside(session, [record.row for record in records])
-    if needed:
-        advice = "remove those needs" if len(needed) > 1 else "remove it from their needs"
-        raise ConflictError(f"{'; '.join(needed)}; {advice} first.", field="initiative_id")
+    _refuse_needed(session, [record.row for record in records])
+    ids = [record.row.id or 0 for record in records]
     for record in records:
         audit.record(
             session,
@@ -828,8 +960,17 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
             summary=f"Deleted “{record.row.title}”",
             before=record.to_public().model_dump(mode="json"),
         )
+    delete_needs_among(session, ids)
+    for record in records:
         session.delete(record.row)
-    session.commit()
+    try:
+        session.commit()
+    except IntegrityError as exc:  # a need added by another writer since the check
+        session.rollback()
+        refusal = needed_refusal(session, _still_stored(session, ids))
+        if refusal is None:
+            raise
+        raise refusal from exc
 
 
 def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:

@@ -6,6 +6,7 @@ import datetime as dt
 from typing import Any
 
 from pydantic import ValidationError
+from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, SQLModel, col, func, select
 
 from server.capacity import (
@@ -242,21 +243,32 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
     return message
 
 
+def period_delete_refusal(session: Session, db_period: Period) -> ConflictError | None:
+    """Why the period cannot be deleted (what still refers to it), or None."""
+    message = _uses_message(session, db_period)
+    return None if message is None else ConflictError(message, field="period_id")
+
+
+def _refuse_period_delete(session: Session, db_period: Period) -> None:
+    """The check before deleting: raise `period_delete_refusal`'s refusal, if any."""
+    refusal = period_delete_refusal(session, db_period)
+    if refusal is not None:
+        raise refusal
+
+
 def delete_period(
     session: Session, *, period_id: int, actor: str = "", based_on: BasedOn = None
 ) -> None:
     """Delete a period that nothing refers to any more; refuse (ConflictError) otherwise.
 
-    The database would otherwise move its initiatives to the backlog, delete its availability
-    entries and scenarios and cut saved plans loose from it, without a word. The teams'
-    capacity settings of the period go with it; the audit entry keeps them. `based_on`: see
-    `refuse_if_changed`.
+    Initiatives, availability entries, scenarios and saved plans refer to it through foreign
+    keys ON DELETE RESTRICT, so the database refuses too when another writer adds one between
+    the check and the commit; the refusal is the same. The teams' capacity settings of the
+    period go with it; the audit entry keeps them. `based_on`: see `refuse_if_changed`.
     """
     db_period = get_period(session, period_id=period_id)
     _refuse_if_period_changed(db_period, based_on)
-    message = _uses_message(session, db_period)
-    if message is not None:
-        raise ConflictError(message, field="period_id")
+    _refuse_period_delete(session, db_period)
     settings = list(
         session.exec(select(CapacitySettings).where(CapacitySettings.period_id == period_id))
     )
@@ -282,7 +294,14 @@ def delete_period(
     for row in settings:
         session.delete(row)
     session.delete(db_period)
-    session.commit()
+    try:
+        session.commit()
+    except IntegrityError as exc:  # another writer made a row that refers to the period
+        session.rollback()
+        refusal = period_delete_refusal(session, get_period(session, period_id=period_id))
+        if refusal is None:
+            raise
+        raise refusal from exc
 
 
 def get_capacity_settings(session: Session, *, team_id: int, period_id: int) -> CapacitySettings:

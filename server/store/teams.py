@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, col, func, select
 
 from server.errors import ConflictError, InputError
@@ -35,9 +36,9 @@ from server.store._common import (
     get_or_404,
     refuse_if_changed,
 )
-from server.store.initiatives import needs_from_outside
+from server.store.initiatives import delete_needs_among, needs_from_outside
 from server.store.periods import period_working_days
-from server.wording import counted
+from server.wording import counted, quoted
 
 
 def list_teams(session: Session) -> list[Team]:
@@ -148,6 +149,40 @@ def count_team_scenarios(session: Session, *, team_id: int) -> int:
     return int(session.exec(query).one())
 
 
+def team_delete_refusal(
+    session: Session, db_team: Team, owned: list[Initiative], *, with_initiatives: bool
+) -> ConflictError | None:
+    """Why the team cannot be deleted (its initiatives `owned` with it or not), or None."""
+    if owned and not with_initiatives:
+        return ConflictError(
+            f"Team “{db_team.name}” still has {counted(len(owned), 'initiative')}; delete "
+            f"{'it' if len(owned) == 1 else 'them'} first or ask to delete "
+            f"{'it' if len(owned) == 1 else 'them'} with the team.",
+            field="team_id",
+        )
+    held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
+    if held:
+        return ConflictError(
+            f"Team “{db_team.name}” cannot be deleted: {'; '.join(held)}. Change those "
+            "initiatives first: remove the need, or the team's effort, on their edit pages.",
+            field="team_id",
+        )
+    return None
+
+
+def _refuse_team_delete(
+    session: Session, db_team: Team, owned: list[Initiative], *, with_initiatives: bool
+) -> None:
+    """The check before deleting: raise `team_delete_refusal`'s refusal, if any."""
+    refusal = team_delete_refusal(session, db_team, owned, with_initiatives=with_initiatives)
+    if refusal is not None:
+        raise refusal
+
+
+def _owned(session: Session, team_id: int) -> list[Initiative]:
+    return list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
+
+
 def delete_team(
     session: Session,
     *,
@@ -160,25 +195,16 @@ def delete_team(
 
     Refused in any case while another team's initiative needs one of the team's initiatives
     or carries effort for the team: the database would drop that need or effort line from an
-    initiative nobody asked to change. `based_on`: see `refuse_if_changed`.
+    initiative nobody asked to change. The database refuses too (initiative.team_id,
+    effort_line.team_id and initiative_need.needed_id are ON DELETE RESTRICT) when another
+    writer makes such a row between the check and the commit; the refusal is then the same,
+    or, for initiatives added meanwhile, says the team changed. `based_on`: see
+    `refuse_if_changed`.
     """
     db_team = get_team(session, team_id=team_id)
     _refuse_if_team_changed(db_team, based_on)
-    owned = list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
-    if owned and not with_initiatives:
-        raise ConflictError(
-            f"Team “{db_team.name}” still has {counted(len(owned), 'initiative')}; delete "
-            f"{'it' if len(owned) == 1 else 'them'} first or ask to delete "
-            f"{'it' if len(owned) == 1 else 'them'} with the team.",
-            field="team_id",
-        )
-    held = needs_from_outside(session, owned) + _effort_held_by_others(session, db_team)
-    if held:
-        raise ConflictError(
-            f"Team “{db_team.name}” cannot be deleted: {'; '.join(held)}. Change those "
-            "initiatives first: remove the need, or the team's effort, on their edit pages.",
-            field="team_id",
-        )
+    owned = _owned(session, team_id)
+    _refuse_team_delete(session, db_team, owned, with_initiatives=with_initiatives)
     members = list_members(session, team_id=team_id)
     scenarios = session.exec(select(Scenario).where(Scenario.team_id == team_id)).all()
     # The database cascades members, availability, capacity settings and scenarios; the entry
@@ -198,11 +224,39 @@ def delete_team(
             "scenarios": [{"name": s.name, "changes": s.changes} for s in scenarios],
         },
     )
-    for db_initiative in owned:
-        session.delete(db_initiative)
-    session.flush()
-    session.delete(db_team)
-    session.commit()
+    # Only initiatives asked for go: any the team has without that, the database refuses.
+    doomed = owned if with_initiatives else []
+    owned_ids = [row.id or 0 for row in doomed]
+    try:
+        delete_needs_among(session, owned_ids)
+        for db_initiative in doomed:
+            session.delete(db_initiative)
+        session.flush()
+        session.delete(db_team)
+        session.commit()
+    except IntegrityError as exc:  # another writer made a row that needs the team
+        session.rollback()
+        db_team = get_team(session, team_id=team_id)
+        refusal = team_delete_refusal(
+            session, db_team, _owned(session, team_id), with_initiatives=with_initiatives
+        )
+        if refusal is None:
+            refusal = ConflictError(
+                f"Team “{db_team.name}” was changed while it was being deleted: "
+                f"{_added_meanwhile(session, team_id, owned_ids)}. Nothing was deleted; look at "
+                "the team again and delete it again if it should still go.",
+                field="team_id",
+            )
+        raise refusal from exc
+
+
+def _added_meanwhile(session: Session, team_id: int, owned_ids: list[int]) -> str:
+    """What the team gained since its deletion was checked, in words."""
+    added = [row for row in _owned(session, team_id) if row.id not in set(owned_ids)]
+    if not added:
+        return "someone else changed its initiatives"
+    named = and_list(first_named([quoted(row.title) for row in added]))
+    return f"{named} {'was' if len(added) == 1 else 'were'} added to it"
 
 
 def _gone_with(initiatives: int, scenarios: int) -> str:
