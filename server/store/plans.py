@@ -19,7 +19,7 @@ from sqlalchemy import event
 from sqlmodel import Session, col, func, select
 
 from server.actor import current_actor
-from server.errors import ConflictError, InputError, NotFoundError
+from server.errors import ConflictError, InputError, NotFoundError, StaleVersionError
 from server.models import Initiative, Period, Publication, SavedPlan, Scenario, Team, utcnow
 from server.planning.exports import ImportedPlan
 from server.planning.scenarios import ScenarioChanges
@@ -173,6 +173,50 @@ def delete_scenario(session: Session, *, scenario_id: int, actor: str = "") -> N
 # --- saved plans ---------------------------------------------------------------------------
 
 
+def _figures(snapshot: Snapshot) -> str:
+    result = snapshot.result
+    return (
+        f"value {round(result.value, 2):g}, {round(result.effort, 2):g} of "
+        f"{round(result.capacity, 2):g} days"
+    )
+
+
+_LOOK_AGAIN = (
+    "Nothing was saved. This page now shows the new figures: look at them, then save again "
+    "to freeze them."
+)
+
+
+def refuse_if_not_as_shown(
+    snapshot: Snapshot,
+    *,
+    scenario: Scenario | None = None,
+    based_on: str | None = None,
+    shown_digest: str | None = None,
+) -> None:
+    """Refuse to freeze a plan other than the one the saving page showed.
+
+    `based_on` is the scenario's fingerprint when its page was drawn (`scenario_fingerprint`);
+    `shown_digest` the inputs digest of the plan the page showed (the live plan's, or the
+    scenario's solved on live data), which moves when any input of the plan does: capacity,
+    days off, an initiative's estimate, value or state. None: not checked (the JSON API).
+    """
+    if scenario is not None and based_on is not None and based_on != scenario_fingerprint(scenario):
+        changed = "; ".join(snapshot.result.changed_inputs) or "no inputs (the live plan)"
+        raise StaleVersionError(
+            f"Scenario “{scenario.name}” was changed since this page was shown: it now "
+            f"changes {changed}, which gives {_figures(snapshot)}. {_LOOK_AGAIN}",
+            current={"name": scenario.name, "changes": scenario.changes},
+        )
+    if shown_digest is not None and shown_digest != snapshot.digest:
+        what = f"scenario “{scenario.name}”" if scenario is not None else "the live plan"
+        raise StaleVersionError(
+            f"The live data of {what} changed since this page was shown (capacity, days off or "
+            f"initiatives): it now gives {_figures(snapshot)}. {_LOOK_AGAIN}",
+            current={"inputs_digest": snapshot.digest},
+        )
+
+
 def save_plan(
     session: Session,
     *,
@@ -180,8 +224,18 @@ def save_plan(
     snapshot: Snapshot,
     scenario_changes: dict[str, Any],
     actor: str = "",
+    scenario: Scenario | None = None,
+    based_on: str | None = None,
+    shown_digest: str | None = None,
 ) -> SavedPlan:
-    """Insert a frozen plan and its audit entry in one transaction."""
+    """Insert a frozen plan and its audit entry in one transaction.
+
+    Refused (StaleVersionError, nothing written) when the plan is not the one the saving
+    page showed: see `refuse_if_not_as_shown`.
+    """
+    refuse_if_not_as_shown(
+        snapshot, scenario=scenario, based_on=based_on, shown_digest=shown_digest
+    )
     team_ids = [t.id for t in snapshot.inputs.teams]
     db_plan = SavedPlan(
         name=name,
