@@ -301,6 +301,31 @@ def describe(
     return out
 
 
+def changes_in_words(
+    changes: ScenarioChanges, *, members: Mapping[int, str], titles: Mapping[int, str]
+) -> list[str]:
+    """The scenario's own values in words, enough to make it again by hand.
+
+    members and titles name member and initiative ids; one not found is named by its id.
+    """
+    out: list[str] = []
+    if changes.confidence is not None:
+        out.append(f"confidence level {_level(changes.confidence)}")
+    if changes.capacity_days is not None:
+        out.append(f"capacity {_days(changes.capacity_days)}")
+    if changes.focus_factor is not None:
+        out.append(f"focus factor {changes.focus_factor:g}")
+    if changes.reserve_pct is not None:
+        out.append(f"reserve {changes.reserve_pct:g} %")
+    for member_id, days in sorted(changes.days_off.items()):
+        out.append(f"{members.get(member_id, f'member {member_id}')}: {_days(days)} off")
+    for name, label in (("forced_in", "forced in"), ("forced_out", "forced out")):
+        for initiative_id in getattr(changes, name):
+            title = titles.get(initiative_id)
+            out.append(f"“{title}” {label}" if title else f"initiative {initiative_id} {label}")
+    return out
+
+
 @dataclass(frozen=True)
 class Baseline:
     """The live plan a scenario varies; when it cannot be solved, the live inputs alone."""

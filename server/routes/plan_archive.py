@@ -371,8 +371,16 @@ def scenarios_page(
     templates: TemplatesDep,
     settings: SettingsDep,
     period_id: QueryId = None,
+    deleted: QueryId = None,
 ) -> Response:
     context = _scenarios_context(session, team_id, period_id, settings)
+    # After a delete: said from the audit entry, so the address cannot put words on the page.
+    name = (
+        store.deleted_scenario_name(session, scenario_id=deleted, team_id=team_id)
+        if deleted is not None
+        else None
+    )
+    context["notice"] = f"Deleted scenario “{name}”." if name else None
     # A what-if brought from the live plan starts the form; the post checks it like any value.
     context["form"] = {
         key: value
@@ -480,6 +488,7 @@ def _scenario_context(
         "errors": {},
         "save_form": {"name": db_scenario.name},
         "save_errors": {},
+        "delete_error": None,
         "shown_digest": snapshot.digest if snapshot is not None else "",
     }
 
@@ -532,10 +541,23 @@ async def update_scenario(
 
 
 @router.post("/scenarios/{scenario_id}/delete")
-async def delete_scenario(scenario_id: PathId, request: Request, session: SessionDep) -> Response:
+async def delete_scenario(
+    scenario_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+) -> Response:
     form = await request.form()
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
-    target = f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        context = _scenario_context(session, scenario_id, settings)
+        context["delete_error"] = f"Tick “Yes, delete scenario {db_scenario.name}” to delete it."
+        return render(templates, request, "plans/scenario.html", context, status_code=422)
+    target = (
+        f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
+        f"&deleted={scenario_id}"
+    )
     actor = _actor(form_text(form, "created_by"))
     store.delete_scenario(session, scenario_id=scenario_id, actor=actor)
     return see_other(target)

@@ -20,9 +20,18 @@ from sqlmodel import Session, col, func, select
 
 from server.actor import current_actor
 from server.errors import ConflictError, InputError, NotFoundError, StaleVersionError
-from server.models import Initiative, Period, Publication, SavedPlan, Scenario, Team, utcnow
+from server.models import (
+    AuditEntry,
+    Initiative,
+    Period,
+    Publication,
+    SavedPlan,
+    Scenario,
+    Team,
+    utcnow,
+)
 from server.planning.exports import ImportedPlan
-from server.planning.scenarios import ScenarioChanges
+from server.planning.scenarios import ScenarioChanges, changes_from_json, changes_in_words
 from server.planning.snapshots import Snapshot
 from server.store import audit
 from server.store._common import (
@@ -40,7 +49,7 @@ from server.store.initiatives import (
     title_keys_in,
 )
 from server.store.periods import get_period
-from server.store.teams import get_team
+from server.store.teams import get_team, list_members
 from server.wording import counted
 
 TOKEN_BYTES = 32
@@ -154,8 +163,24 @@ def update_scenario(
     return db_scenario
 
 
+def scenario_in_words(session: Session, db_scenario: Scenario) -> list[str]:
+    """What a scenario changes, in words, members and initiatives named as they are now."""
+    changes = changes_from_json(db_scenario.changes)
+    members = {m.id or 0: m.name for m in list_members(session, team_id=db_scenario.team_id)}
+    ids = [*changes.forced_in, *changes.forced_out]
+    rows = session.exec(select(Initiative).where(col(Initiative.id).in_(ids))) if ids else []
+    titles = {row.id or 0: row.title for row in rows}
+    return changes_in_words(changes, members=members, titles=titles)
+
+
 def delete_scenario(session: Session, *, scenario_id: int, actor: str = "") -> None:
+    """Delete a scenario; its audit entry says what it changed, to make it again by hand."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
+    words = scenario_in_words(session, db_scenario)
+    changed = "; ".join(words) if words else "nothing (it was the live plan)"
+    summary = f"Deleted scenario “{db_scenario.name}”, which changed: {changed}"
+    if len(summary) > 300:  # the summary's column; the whole list is in `before`
+        summary = summary[:298].rstrip() + " …"
     audit.record(
         session,
         actor=actor,
@@ -163,11 +188,28 @@ def delete_scenario(session: Session, *, scenario_id: int, actor: str = "") -> N
         entity="scenario",
         entity_id=scenario_id,
         team_id=db_scenario.team_id,
-        summary=f"Deleted scenario “{db_scenario.name}”",
-        before={"name": db_scenario.name, "changes": db_scenario.changes},
+        summary=summary,
+        before={"name": db_scenario.name, "changes": db_scenario.changes, "in_words": words},
     )
     session.delete(db_scenario)
     session.commit()
+
+
+def deleted_scenario_name(session: Session, *, scenario_id: int, team_id: int) -> str | None:
+    """The name of a scenario of this team deleted earlier, from its audit entry."""
+    query = (
+        select(AuditEntry)
+        .where(
+            AuditEntry.action == "scenario.delete",
+            AuditEntry.entity_id == scenario_id,
+            AuditEntry.team_id == team_id,
+        )
+        .order_by(col(AuditEntry.id).desc())
+    )
+    entry = session.exec(query).first()
+    if entry is None or not entry.before or session.get(Scenario, scenario_id) is not None:
+        return None
+    return str(entry.before.get("name", "")) or None
 
 
 # --- saved plans ---------------------------------------------------------------------------
