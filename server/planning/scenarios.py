@@ -9,7 +9,7 @@ lists the changed inputs in words against the live values.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -457,3 +457,32 @@ def capture(
         session, team_id=team_id, period_id=period_id, changes=changes, resolution=resolution
     )
     return scenario_snapshot(session, outcome, name=scenario_name)
+
+
+# Scenarios a list shows figures for (one solve each, without curve or explanations); the
+# rest show theirs on their own pages.
+LISTED_FIGURES = 20
+
+
+@dataclass(frozen=True)
+class ScenarioFigures:
+    """A scenario's totals for a list: None when it cannot be solved."""
+
+    value: float | None
+    effort: float | None
+    capacity: float | None
+
+
+def figures_of(
+    session: Session, *, team_id: int, period_id: int, changes: ScenarioChanges, resolution: float
+) -> ScenarioFigures:
+    """The scenario's value, effort and capacity: the same plan as its page, solved lean."""
+    options = replace(options_for(changes, resolution=resolution), explain=False, curve=False)
+    try:
+        plan = solve_live(session, team_id=team_id, period_id=period_id, options=options)
+    except InputError:
+        return ScenarioFigures(value=None, effort=None, capacity=None)
+    selection = plan.selection
+    return ScenarioFigures(
+        value=selection.value, effort=selection.effort, capacity=selection.capacity
+    )

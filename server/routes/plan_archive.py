@@ -11,6 +11,7 @@ while live data changes; whether live data has moved on is a separate fragment
 
 from __future__ import annotations
 
+from collections import Counter
 from typing import Any
 
 from fastapi import APIRouter, Query, Request
@@ -31,12 +32,14 @@ from server.planning.compare import (
     single_curve_chart,
 )
 from server.planning.scenarios import (
+    LISTED_FIGURES,
     MAX_ID,
     ScenarioChanges,
     baseline_of,
     capture,
     changes_from_json,
     check_for_team,
+    figures_of,
     parse_changes_form,
     scenario_snapshot,
     solve_scenario,
@@ -310,8 +313,13 @@ def compare_page(
         return see_other("/compare?plans=" + query)
     comparison = compare(db_plans)
     names = {p.label: p.name for p in comparison.plans}
+    # Columns are told apart by name and save time to the minute; by number when both match.
+    stamps = {p.id: p.created_at.strftime("%Y-%m-%d %H:%M") for p in comparison.plans}
+    seen = Counter((p.name, stamps[p.id]) for p in comparison.plans)
     context = {
         "comparison": comparison,
+        "stamps": stamps,
+        "alike": {p.id for p in comparison.plans if seen[(p.name, stamps[p.id])] > 1},
         "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
         "query": query,
     }
@@ -348,13 +356,24 @@ def _scenarios_context(
     if period_id is None and periods:
         period_id = periods[0].id
     period = get_period(session, period_id=period_id) if period_id is not None else None
+    scenarios = (
+        store.list_scenarios(session, team_id=team_id, period_id=period_id) if period else []
+    )
     context: dict[str, Any] = {
         "team": team,
         "periods": periods,
         "period": period,
-        "scenarios": store.list_scenarios(session, team_id=team_id, period_id=period_id)
-        if period
-        else [],
+        "scenarios": scenarios,
+        "figures": {
+            s.id: figures_of(
+                session,
+                team_id=team_id,
+                period_id=s.period_id,
+                changes=changes_from_json(s.changes),
+                resolution=settings.resolution_days,
+            )
+            for s in scenarios[:LISTED_FIGURES]
+        },
         "form": {},
         "errors": {},
     }
