@@ -9,7 +9,7 @@ lists the changed inputs in words against the live values.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -302,6 +302,31 @@ def describe(
     return out
 
 
+def changes_in_words(
+    changes: ScenarioChanges, *, members: Mapping[int, str], titles: Mapping[int, str]
+) -> list[str]:
+    """The scenario's own values in words, enough to make it again by hand.
+
+    members and titles name member and initiative ids; one not found is named by its id.
+    """
+    out: list[str] = []
+    if changes.confidence is not None:
+        out.append(f"confidence level {_level(changes.confidence)}")
+    if changes.capacity_days is not None:
+        out.append(f"capacity {_days(changes.capacity_days)}")
+    if changes.focus_factor is not None:
+        out.append(f"focus factor {changes.focus_factor:g}")
+    if changes.reserve_pct is not None:
+        out.append(f"reserve {changes.reserve_pct:g} %")
+    for member_id, days in sorted(changes.days_off.items()):
+        out.append(f"{members.get(member_id, f'member {member_id}')}: {_days(days)} off")
+    for name, label in (("forced_in", "forced in"), ("forced_out", "forced out")):
+        for initiative_id in getattr(changes, name):
+            title = titles.get(initiative_id)
+            out.append(f"“{title}” {label}" if title else f"initiative {initiative_id} {label}")
+    return out
+
+
 @dataclass(frozen=True)
 class Baseline:
     """The live plan a scenario varies; when it cannot be solved, the live inputs alone."""
@@ -433,3 +458,32 @@ def capture(
         session, team_id=team_id, period_id=period_id, changes=changes, resolution=resolution
     )
     return scenario_snapshot(session, outcome, name=scenario_name)
+
+
+# Scenarios a list shows figures for (one solve each, without curve or explanations); the
+# rest show theirs on their own pages.
+LISTED_FIGURES = 20
+
+
+@dataclass(frozen=True)
+class ScenarioFigures:
+    """A scenario's totals for a list: None when it cannot be solved."""
+
+    value: float | None
+    effort: float | None
+    capacity: float | None
+
+
+def figures_of(
+    session: Session, *, team_id: int, period_id: int, changes: ScenarioChanges, resolution: float
+) -> ScenarioFigures:
+    """The scenario's value, effort and capacity: the same plan as its page, solved lean."""
+    options = replace(options_for(changes, resolution=resolution), explain=False, curve=False)
+    try:
+        plan = solve_live(session, team_id=team_id, period_id=period_id, options=options)
+    except InputError:
+        return ScenarioFigures(value=None, effort=None, capacity=None)
+    selection = plan.selection
+    return ScenarioFigures(
+        value=selection.value, effort=selection.effort, capacity=selection.capacity
+    )

@@ -11,6 +11,7 @@ while live data changes; whether live data has moved on is a separate fragment
 
 from __future__ import annotations
 
+from collections import Counter
 from typing import Any
 
 from fastapi import APIRouter, Query, Request
@@ -31,12 +32,14 @@ from server.planning.compare import (
     single_curve_chart,
 )
 from server.planning.scenarios import (
+    LISTED_FIGURES,
     MAX_ID,
     ScenarioChanges,
     baseline_of,
     capture,
     changes_from_json,
     check_for_team,
+    figures_of,
     parse_changes_form,
     scenario_snapshot,
     solve_scenario,
@@ -85,16 +88,30 @@ def _name(raw: str) -> tuple[str | None, dict[str, str]]:
 
 
 def _save_context(
-    session: SessionDep, team_id: int, period_id: int, scenario_id: int | None
+    session: SessionDep, team_id: int, period_id: int, settings: SettingsDep
 ) -> dict[str, Any]:
+    """The live plan to save, its figures shown and its inputs digest carried by the form."""
     team = get_team(session, team_id=team_id)
     period = get_period(session, period_id=period_id)
-    scenario = store.get_scenario(session, scenario_id=scenario_id) if scenario_id else None
+    try:
+        snapshot: Any = capture(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            changes=ScenarioChanges(),
+            resolution=settings.resolution_days,
+        )
+        problem = None
+    except LoadlineError as exc:  # no capacity yet: the post says why, beside the form
+        snapshot, problem = None, exc.message
     return {
         "team": team,
         "period": period,
-        "scenario": scenario,
-        "form": {"name": scenario.name if scenario else f"{team.name} · {period.name}"},
+        "scenario": None,
+        "live_result": snapshot.result if snapshot is not None else None,
+        "live_problem": problem,
+        "shown_digest": snapshot.digest if snapshot is not None else "",
+        "form": {"name": f"{team.name} · {period.name}"},
         "errors": {},
     }
 
@@ -104,11 +121,14 @@ def new_plan_page(
     request: Request,
     session: SessionDep,
     templates: TemplatesDep,
+    settings: SettingsDep,
     team_id: RequiredQueryId,
     period_id: RequiredQueryId,
     scenario_id: QueryId = None,
 ) -> Response:
-    context = _save_context(session, team_id, period_id, scenario_id)
+    if scenario_id is not None:  # a scenario is saved from its own page, beside its figures
+        return see_other(f"/scenarios/{store.get_scenario(session, scenario_id=scenario_id).id}")
+    context = _save_context(session, team_id, period_id, settings)
     return render(templates, request, "plans/save.html", context)
 
 
@@ -116,7 +136,12 @@ def new_plan_page(
 async def save_plan(
     request: Request, session: SessionDep, templates: TemplatesDep, settings: SettingsDep
 ) -> Response:
-    """Save the live plan (or a scenario) of a team in a period as a frozen snapshot."""
+    """Save the live plan (or a scenario) of a team in a period as a frozen snapshot.
+
+    The form carries what its page showed (`shown_digest`, and a scenario's `based_on`); a
+    save over a change made since is refused with 409 and the page shown again with the new
+    figures, the plan name kept.
+    """
     form = await request.form()
     scenario_id = _int(form_text(form, "scenario_id"))
     scenario = store.get_scenario(session, scenario_id=scenario_id) if scenario_id else None
@@ -126,6 +151,7 @@ async def save_plan(
     if team_id is None or period_id is None:
         raise InputError("team_id and period_id: choose the team and the period.", field="team_id")
     name, errors = _name(form_text(form, "name"))
+    status_code = 422
     if name is not None:
         changes = changes_from_json(scenario.changes) if scenario else ScenarioChanges()
         try:
@@ -137,20 +163,28 @@ async def save_plan(
                 resolution=settings.resolution_days,
                 scenario_name=scenario.name if scenario else None,
             )
-        except LoadlineError as exc:
-            errors = {exc.field or "form": exc.message}
-        else:
             db_plan = store.save_plan(
                 session,
                 name=name,
                 snapshot=snapshot,
                 scenario_changes=changes.to_json(),
                 actor=_actor(form_text(form, "created_by")),
+                scenario=scenario,
+                based_on=form_text(form, "based_on") or None,
+                shown_digest=form_text(form, "shown_digest") or None,
             )
+        except LoadlineError as exc:
+            errors, status_code = {exc.field or "form": exc.message}, exc.status_code
+        else:
             return see_other(f"/plans/{db_plan.id}")
-    context = _save_context(session, team_id, period_id, scenario_id)
-    context |= {"form": {"name": form_text(form, "name")}, "errors": errors}
-    return render(templates, request, "plans/save.html", context, status_code=422)
+    typed = {"name": form_text(form, "name"), "created_by": form_text(form, "created_by")}
+    if scenario is not None:
+        context = _scenario_context(session, scenario.id or 0, settings)
+        context |= {"save_form": typed, "save_errors": errors}
+        return render(templates, request, "plans/scenario.html", context, status_code=status_code)
+    context = _save_context(session, team_id, period_id, settings)
+    context |= {"form": typed, "errors": errors}
+    return render(templates, request, "plans/save.html", context, status_code=status_code)
 
 
 # --- saved plans ---------------------------------------------------------------------------
@@ -279,8 +313,13 @@ def compare_page(
         return see_other("/compare?plans=" + query)
     comparison = compare(db_plans)
     names = {p.label: p.name for p in comparison.plans}
+    # Columns are told apart by name and save time to the minute; by number when both match.
+    stamps = {p.id: p.created_at.strftime("%Y-%m-%d %H:%M") for p in comparison.plans}
+    seen = Counter((p.name, stamps[p.id]) for p in comparison.plans)
     context = {
         "comparison": comparison,
+        "stamps": stamps,
+        "alike": {p.id for p in comparison.plans if seen[(p.name, stamps[p.id])] > 1},
         "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
         "query": query,
     }
@@ -317,13 +356,24 @@ def _scenarios_context(
     if period_id is None and periods:
         period_id = periods[0].id
     period = get_period(session, period_id=period_id) if period_id is not None else None
+    scenarios = (
+        store.list_scenarios(session, team_id=team_id, period_id=period_id) if period else []
+    )
     context: dict[str, Any] = {
         "team": team,
         "periods": periods,
         "period": period,
-        "scenarios": store.list_scenarios(session, team_id=team_id, period_id=period_id)
-        if period
-        else [],
+        "scenarios": scenarios,
+        "figures": {
+            s.id: figures_of(
+                session,
+                team_id=team_id,
+                period_id=s.period_id,
+                changes=changes_from_json(s.changes),
+                resolution=settings.resolution_days,
+            )
+            for s in scenarios[:LISTED_FIGURES]
+        },
         "form": {},
         "errors": {},
     }
@@ -340,8 +390,16 @@ def scenarios_page(
     templates: TemplatesDep,
     settings: SettingsDep,
     period_id: QueryId = None,
+    deleted: QueryId = None,
 ) -> Response:
     context = _scenarios_context(session, team_id, period_id, settings)
+    # After a delete: said from the audit entry, so the address cannot put words on the page.
+    name = (
+        store.deleted_scenario_name(session, scenario_id=deleted, team_id=team_id)
+        if deleted is not None
+        else None
+    )
+    context["notice"] = f"Deleted scenario “{name}”." if name else None
     # A what-if brought from the live plan starts the form; the post checks it like any value.
     context["form"] = {
         key: value
@@ -428,11 +486,12 @@ def _scenario_context(
         changes=changes,
         resolution=settings.resolution_days,
     )
-    view = (
-        view_from_snapshot(scenario_snapshot(session, outcome, name=db_scenario.name))
+    snapshot = (
+        scenario_snapshot(session, outcome, name=db_scenario.name)
         if outcome.plan is not None
         else None
     )
+    view = view_from_snapshot(snapshot) if snapshot is not None else None
     return {
         "scenario": db_scenario,
         "based_on": store.scenario_fingerprint(db_scenario),
@@ -448,6 +507,8 @@ def _scenario_context(
         "errors": {},
         "save_form": {"name": db_scenario.name},
         "save_errors": {},
+        "delete_error": None,
+        "shown_digest": snapshot.digest if snapshot is not None else "",
     }
 
 
@@ -499,10 +560,23 @@ async def update_scenario(
 
 
 @router.post("/scenarios/{scenario_id}/delete")
-async def delete_scenario(scenario_id: PathId, request: Request, session: SessionDep) -> Response:
+async def delete_scenario(
+    scenario_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+) -> Response:
     form = await request.form()
     db_scenario = store.get_scenario(session, scenario_id=scenario_id)
-    target = f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        context = _scenario_context(session, scenario_id, settings)
+        context["delete_error"] = f"Tick “Yes, delete scenario {db_scenario.name}” to delete it."
+        return render(templates, request, "plans/scenario.html", context, status_code=422)
+    target = (
+        f"/teams/{db_scenario.team_id}/scenarios?period_id={db_scenario.period_id}"
+        f"&deleted={scenario_id}"
+    )
     actor = _actor(form_text(form, "created_by"))
     store.delete_scenario(session, scenario_id=scenario_id, actor=actor)
     return see_other(target)

@@ -19,10 +19,19 @@ from sqlalchemy import event
 from sqlmodel import Session, col, func, select
 
 from server.actor import current_actor
-from server.errors import ConflictError, InputError, NotFoundError
-from server.models import Initiative, Period, Publication, SavedPlan, Scenario, Team, utcnow
+from server.errors import ConflictError, InputError, NotFoundError, StaleVersionError
+from server.models import (
+    AuditEntry,
+    Initiative,
+    Period,
+    Publication,
+    SavedPlan,
+    Scenario,
+    Team,
+    utcnow,
+)
 from server.planning.exports import ImportedPlan
-from server.planning.scenarios import ScenarioChanges
+from server.planning.scenarios import ScenarioChanges, changes_from_json, changes_in_words
 from server.planning.snapshots import Snapshot
 from server.store import audit
 from server.store._common import (
@@ -41,7 +50,7 @@ from server.store.initiatives import (
     title_keys_in,
 )
 from server.store.periods import get_period
-from server.store.teams import get_team
+from server.store.teams import get_team, list_members
 from server.wording import counted, quoted
 
 TOKEN_BYTES = 32
@@ -160,12 +169,29 @@ def update_scenario(
     return db_scenario
 
 
+def scenario_in_words(session: Session, db_scenario: Scenario) -> list[str]:
+    """What a scenario changes, in words, members and initiatives named as they are now."""
+    changes = changes_from_json(db_scenario.changes)
+    members = {m.id or 0: m.name for m in list_members(session, team_id=db_scenario.team_id)}
+    ids = [*changes.forced_in, *changes.forced_out]
+    rows = session.exec(select(Initiative).where(col(Initiative.id).in_(ids))) if ids else []
+    titles = {row.id or 0: row.title for row in rows}
+    return changes_in_words(changes, members=members, titles=titles)
+
+
 def delete_scenario(
     session: Session, *, scenario_id: int, actor: str = "", based_on: BasedOn = None
 ) -> None:
-    """Delete a scenario; `based_on`: see `refuse_if_changed`."""
+    """Delete a scenario; its audit entry says what it changed, to make it again by hand.
+
+    `based_on`: see `refuse_if_changed`."""
     db_scenario = get_scenario(session, scenario_id=scenario_id)
     _refuse_if_scenario_changed(db_scenario, based_on)
+    words = scenario_in_words(session, db_scenario)
+    changed = "; ".join(words) if words else "nothing (it was the live plan)"
+    summary = f"Deleted scenario “{db_scenario.name}”, which changed: {changed}"
+    if len(summary) > 300:  # the summary's column; the whole list is in `before`
+        summary = summary[:298].rstrip() + " …"
     audit.record(
         session,
         actor=actor,
@@ -173,14 +199,75 @@ def delete_scenario(
         entity="scenario",
         entity_id=scenario_id,
         team_id=db_scenario.team_id,
-        summary=f"Deleted scenario “{db_scenario.name}”",
-        before={"name": db_scenario.name, "changes": db_scenario.changes},
+        summary=summary,
+        before={"name": db_scenario.name, "changes": db_scenario.changes, "in_words": words},
     )
     session.delete(db_scenario)
     session.commit()
 
 
+def deleted_scenario_name(session: Session, *, scenario_id: int, team_id: int) -> str | None:
+    """The name of a scenario of this team deleted earlier, from its audit entry."""
+    query = (
+        select(AuditEntry)
+        .where(
+            AuditEntry.action == "scenario.delete",
+            AuditEntry.entity_id == scenario_id,
+            AuditEntry.team_id == team_id,
+        )
+        .order_by(col(AuditEntry.id).desc())
+    )
+    entry = session.exec(query).first()
+    if entry is None or not entry.before or session.get(Scenario, scenario_id) is not None:
+        return None
+    return str(entry.before.get("name", "")) or None
+
+
 # --- saved plans ---------------------------------------------------------------------------
+
+
+def _figures(snapshot: Snapshot) -> str:
+    result = snapshot.result
+    return (
+        f"value {round(result.value, 2):g}, {round(result.effort, 2):g} of "
+        f"{round(result.capacity, 2):g} days"
+    )
+
+
+_LOOK_AGAIN = (
+    "Nothing was saved. This page now shows the new figures: look at them, then save again "
+    "to freeze them."
+)
+
+
+def refuse_if_not_as_shown(
+    snapshot: Snapshot,
+    *,
+    scenario: Scenario | None = None,
+    based_on: str | None = None,
+    shown_digest: str | None = None,
+) -> None:
+    """Refuse to freeze a plan other than the one the saving page showed.
+
+    `based_on` is the scenario's fingerprint when its page was drawn (`scenario_fingerprint`);
+    `shown_digest` the inputs digest of the plan the page showed (the live plan's, or the
+    scenario's solved on live data), which moves when any input of the plan does: capacity,
+    days off, an initiative's estimate, value or state. None: not checked (the JSON API).
+    """
+    if scenario is not None and based_on is not None and based_on != scenario_fingerprint(scenario):
+        changed = "; ".join(snapshot.result.changed_inputs) or "no inputs (the live plan)"
+        raise StaleVersionError(
+            f"Scenario “{scenario.name}” was changed since this page was shown: it now "
+            f"changes {changed}, which gives {_figures(snapshot)}. {_LOOK_AGAIN}",
+            current={"name": scenario.name, "changes": scenario.changes},
+        )
+    if shown_digest is not None and shown_digest != snapshot.digest:
+        what = f"scenario “{scenario.name}”" if scenario is not None else "the live plan"
+        raise StaleVersionError(
+            f"The live data of {what} changed since this page was shown (capacity, days off or "
+            f"initiatives): it now gives {_figures(snapshot)}. {_LOOK_AGAIN}",
+            current={"inputs_digest": snapshot.digest},
+        )
 
 
 def save_plan(
@@ -190,8 +277,18 @@ def save_plan(
     snapshot: Snapshot,
     scenario_changes: dict[str, Any],
     actor: str = "",
+    scenario: Scenario | None = None,
+    based_on: str | None = None,
+    shown_digest: str | None = None,
 ) -> SavedPlan:
-    """Insert a frozen plan and its audit entry in one transaction."""
+    """Insert a frozen plan and its audit entry in one transaction.
+
+    Refused (StaleVersionError, nothing written) when the plan is not the one the saving
+    page showed: see `refuse_if_not_as_shown`.
+    """
+    refuse_if_not_as_shown(
+        snapshot, scenario=scenario, based_on=based_on, shown_digest=shown_digest
+    )
     team_ids = [t.id for t in snapshot.inputs.teams]
     db_plan = SavedPlan(
         name=name,
