@@ -49,7 +49,17 @@ def test_published_page_states_the_method_in_plain_words(
     html = TestClient(form_client.app).get(publish(form_client, plan["id"])["url"]).text
     shown = _visible(html)
     assert STEPS_IN_WORDS in shown
-    for jargon in ("milp", "HiGHS", "resolution by", "binary program", "DP rows", "KiB"):
+    assert "simulated runs of the low, likely and high estimates" in shown
+    for jargon in (
+        "milp",
+        "HiGHS",
+        "resolution by",
+        "binary program",
+        "DP rows",
+        "KiB",
+        "Monte Carlo",
+        "standard error",
+    ):
         assert jargon not in shown
     # The technical note is still there for the curious, folded away.
     assert re.search(r"<details[^>]*>\s*<summary>How it was worked out</summary>", html)
