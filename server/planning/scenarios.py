@@ -432,6 +432,9 @@ def scenario_snapshot(session: Session, outcome: ScenarioOutcome, *, name: str |
         outcome.plan,
         scenario_name=name,
         changed_inputs=[c.text for c in outcome.changed],
+        live_days_off=sum(m.days_off for m in outcome.baseline.inputs.capacity.members)
+        if outcome.changes.days_off
+        else None,
     )
 
 

@@ -201,6 +201,9 @@ class PlanResult(BaseModel):
     p50_value: float | None
     scenario_name: str | None
     changed_inputs: list[str]  # the scenario's changes in words, as they were at saving
+    # The team's total days off in the live data, kept when a scenario changes days off, so a
+    # published link can state the change as a team total. Older snapshots lack it.
+    live_days_off: float | None = None
 
 
 @dataclass(frozen=True)
@@ -371,7 +374,12 @@ def _curve_of(plan: LivePlan) -> CurveSnapshot | None:
     )
 
 
-def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[str]) -> PlanResult:
+def _result_of(
+    plan: LivePlan,
+    scenario_name: str | None,
+    changed_inputs: list[str],
+    live_days_off: float | None = None,
+) -> PlanResult:
     selection = plan.selection
     rounding = selection.rounding
     fit = plan.fit
@@ -429,6 +437,7 @@ def _result_of(plan: LivePlan, scenario_name: str | None, changed_inputs: list[s
         p50_value=plan.p50_value,
         scenario_name=scenario_name,
         changed_inputs=changed_inputs,
+        live_days_off=live_days_off,
     )
 
 
@@ -495,10 +504,11 @@ def snapshot_of(
     *,
     scenario_name: str | None = None,
     changed_inputs: list[str] | None = None,
+    live_days_off: float | None = None,
 ) -> Snapshot:
     """Freeze a live plan into its inputs and result documents and the inputs digest."""
     inputs = inputs_of(session, plan)
-    result = _result_of(plan, scenario_name, list(changed_inputs or []))
+    result = _result_of(plan, scenario_name, list(changed_inputs or []), live_days_off)
     return Snapshot(
         inputs=inputs, result=result, digest=inputs_digest(inputs.model_dump(mode="json"))
     )

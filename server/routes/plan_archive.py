@@ -66,6 +66,11 @@ router = APIRouter(include_in_schema=False)
 
 _TITLE = TypeAdapter(Title)
 MAX_UPLOAD_CHARS = 1_500_000
+REVOKE_CONFIRM = "I understand the address stops working for everyone who has it"
+REVOKE_UNCONFIRMED = (
+    f"Tick “{REVOKE_CONFIRM}” to revoke: a revoked link cannot be restored, and publishing "
+    "again makes a new address."
+)
 
 
 def _int(raw: str) -> int | None:
@@ -225,14 +230,11 @@ def _exists(session: SessionDep, model: Any, row_id: int) -> bool:
     return session.get(model, row_id) is not None
 
 
-@router.get("/plans/{plan_id}")
-def saved_plan_page(
-    plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
-) -> Response:
+def _saved_context(session: SessionDep, plan_id: int) -> dict[str, Any]:
     db_plan = store.get_plan(session, plan_id=plan_id)
     view = view_of(db_plan.inputs, db_plan.result)
     team, period = view.inputs.teams[0], view.inputs.period
-    context = {
+    return {
         "plan": db_plan,
         "view": view,
         # Links to live pages only while the plan's team and period exist: a saved plan
@@ -240,8 +242,16 @@ def saved_plan_page(
         "live": _exists(session, Team, team.id) and _exists(session, Period, period.id),
         "chart": single_curve_chart(view, label="Plan", name=db_plan.name),
         "publications": store.list_publications(session, plan_id=plan_id),
+        "revoke_confirm": REVOKE_CONFIRM,
+        "revoke_errors": {},
     }
-    return render(templates, request, "plans/saved.html", context)
+
+
+@router.get("/plans/{plan_id}")
+def saved_plan_page(
+    plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    return render(templates, request, "plans/saved.html", _saved_context(session, plan_id))
 
 
 @router.get("/plans/{plan_id}/changes")
@@ -272,9 +282,15 @@ async def publish_plan(plan_id: PathId, request: Request, session: SessionDep) -
 
 @router.post("/publications/{publication_id}/revoke")
 async def revoke_publication(
-    publication_id: PathId, request: Request, session: SessionDep
+    publication_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
 ) -> Response:
+    """Revoke a link once the box saying it stops for everyone is ticked; refused otherwise."""
     form = await request.form()
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        db_publication = store.get_publication(session, publication_id=publication_id)
+        context = _saved_context(session, db_publication.plan_id)
+        context["revoke_errors"] = {publication_id: REVOKE_UNCONFIRMED}
+        return render(templates, request, "plans/saved.html", context, status_code=422)
     db_publication = store.revoke_publication(
         session, publication_id=publication_id, actor=_actor(form_text(form, "created_by"))
     )

@@ -4,6 +4,9 @@ Rendered only from the stored snapshot (one read of the publication, one of its 
 solve), on a base template with no navigation, no forms, no scripts and no CSRF token, so the
 page is byte-for-byte the same on every view while the snapshot is. It asks not to be indexed
 and sends no referrer. A revoked link answers 410 at once; an unknown one 404.
+
+Whoever holds the link sees team totals only (planning.published_view): no member names, no
+per-member days off, not who saved the plan. There are no downloads behind a link.
 """
 
 from __future__ import annotations
@@ -17,6 +20,7 @@ from fastapi.responses import Response
 
 from server.deps import SessionDep, TemplatesDep
 from server.planning.compare import single_curve_chart
+from server.planning.published_view import published_view_of
 from server.planning.snapshots import view_of
 from server.store import plans as store
 
@@ -67,5 +71,5 @@ def published_plan(
         return _page(templates, request, "plans/published_missing.html", {"gone": True}, 410)
     view = view_of(db_plan.inputs, db_plan.result)
     chart = single_curve_chart(view, label="Plan", name=db_plan.name)
-    context = {"plan": db_plan, "view": view, "chart": chart}
+    context = {"plan": db_plan, "view": view, "chart": chart, "public": published_view_of(view)}
     return _page(templates, request, "plans/published.html", context, 200)

@@ -37,7 +37,10 @@ def add_period(page: Page, base: str, name: str) -> None:
     form.get_by_label("First day").fill("2027-03-01")
     form.get_by_label("Last day").fill("2027-03-12")
     form.get_by_role("button", name="Add period").click()
-    expect(page.get_by_role("cell", name=name, exact=True)).to_be_visible()
+    # The new period is listed, its name leading to its overview.
+    expect(page.get_by_role("link", name=name, exact=True)).to_have_attribute(
+        "href", re.compile(r"/periods/\d+/overview$")
+    )
 
 
 def add_team(page: Page, base: str, name: str) -> int:

@@ -122,10 +122,10 @@ def test_revoking_answers_410_at_once_and_is_audited(
     assert gone.headers["referrer-policy"] == "no-referrer"
     assert form_client.get(second["url"]).status_code == 200  # other links stay
 
-    # The page's revoke button does the same, with the form token.
+    # The page's revoke button does the same, with the form token and the box ticked.
     page_revoke = form_client.post(
         f"/publications/{second['id']}/revoke",
-        data={"csrf_token": form_client.csrf},  # type: ignore[attr-defined]
+        data={"csrf_token": form_client.csrf, "confirm": "yes"},  # type: ignore[attr-defined]
         follow_redirects=False,
     )
     assert page_revoke.status_code == 303
@@ -150,6 +150,42 @@ def test_revoke_without_the_form_token_is_refused(
     refused = form_client.post(f"/publications/{link['id']}/revoke", data={})
     assert refused.status_code == 403
     assert form_client.get(link["url"]).status_code == 200
+
+
+def test_revoking_on_the_page_asks_to_confirm_and_changes_nothing_unconfirmed(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    plan = save_live(form_client, workspace)
+    link = publish(form_client, plan["id"])
+    page = form_client.get(f"/plans/{plan['id']}").text
+    box = (
+        '<input type="checkbox" name="confirm" value="yes" required> I understand the address '
+        "stops working for everyone who has it"
+    )
+    assert box in page  # the browser asks for the tick before sending, without JavaScript
+
+    before = counts(session)
+    for unticked in ({}, {"confirm": ""}, {"confirm": "on"}):
+        refused = form_client.post(
+            f"/publications/{link['id']}/revoke",
+            data={"csrf_token": form_client.csrf, **unticked},  # type: ignore[attr-defined]
+            follow_redirects=False,
+        )
+        assert refused.status_code == 422
+        form = refused.text.split(f'action="/publications/{link["id"]}/revoke"', 1)[1]
+        form = form.split("</form>", 1)[0]
+        assert 'role="alert"' in form  # the message beside the box it asks for
+        assert "Tick “I understand the address stops working for everyone who has it”" in form
+        assert counts(session) == before
+        assert form_client.get(link["url"]).status_code == 200
+
+    ticked = form_client.post(
+        f"/publications/{link['id']}/revoke",
+        data={"csrf_token": form_client.csrf, "confirm": "yes"},  # type: ignore[attr-defined]
+        follow_redirects=False,
+    )
+    assert ticked.status_code == 303
+    assert form_client.get(link["url"]).status_code == 410
 
 
 def _raw_get(app: object, path: str) -> tuple[int, dict[str, str], bytes]:

@@ -1,0 +1,84 @@
+"""A published plan and its saved plan page read on a phone: nothing wider than the screen."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from typing import Any
+
+import pytest
+from playwright.sync_api import Browser
+from sqlmodel import Session
+
+from server.db import make_engine
+from server.planning.scenarios import ScenarioChanges, capture
+from server.store import plans as store
+from server.store.periods import list_periods
+from server.store.teams import list_members, list_teams
+from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
+from tests.browser.flows import screenshot
+
+pytestmark = pytest.mark.browser
+
+PHONE = {"width": 390, "height": 844}
+
+
+@pytest.fixture
+def published(live_server: LiveServer) -> Iterator[tuple[int, str]]:
+    """A demo team's plan saved from a scenario with more days off, and its published token."""
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        period = list_periods(session)[0]
+        team = max(list_teams(session), key=lambda t: len(list_members(session, team_id=t.id)))
+        member = list_members(session, team_id=team.id or 0)[0]
+        snapshot = capture(
+            session,
+            team_id=team.id or 0,
+            period_id=period.id or 0,
+            changes=ScenarioChanges(days_off={member.id or 0: 3}),
+            resolution=live_server.settings.resolution_days,
+            scenario_name="Longer absence with a deliberately unbreakable-long-designation",
+        )
+        db_plan = store.save_plan(
+            session, name="Phone check", snapshot=snapshot, scenario_changes={}, actor="meeting"
+        )
+        token = store.publish_plan(session, plan_id=db_plan.id or 0).token
+        yield db_plan.id or 0, token
+    engine.dispose()
+
+
+def _widths(page: Any) -> dict[str, int]:
+    return page.evaluate(
+        "() => ({scroll: document.documentElement.scrollWidth,"
+        " body: document.body.scrollWidth, view: window.innerWidth})"
+    )
+
+
+def test_published_and_saved_plan_pages_fit_a_390_px_screen(
+    browser: Browser, live_server: LiveServer, published: tuple[int, str], watch: Any
+) -> None:
+    plan_id, token = published
+    context = browser.new_context(viewport=PHONE)
+    try:
+        page = context.new_page()
+        page.set_default_timeout(WAIT_MS)
+        watch(page)
+        page.goto(f"{live_server.url}/p/{token}")
+        assert page.get_by_role("heading", name="Phone check").is_visible()
+        widths = _widths(page)
+        screenshot(page, "published-390")
+        assert widths["view"] == PHONE["width"]
+        assert widths["scroll"] <= widths["view"], widths
+        assert widths["body"] <= widths["view"], widths
+        # Every column of an initiative row is on the screen, not cut off to its right.
+        why = page.locator(".snap-initiatives tbody tr").first.locator("td").last
+        box = why.bounding_box()
+        assert box is not None
+        assert box["x"] + box["width"] <= PHONE["width"] + 0.5, box
+
+        sign_in(context, live_server)
+        page.goto(f"{live_server.url}/plans/{plan_id}")
+        widths = _widths(page)
+        screenshot(page, "saved-plan-390")
+        assert widths["scroll"] <= widths["view"], widths
+    finally:
+        context.close()
