@@ -7,8 +7,10 @@ are never offered, so undo cannot take the demo workspace apart. Each press reve
 newest such change that has not been undone yet, so pressing it again steps further back:
 - an update is reverted to its `before` values, as a new version (so open forms see it);
 - a creation is reverted by deleting the initiative;
-- a deletion is reverted by creating the initiative again (it gets a new id; later undos
-  follow the new id);
+- a deletion is reverted by storing the initiative again under its own id, with every team's
+  effort line and its needs (`store.initiatives.restore_initiatives`), so scenarios, saved
+  plans and other initiatives that name it by id find it again. Only where SQLite has handed
+  that id to a newer initiative does it come back under a new one (later undos follow it);
 - a paste is reverted as a whole (all its rows are deleted).
 
 An initiative that another one needs by now is not deleted: the undo is refused with the
@@ -23,7 +25,9 @@ last change the undo makes.
 
 from __future__ import annotations
 
+import datetime as dt
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -31,14 +35,16 @@ from sqlmodel import Session, col, select
 
 from server.actor import SYSTEM_ACTORS
 from server.errors import InputError, NotFoundError
-from server.models import AuditEntry, Initiative, Period, utcnow
+from server.models import AuditEntry, Initiative, Period, Team, utcnow
 from server.schemas import InitiativeCreate, InitiativeUpdate
 from server.store import audit
 from server.store.initiatives import (
-    create_initiative,
+    Restoring,
     delete_initiative,
     delete_initiatives,
+    existing_initiative_ids,
     get_initiative,
+    restore_initiatives,
     update_initiative,
 )
 from server.validation import parse_form
@@ -266,10 +272,12 @@ def _revert(
         marker = _mark(session, entry, team_id, actor, initiative_id)
         delete_initiative(session, initiative_id=initiative_id, actor=actor)
         return marker, f"Removed {_quoted_title(entry)} again."
-    marker = _mark(session, entry, team_id, actor, None)
-    new_id = _recreate(session, entry.before or {}, actor)
-    marker.entity_id = new_id
-    marker.after = {"undid": entry.id, "recreated": {str(entry.entity_id): new_id}}
+    old_id = _current_id(history, entry.entity_id or 0)
+    marker = _mark(session, entry, team_id, actor, old_id)
+    recreated = _restore(session, [(entry.before or {}) | {"id": old_id}], actor)
+    marker.after = (marker.after or {}) | {"recreated": recreated}
+    if recreated:
+        marker.entity_id = recreated[str(old_id)]
     session.add(marker)
     session.commit()
     return marker, f"Brought back {_quoted_title(entry)}."
@@ -336,30 +344,67 @@ def _revert_update(
     update_initiative(session, initiative_id=initiative_id, initiative_in=update_in, actor=actor)
 
 
-def _recreate(session: Session, before: dict[str, Any], actor: str) -> int:
-    period_id = before.get("period_id")
-    if period_id is not None and session.get(Period, period_id) is None:
-        period_id = None
-    needs = [n for n in before.get("needs", []) if _exists(session, int(n))]
-    values = {
-        "team_id": before.get("team_id"),
-        "period_id": period_id,
-        "title": before.get("title"),
-        "notes": before.get("notes", ""),
-        "effort": _effort_in(before.get("effort") or {}),
-        "other_efforts": [
-            _effort_in(line) | {"team_id": line.get("team_id")}
-            for line in before.get("other_efforts", [])
-        ],
-        "value": before.get("value"),
-        "confidence": before.get("confidence"),
-        "state": before.get("state", "candidate"),
-        "either_or": before.get("either_or"),
-        "needs": needs,
+def _restore(session: Session, snapshots: Sequence[dict[str, Any]], actor: str) -> dict[str, int]:
+    """Store deleted initiatives again from their delete entries' `before`, under their ids.
+
+    Needs on initiatives deleted since, effort lines of teams deleted since and a deleted
+    period are left out (the initiative goes to the backlog). Not committed. Returns the new
+    ids of those whose old id was taken (SQLite only), as {old id: new id}.
+    """
+    wanted = {int(s.get("id") or 0) for s in snapshots}
+    needed = {int(n) for s in snapshots for n in s.get("needs", [])}
+    present = existing_initiative_ids(session, needed) | wanted
+    restoring: list[Restoring] = []
+    for before in snapshots:
+        period_id = before.get("period_id")
+        if period_id is not None and session.get(Period, period_id) is None:
+            period_id = None
+        values = {
+            "team_id": before.get("team_id"),
+            "period_id": period_id,
+            "title": before.get("title"),
+            "notes": before.get("notes", ""),
+            "effort": _effort_in(before.get("effort") or {}),
+            "other_efforts": [
+                _effort_in(line) | {"team_id": line.get("team_id")}
+                for line in before.get("other_efforts", [])
+                if _team_exists(session, line.get("team_id"))
+            ],
+            "value": before.get("value"),
+            "confidence": before.get("confidence"),
+            "state": before.get("state", "candidate"),
+            "either_or": before.get("either_or"),
+            "needs": [int(n) for n in before.get("needs", []) if int(n) in present],
+        }
+        create_in, errors = parse_form(InitiativeCreate, values)
+        if create_in is None:
+            field, message = next(iter(errors.items()))
+            raise InputError(f"{field}: the deleted initiative cannot be restored ({message}).")
+        restoring.append(
+            Restoring(
+                initiative_id=int(before.get("id") or 0),
+                initiative_in=create_in,
+                position=before.get("position"),
+                created_at=_timestamp(before.get("created_at")),
+                version=int(before.get("version") or 1),
+            )
+        )
+    records = restore_initiatives(session, restoring=restoring, actor=actor)
+    return {
+        str(r.initiative_id): record.row.id or 0
+        for r, record in zip(restoring, records, strict=True)
+        if record.row.id != r.initiative_id
     }
-    create_in, errors = parse_form(InitiativeCreate, values)
-    if create_in is None:
-        field, message = next(iter(errors.items()))
-        raise InputError(f"{field}: the deleted initiative cannot be restored ({message}).")
-    record = create_initiative(session, initiative_in=create_in, commit=False, actor=actor)
-    return record.row.id or 0
+
+
+def _team_exists(session: Session, team_id: Any) -> bool:
+    return isinstance(team_id, int) and session.get(Team, team_id) is not None
+
+
+def _timestamp(value: Any) -> dt.datetime | None:
+    if not isinstance(value, str):
+        return None
+    try:
+        return dt.datetime.fromisoformat(value)
+    except ValueError:
+        return None

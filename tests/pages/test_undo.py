@@ -94,7 +94,7 @@ def test_undo_a_creation_deletes_and_a_deletion_recreates(session: Session) -> N
         "Rails",
         "north side",
     )
-    # The next undo reverts the creation of "Crane rail", following it to its new id.
+    # The next undo reverts the creation of "Crane rail", back under the id it was made with.
     outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert outcome.entry.action == "initiative.create"
     assert outcome.summary == "Removed “Crane rail” again."
