@@ -1,4 +1,7 @@
-"""Undo a team's last change to its initiatives in a period, from the audit trail.
+"""Undo of a team's last change to its initiatives in a period, from the audit trail.
+
+Undo covers initiatives only (created, changed, deleted, moved, pasted); capacity settings,
+members and days off are not undone, and the plan page says so beside the button.
 
 The plan page of a period offers the team's last change that touched that period (an
 initiative created, changed or deleted there, or moved in or out of it), made by a person:
@@ -15,6 +18,10 @@ newest such change that has not been undone yet, so pressing it again steps furt
 
 An initiative that another one needs by now is not deleted: the undo is refused with the
 dependants named (the store's rule for every deletion).
+
+Another person's change is reverted only when the request confirms that change by its entry
+id (the page's tick box naming whose change it is); one's own change takes one press. The
+form also names the entry it offered, so a change made meanwhile is not reverted unseen.
 
 The undo itself is recorded as an `initiative.undo` entry naming the entry it reverted and the
 entries its own changes wrote, and the reverted entry gets `undone_at`. Changes an undo makes
@@ -33,8 +40,8 @@ from typing import Any
 
 from sqlmodel import Session, col, select
 
-from server.actor import SYSTEM_ACTORS
-from server.errors import InputError, NotFoundError
+from server.actor import SYSTEM_ACTORS, current_actor
+from server.errors import ConflictError, InputError, NotFoundError
 from server.models import AuditEntry, Initiative, Period, Team, utcnow
 from server.schemas import InitiativeCreate, InitiativeUpdate
 from server.store import audit
@@ -52,6 +59,7 @@ from server.wording import counted
 
 UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
 UNDO_ACTION = "initiative.undo"
+COVERS = "Undo covers this plan's initiative changes, not capacity, focus factor or days off."
 HISTORY_DEPTH = 300  # entries read: undo steps back through recent changes, not all time
 _UPDATABLE = (
     "period_id",
@@ -71,6 +79,16 @@ _UPDATABLE = (
 class UndoOutcome:
     entry: AuditEntry  # the change that was reverted
     summary: str  # what the undo did, in plain words
+
+
+@dataclass(frozen=True)
+class Offer:
+    """What the undo button of a plan page would revert."""
+
+    entry_id: int  # the audit entry it reverts; the form sends it back
+    text: str  # the change in plain words, and whose it is
+    actor: str  # who made it
+    others: bool  # another person's: reverting it needs a confirmation
 
 
 @dataclass(frozen=True)
@@ -114,7 +132,7 @@ def _current_id(history: _History, initiative_id: int) -> int:
 
 
 def _exists(session: Session, initiative_id: int) -> bool:
-    return session.get(Initiative, initiative_id) is not None
+    return bool(existing_initiative_ids(session, [initiative_id]))
 
 
 def _still_undoable(session: Session, history: _History, entry: AuditEntry) -> bool:
@@ -215,10 +233,48 @@ def offer_text(entry: AuditEntry, viewer: str) -> str:
     return f"{entry.summary} ({whose})"
 
 
+def undo_offer(session: Session, *, team_id: int, period_id: int | None) -> Offer | None:
+    """The plan page's undo button, for the person asking, or None."""
+    entry = last_change(session, team_id=team_id, period_id=period_id)
+    if entry is None:
+        return None
+    viewer = current_actor.get()
+    return Offer(entry.id or 0, offer_text(entry, viewer), entry.actor, entry.actor != viewer)
+
+
+def _refuse_unconfirmed(
+    entry: AuditEntry, *, offered: int | None, confirmed: int | None, what: str, button: str
+) -> None:
+    """Refuse to revert a change the page did not offer, or another person's unconfirmed."""
+    viewer = current_actor.get()
+    if offered is not None and offered != entry.id:
+        raise ConflictError(
+            f"The last {what} is now another one: {offer_text(entry, viewer)}. Nothing was "
+            f"reverted; look at it and press {button} again.",
+            field=what,
+        )
+    if entry.actor != viewer and confirmed != entry.id:
+        raise ConflictError(
+            f"“{entry.summary}” is {entry.actor}'s {what}, not yours: tick “Revert "
+            f"{entry.actor}'s {what}” and press {button} to revert it. Nothing was reverted.",
+            field=what,
+        )
+
+
 def undo_last_change(
-    session: Session, *, team_id: int, period_id: int | None, actor: str = ""
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int | None,
+    actor: str = "",
+    offered: int | None = None,
+    confirmed: int | None = None,
 ) -> UndoOutcome:
-    """Revert the team's last change in the period; NotFoundError when there is none."""
+    """Revert the team's last change in the period; NotFoundError when there is none.
+
+    offered: the entry the page showed, refused when the last change is another one by now.
+    confirmed: the entry the person confirmed reverting; needed for another person's change.
+    """
     # Deletes cascade in the database, so rows loaded earlier in this session may be gone;
     # SQLite can hand their ids to the rows an undo creates. Start from an empty identity map.
     session.expunge_all()
@@ -227,6 +283,7 @@ def undo_last_change(
         raise NotFoundError(
             "There is no change of this team in this period left to undo.", field="undo"
         )
+    _refuse_unconfirmed(entry, offered=offered, confirmed=confirmed, what="change", button="Undo")
     history = _history(session, team_id)
     before_id = _max_entry_id(session)
     try:
@@ -234,20 +291,22 @@ def undo_last_change(
     except Exception:  # nothing of a failed undo stays half-done in the session
         session.rollback()
         raise
-    produced = [
-        e.id or 0
-        for e in session.exec(
-            select(AuditEntry).where(
-                col(AuditEntry.id) > before_id,
-                AuditEntry.action != UNDO_ACTION,
-                AuditEntry.team_id == team_id,
-            )
-        )
-    ]
-    marker.after = (marker.after or {}) | {"produced": produced}
+    marker.after = (marker.after or {}) | {
+        "period_id": period_id,
+        "produced": _produced_since(session, before_id, team_id),
+    }
     session.add(marker)
     session.commit()
     return UndoOutcome(entry=entry, summary=done)
+
+
+def _produced_since(session: Session, before_id: int, team_id: int) -> list[int]:
+    query = select(AuditEntry.id).where(
+        col(AuditEntry.id) > before_id,
+        AuditEntry.action != UNDO_ACTION,
+        AuditEntry.team_id == team_id,
+    )
+    return [int(i or 0) for i in session.exec(query)]
 
 
 def _revert(
@@ -256,7 +315,7 @@ def _revert(
     """Make the reverting change; the undo's marks are committed with its last write."""
     if entry.action == "initiative.paste":
         ids = [_current_id(history, int(i)) for i in (entry.after or {}).get("initiative_ids", [])]
-        present = [i for i in ids if _exists(session, i)]
+        present = sorted(existing_initiative_ids(session, ids), key=ids.index)
         # One commit for all the rows and the marks: needs between pasted rows go with them,
         # and a row another initiative needs by now refuses the whole undo.
         marker = _mark(session, entry, team_id, actor, None)

@@ -22,8 +22,9 @@ from tests.pages.test_plan_pages import HX, build, post_form
 
 @pytest.fixture(autouse=True)
 def signed_in() -> Iterator[None]:
-    """Changes made through the store here count as a person's, as the app's requests do."""
-    token = current_actor.set("ola")
+    """Changes made through the store here count as the signed-in admin's, as the app's
+    requests by the test client do (so undoing them is undoing one's own change)."""
+    token = current_actor.set("admin")
     yield
     current_actor.reset(token)
 
