@@ -27,7 +27,7 @@ from server.planning.curve_chart import (
 )
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
 from server.planning.undo import COVERS as UNDO_COVERS
-from server.planning.undo import Offer, undo_offer
+from server.planning.undo import Offer, redo_offer, undo_offer
 from server.selector import SelectorInputError, default_curve_to
 from server.selector.risk import FitEstimate, pert_mean, pert_sd
 from server.store.initiatives import InitiativeRecord, list_initiatives
@@ -485,6 +485,7 @@ class PlanView:
     curve_probed: bool  # True: found by solving at capacities (binary program), not the DP
     risk: RiskView | None
     undo: Offer | None  # what the undo button reverts, None: nothing
+    redo: Offer | None  # the undo the redo button reverts
     titles: Mapping[str, str]
     explained: bool  # explanations are in the page (else fetched per row)
 
@@ -579,6 +580,7 @@ def build_plan_view(
     )
     period_id = period.id if period else None
     undo = undo_offer(session, team_id=team_id, period_id=period_id)
+    redo = redo_offer(session, team_id=team_id, period_id=period_id)
     totals = bar = chart = risk = None
     readouts: tuple[Readout, ...] = ()
     delta = None
@@ -641,6 +643,7 @@ def build_plan_view(
         curve_probed=curve_probed,
         risk=risk,
         undo=undo,
+        redo=redo,
         titles=titles,
         explained=bool(explain),
     )
@@ -737,6 +740,7 @@ def plan_json(view: PlanView) -> dict[str, Any]:
             "value_given_up": view.risk.value_given_up,
         },
         "undo": view.undo.text if view.undo else None,
+        "redo": view.redo.text if view.redo else None,
     }
 
 

@@ -1,4 +1,4 @@
-"""Undo of a team's last change to its initiatives in a period, from the audit trail.
+"""Undo and redo of a team's changes to its initiatives in a period, from the audit trail.
 
 Undo covers initiatives only (created, changed, deleted, moved, pasted); capacity settings,
 members and days off are not undone, and the plan page says so beside the button.
@@ -23,11 +23,15 @@ Another person's change is reverted only when the request confirms that change b
 id (the page's tick box naming whose change it is); one's own change takes one press. The
 form also names the entry it offered, so a change made meanwhile is not reverted unseen.
 
-The undo itself is recorded as an `initiative.undo` entry naming the entry it reverted and the
-entries its own changes wrote, and the reverted entry gets `undone_at`. Changes an undo makes
-are never offered for undoing themselves (that would be redo, which this does not offer).
-The reverted entry's mark and the undo entry are committed in the same transaction as the
-last change the undo makes.
+Redo: the newest undo of the team can itself be reverted, from the page of the period it was
+pressed on, as long as nothing else changed the team's initiatives since (a newer change is
+never overwritten by a redo). A redo reverts the undo's own changes (deleted rows come back
+under their ids), clears the `undone_at` of the change the undo reverted, so the next undo
+offers it again, and sets the undo's own `undone_at`. Redoing another person's undo asks for
+the same confirmation. Undo and redo entries (`initiative.undo`, `initiative.redo`) name the
+entry they revert and the entries their own changes wrote; those changes are never offered
+for undoing themselves. The marks and the entry are committed in the same transaction as the
+last change an undo or redo makes.
 """
 
 from __future__ import annotations
@@ -59,6 +63,8 @@ from server.wording import counted
 
 UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
 UNDO_ACTION = "initiative.undo"
+REDO_ACTION = "initiative.redo"
+RESTORE_ACTION = "initiative.restore"
 COVERS = "Undo covers this plan's initiative changes, not capacity, focus factor or days off."
 HISTORY_DEPTH = 300  # entries read: undo steps back through recent changes, not all time
 _UPDATABLE = (
@@ -77,13 +83,13 @@ _UPDATABLE = (
 
 @dataclass(frozen=True)
 class UndoOutcome:
-    entry: AuditEntry  # the change that was reverted
+    entry: AuditEntry  # the change (or, for a redo, the undo) that was reverted
     summary: str  # what the undo did, in plain words
 
 
 @dataclass(frozen=True)
 class Offer:
-    """What the undo button of a plan page would revert."""
+    """What the undo or redo button of a plan page would revert."""
 
     entry_id: int  # the audit entry it reverts; the form sends it back
     text: str  # the change in plain words, and whose it is
@@ -93,19 +99,19 @@ class Offer:
 
 @dataclass(frozen=True)
 class _History:
-    produced: set[int]  # ids of entries written by undos
+    produced: set[int]  # ids of entries written by undos and redos
     renamed: dict[int, int]  # initiative id -> id it was re-created as
     pasted: set[int]  # initiatives created by a paste (undone with the paste, not alone)
 
 
 def _history(session: Session, team_id: int) -> _History:
-    """What earlier undos and pastes said; read from their (few) entries only."""
+    """What earlier undos, redos and pastes said; read from their (few) entries only."""
     query = (
         select(AuditEntry)
         .where(
             AuditEntry.team_id == team_id,
             AuditEntry.entity == "initiative",
-            col(AuditEntry.action).in_((UNDO_ACTION, "initiative.paste")),
+            col(AuditEntry.action).in_((UNDO_ACTION, REDO_ACTION, "initiative.paste")),
         )
         .order_by(col(AuditEntry.id).desc())
         .limit(HISTORY_DEPTH)
@@ -115,7 +121,7 @@ def _history(session: Session, team_id: int) -> _History:
     pasted: set[int] = set()
     for entry in session.exec(query):
         after = entry.after or {}
-        if entry.action == UNDO_ACTION:
+        if entry.action in (UNDO_ACTION, REDO_ACTION):
             produced.update(int(i) for i in after.get("produced", []))
             renamed.update({int(k): int(v) for k, v in after.get("recreated", {}).items()})
         elif entry.undone_at is None:
@@ -226,6 +232,39 @@ def last_change(session: Session, *, team_id: int, period_id: int | None) -> Aud
     return None
 
 
+def last_undo(session: Session, *, team_id: int, period_id: int | None) -> AuditEntry | None:
+    """The undo the next redo on the team's plan for `period_id` would revert, or None.
+
+    That is the team's newest undo not redone yet, when it was pressed on this period's page
+    and no other change to the team's initiatives has been made since.
+    """
+    if period_id is None:
+        return None
+    history = _history(session, team_id)
+    query = (
+        select(
+            AuditEntry.id,
+            AuditEntry.action,
+            AuditEntry.undone_at,
+            col(AuditEntry.after)["period_id"].as_integer(),
+        )
+        .where(AuditEntry.team_id == team_id, AuditEntry.entity == "initiative")
+        .order_by(col(AuditEntry.id).desc())
+        .limit(HISTORY_DEPTH)
+    )
+    for entry_id, action, undone_at, pressed_on in session.exec(query):
+        if entry_id in history.produced or action == REDO_ACTION:
+            continue  # an undo's or redo's own changes, or a redo: keep looking back
+        if action == UNDO_ACTION:
+            if undone_at is not None:
+                continue  # redone already
+            return session.get(AuditEntry, entry_id) if pressed_on == period_id else None
+        if action in UNDOABLE and undone_at is not None:
+            continue
+        return None  # a change made after the last undo: a redo would overwrite it
+    return None
+
+
 def offer_text(entry: AuditEntry, viewer: str) -> str:
     """What the undo button would revert, and whose change it is: the plan is the team's, so
     the last change may be a colleague's, and the person pressing undo should know."""
@@ -240,6 +279,17 @@ def undo_offer(session: Session, *, team_id: int, period_id: int | None) -> Offe
         return None
     viewer = current_actor.get()
     return Offer(entry.id or 0, offer_text(entry, viewer), entry.actor, entry.actor != viewer)
+
+
+def redo_offer(session: Session, *, team_id: int, period_id: int | None) -> Offer | None:
+    """The plan page's redo button, for the person asking, or None."""
+    entry = last_undo(session, team_id=team_id, period_id=period_id)
+    if entry is None:
+        return None
+    viewer = current_actor.get()
+    whose = "your undo" if entry.actor == viewer else f"undone by {entry.actor}"
+    text = f"{entry.summary.removeprefix('Undid: ')} ({whose})"
+    return Offer(entry.id or 0, text, entry.actor, entry.actor != viewer)
 
 
 def _refuse_unconfirmed(
@@ -300,13 +350,85 @@ def undo_last_change(
     return UndoOutcome(entry=entry, summary=done)
 
 
+def redo_last_undo(
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int | None,
+    actor: str = "",
+    offered: int | None = None,
+    confirmed: int | None = None,
+) -> UndoOutcome:
+    """Revert the team's last undo in the period (see the module); NotFoundError if none."""
+    session.expunge_all()
+    undo = last_undo(session, team_id=team_id, period_id=period_id)
+    if undo is None:
+        raise NotFoundError(
+            "There is no undo of this team in this period left to redo.", field="redo"
+        )
+    _refuse_unconfirmed(undo, offered=offered, confirmed=confirmed, what="undo", button="Redo")
+    history = _history(session, team_id)
+    after = undo.after or {}
+    ids = [int(i) for i in after.get("produced", [])]
+    produced = [e for e in (session.get(AuditEntry, i) for i in ids) if e is not None]
+    before_id = _max_entry_id(session)
+    try:
+        reverted = session.get(AuditEntry, int(after.get("undid", 0)))
+        if reverted is not None:
+            reverted.undone_at = None
+            session.add(reverted)
+        undo.undone_at = utcnow()
+        session.add(undo)
+        marker = audit.record(
+            session,
+            actor=actor,
+            action=REDO_ACTION,
+            entity="initiative",
+            entity_id=undo.entity_id,
+            team_id=team_id,
+            summary=f"Redid: {reverted.summary if reverted is not None else undo.summary}",
+            after={"redid": undo.id, "period_id": period_id},
+        )
+        recreated = _reapply(session, history, produced, actor)
+    except Exception:
+        session.rollback()
+        raise
+    marker.after = (marker.after or {}) | {
+        "produced": _produced_since(session, before_id, team_id),
+        "recreated": recreated,
+    }
+    session.add(marker)
+    session.commit()
+    again = reverted.summary if reverted is not None else undo.summary.removeprefix("Undid: ")
+    return UndoOutcome(entry=undo, summary=f"Redid: {again}.")
+
+
 def _produced_since(session: Session, before_id: int, team_id: int) -> list[int]:
     query = select(AuditEntry.id).where(
         col(AuditEntry.id) > before_id,
-        AuditEntry.action != UNDO_ACTION,
+        col(AuditEntry.action).not_in((UNDO_ACTION, REDO_ACTION)),
         AuditEntry.team_id == team_id,
     )
     return [int(i or 0) for i in session.exec(query)]
+
+
+def _reapply(
+    session: Session, history: _History, produced: Sequence[AuditEntry], actor: str
+) -> dict[str, int]:
+    """Revert an undo's own changes (newest first); the new ids of rows that got one."""
+    produced = sorted(produced, key=lambda e: e.id or 0, reverse=True)
+    created = [e for e in produced if e.action in (RESTORE_ACTION, "initiative.create")]
+    if created:  # the undo brought rows back: delete them again
+        ids = [_current_id(history, e.entity_id or 0) for e in created]
+        delete_initiatives(session, initiative_ids=ids, actor=actor)
+    deleted = [e for e in produced if e.action == "initiative.delete"]
+    recreated: dict[str, int] = {}
+    if deleted:  # the undo deleted rows (a creation or a paste undone): bring them back
+        recreated = _restore(session, [e.before or {} for e in reversed(deleted)], actor)
+    for e in produced:
+        if e.action == "initiative.update":
+            _revert_update(session, _current_id(history, e.entity_id or 0), e.before or {}, actor)
+    return recreated
 
 
 def _revert(

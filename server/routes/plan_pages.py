@@ -33,7 +33,7 @@ from server.planning.plan_view import (
     parse_whatif,
     plan_json,
 )
-from server.planning.undo import UndoOutcome, undo_last_change
+from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
 from server.routes.forms import form_text, see_other
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
@@ -538,6 +538,17 @@ async def undo(
     templates: TemplatesDep,
 ) -> Response:
     return await _undo_or_redo(request, session, settings, templates, team_id, undo_last_change)
+
+
+@router.post("/teams/{team_id}/plan/redo")
+async def redo(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    return await _undo_or_redo(request, session, settings, templates, team_id, redo_last_undo)
 
 
 async def _undo_or_redo(

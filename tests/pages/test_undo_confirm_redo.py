@@ -1,4 +1,4 @@
-"""Undo asks before reverting a colleague's change and says what it covers."""
+"""Undo asks before reverting a colleague's change, says what it covers, and can be redone."""
 
 from __future__ import annotations
 
@@ -10,9 +10,12 @@ from sqlmodel import Session, select
 
 from server.actor import current_actor
 from server.models import AuditEntry, Initiative
+from server.planning.paste import commit_paste, parse_paste
+from server.planning.undo import undo_last_change
 from server.schemas import CapacitySettingsIn, InitiativeUpdate
-from server.store.initiatives import get_initiative, update_initiative
+from server.store.initiatives import delete_initiative, get_initiative, update_initiative
 from server.store.periods import set_capacity_settings
+from tests.factories import make_initiative
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import HX, Setup, build, post_form
 
@@ -147,3 +150,105 @@ def test_the_undo_area_says_it_covers_initiatives_only(
     root = _page(form_client, setup)
     assert root.find(id="undo-button") is None  # nothing left: the focus factor stays
     assert root.by_id("undo-covers").text() == covers
+
+
+def test_an_undo_can_be_redone_and_then_undone_again(
+    session: Session, form_client: TestClient
+) -> None:
+    setup = build(session)
+    audit_log = setup.ids["Audit log"]
+    with acting_as(ME):
+        _set_value(session, audit_log, 41)
+        _set_value(session, audit_log, 42)
+    assert _page(form_client, setup).find(id="redo-button") is None
+    _press(form_client, setup, "undo")
+    _press(form_client, setup, "undo")
+    assert _value(session, audit_log) == 30
+    root = _page(form_client, setup)
+    assert "Changed value of “Audit log” (your undo)" in root.by_id("redo-what").text()
+    redone = _press(form_client, setup, "redo")
+    assert redone.status_code == 200
+    assert "Redid" in parse_html(redone.text).by_id("notice").text()
+    assert _value(session, audit_log) == 41
+    assert _press(form_client, setup, "redo").status_code == 200
+    assert _value(session, audit_log) == 42
+    assert _page(form_client, setup).find(id="redo-button") is None  # nothing left to redo
+    # The redone change is offered for undo again.
+    _press(form_client, setup, "undo")
+    assert _value(session, audit_log) == 41
+
+
+def test_a_new_change_ends_the_redo(session: Session, form_client: TestClient) -> None:
+    setup = build(session)
+    audit_log = setup.ids["Audit log"]
+    with acting_as(ME):
+        _set_value(session, audit_log, 41)
+    _press(form_client, setup, "undo")
+    assert _page(form_client, setup).find(id="redo-button") is not None
+    with acting_as(ME):
+        _set_value(session, setup.ids["Billing fix"], 3)
+    assert _page(form_client, setup).find(id="redo-button") is None
+    refused = post_form(
+        form_client,
+        f"/teams/{setup.team.id}/plan/redo",
+        {"period_id": str(setup.period.id)},
+        **HX,
+    )
+    assert refused.status_code == 404
+    assert _value(session, audit_log) == 30
+
+
+def test_redoing_a_colleagues_undo_asks_first(session: Session, form_client: TestClient) -> None:
+    setup = build(session)
+    audit_log = setup.ids["Audit log"]
+    with acting_as("boss"):
+        _set_value(session, audit_log, 41)
+    with acting_as("boss"):
+        undo_last_change(session, team_id=setup.team.id or 0, period_id=setup.period.id)
+    root = _page(form_client, setup)
+    assert "(undone by boss)" in root.by_id("redo-what").text()
+    assert root.by_id("redo-confirm").get("required") is not None
+    assert _press(form_client, setup, "redo").status_code == 409
+    assert _value(session, audit_log) == 30
+    undo_entry = _entry_id(session, "initiative.undo")
+    assert _press(form_client, setup, "redo", confirm=str(undo_entry)).status_code == 200
+    assert _value(session, audit_log) == 41
+
+
+def test_redo_deletes_again_and_brings_back_under_the_same_ids(
+    session: Session, form_client: TestClient
+) -> None:
+    setup = build(session)
+    billing = setup.ids["Billing fix"]
+    with acting_as(ME):
+        delete_initiative(session, initiative_id=billing)
+    _press(form_client, setup, "undo")  # brought back
+    assert _value(session, billing) is not None
+    _press(form_client, setup, "redo")  # deleted again
+    assert _value(session, billing) is None
+    _press(form_client, setup, "undo")
+    assert _value(session, billing) is not None
+
+    with acting_as(ME):
+        added = make_initiative(session, setup.team, setup.period, "Pier lights", 2, 5).row.id
+    _press(form_client, setup, "undo")  # the creation: removed
+    assert _value(session, added or 0) is None
+    _press(form_client, setup, "redo")  # back, the same initiative
+    assert _value(session, added or 0) == 5
+
+    with acting_as(ME):
+        pasted = commit_paste(
+            session,
+            parse_paste(
+                "Tide gauge\t2\t10\nPilot boat\t3\t12",
+                team_id=setup.team.id or 0,
+                period_id=setup.period.id,
+            ),
+        )
+    _press(form_client, setup, "undo")
+    assert [_value(session, i) for i in pasted] == [None, None]
+    redone = _press(form_client, setup, "redo")
+    assert redone.status_code == 200
+    assert [_value(session, i) for i in pasted] == [10, 12]
+    _press(form_client, setup, "undo")  # the paste again, as a whole
+    assert [_value(session, i) for i in pasted] == [None, None]
