@@ -14,7 +14,6 @@ from urllib.parse import urlencode
 
 from sqlmodel import Session
 
-from server.actor import current_actor
 from server.message_titles import titled_refusal, with_titles
 from server.models import Period, Team
 from server.planning import curve_chart
@@ -27,7 +26,8 @@ from server.planning.curve_chart import (
     readout,
 )
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
-from server.planning.undo import last_change, offer_text
+from server.planning.undo import COVERS as UNDO_COVERS
+from server.planning.undo import Offer, redo_offer, undo_offer
 from server.selector import SelectorInputError, default_curve_to
 from server.selector.risk import FitEstimate, pert_mean, pert_sd
 from server.store.initiatives import InitiativeRecord, list_initiatives
@@ -484,9 +484,15 @@ class PlanView:
     curve_sampled: bool  # True: the curve holds only sample capacities, not every breakpoint
     curve_probed: bool  # True: found by solving at capacities (binary program), not the DP
     risk: RiskView | None
-    undo_summary: str | None
+    undo: Offer | None  # what the undo button reverts, None: nothing
+    redo: Offer | None  # the undo the redo button reverts
     titles: Mapping[str, str]
     explained: bool  # explanations are in the page (else fetched per row)
+
+    @property
+    def undo_covers(self) -> str:
+        """The one line beside undo that says what it reverts (and so what it does not)."""
+        return UNDO_COVERS
 
     @property
     def groups(self) -> list[tuple[str, str, list[RowView]]]:
@@ -572,7 +578,9 @@ def build_plan_view(
         )
         for record in records
     )
-    last = last_change(session, team_id=team_id, period_id=period.id if period else None)
+    period_id = period.id if period else None
+    undo = undo_offer(session, team_id=team_id, period_id=period_id)
+    redo = redo_offer(session, team_id=team_id, period_id=period_id)
     totals = bar = chart = risk = None
     readouts: tuple[Readout, ...] = ()
     delta = None
@@ -634,7 +642,8 @@ def build_plan_view(
         curve_sampled=curve_sampled,
         curve_probed=curve_probed,
         risk=risk,
-        undo_summary=offer_text(last, current_actor.get()) if last is not None else None,
+        undo=undo,
+        redo=redo,
         titles=titles,
         explained=bool(explain),
     )
@@ -730,7 +739,8 @@ def plan_json(view: PlanView) -> dict[str, Any]:
             "p50_value": view.risk.p50_value,
             "value_given_up": view.risk.value_given_up,
         },
-        "undo": view.undo_summary,
+        "undo": view.undo.text if view.undo else None,
+        "redo": view.redo.text if view.redo else None,
     }
 
 

@@ -1,4 +1,7 @@
-"""Undo a team's last change to its initiatives in a period, from the audit trail.
+"""Undo and redo of a team's changes to its initiatives in a period, from the audit trail.
+
+Undo covers initiatives only (created, changed, deleted, moved, pasted); capacity settings,
+members and days off are not undone, and the plan page says so beside the button.
 
 The plan page of a period offers the team's last change that touched that period (an
 initiative created, changed or deleted there, or moved in or out of it), made by a person:
@@ -7,38 +10,52 @@ are never offered, so undo cannot take the demo workspace apart. Each press reve
 newest such change that has not been undone yet, so pressing it again steps further back:
 - an update is reverted to its `before` values, as a new version (so open forms see it);
 - a creation is reverted by deleting the initiative;
-- a deletion is reverted by creating the initiative again (it gets a new id; later undos
-  follow the new id);
+- a deletion is reverted by storing the initiative again under its own id, with every team's
+  effort line and its needs (`store.initiatives.restore_initiatives`), so scenarios, saved
+  plans and other initiatives that name it by id find it again. Only where SQLite has handed
+  that id to a newer initiative does it come back under a new one (later undos follow it);
 - a paste is reverted as a whole (all its rows are deleted).
 
 An initiative that another one needs by now is not deleted: the undo is refused with the
 dependants named (the store's rule for every deletion).
 
-The undo itself is recorded as an `initiative.undo` entry naming the entry it reverted and the
-entries its own changes wrote, and the reverted entry gets `undone_at`. Changes an undo makes
-are never offered for undoing themselves (that would be redo, which this does not offer).
-The reverted entry's mark and the undo entry are committed in the same transaction as the
-last change the undo makes.
+Another person's change is reverted only when the request confirms that change by its entry
+id (the page's tick box naming whose change it is); one's own change takes one press. The
+form also names the entry it offered, so a change made meanwhile is not reverted unseen.
+
+Redo: the newest undo of the team can itself be reverted, from the page of the period it was
+pressed on, as long as nothing else changed the team's initiatives since (a newer change is
+never overwritten by a redo). A redo reverts the undo's own changes (deleted rows come back
+under their ids), clears the `undone_at` of the change the undo reverted, so the next undo
+offers it again, and sets the undo's own `undone_at`. Redoing another person's undo asks for
+the same confirmation. Undo and redo entries (`initiative.undo`, `initiative.redo`) name the
+entry they revert and the entries their own changes wrote; those changes are never offered
+for undoing themselves. The marks and the entry are committed in the same transaction as the
+last change an undo or redo makes.
 """
 
 from __future__ import annotations
 
+import datetime as dt
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from sqlmodel import Session, col, select
 
-from server.actor import SYSTEM_ACTORS
-from server.errors import InputError, NotFoundError
-from server.models import AuditEntry, Initiative, Period, utcnow
+from server.actor import SYSTEM_ACTORS, current_actor
+from server.errors import ConflictError, InputError, NotFoundError
+from server.models import AuditEntry, Initiative, Period, Team, utcnow
 from server.schemas import InitiativeCreate, InitiativeUpdate
 from server.store import audit
 from server.store.initiatives import (
-    create_initiative,
+    Restoring,
     delete_initiative,
     delete_initiatives,
+    existing_initiative_ids,
     get_initiative,
+    restore_initiatives,
     update_initiative,
 )
 from server.validation import parse_form
@@ -46,6 +63,9 @@ from server.wording import counted
 
 UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
 UNDO_ACTION = "initiative.undo"
+REDO_ACTION = "initiative.redo"
+RESTORE_ACTION = "initiative.restore"
+COVERS = "Undo covers this plan's initiative changes, not capacity, focus factor or days off."
 HISTORY_DEPTH = 300  # entries read: undo steps back through recent changes, not all time
 _UPDATABLE = (
     "period_id",
@@ -63,25 +83,35 @@ _UPDATABLE = (
 
 @dataclass(frozen=True)
 class UndoOutcome:
-    entry: AuditEntry  # the change that was reverted
+    entry: AuditEntry  # the change (or, for a redo, the undo) that was reverted
     summary: str  # what the undo did, in plain words
 
 
 @dataclass(frozen=True)
+class Offer:
+    """What the undo or redo button of a plan page would revert."""
+
+    entry_id: int  # the audit entry it reverts; the form sends it back
+    text: str  # the change in plain words, and whose it is
+    actor: str  # who made it
+    others: bool  # another person's: reverting it needs a confirmation
+
+
+@dataclass(frozen=True)
 class _History:
-    produced: set[int]  # ids of entries written by undos
+    produced: set[int]  # ids of entries written by undos and redos
     renamed: dict[int, int]  # initiative id -> id it was re-created as
     pasted: set[int]  # initiatives created by a paste (undone with the paste, not alone)
 
 
 def _history(session: Session, team_id: int) -> _History:
-    """What earlier undos and pastes said; read from their (few) entries only."""
+    """What earlier undos, redos and pastes said; read from their (few) entries only."""
     query = (
         select(AuditEntry)
         .where(
             AuditEntry.team_id == team_id,
             AuditEntry.entity == "initiative",
-            col(AuditEntry.action).in_((UNDO_ACTION, "initiative.paste")),
+            col(AuditEntry.action).in_((UNDO_ACTION, REDO_ACTION, "initiative.paste")),
         )
         .order_by(col(AuditEntry.id).desc())
         .limit(HISTORY_DEPTH)
@@ -91,7 +121,7 @@ def _history(session: Session, team_id: int) -> _History:
     pasted: set[int] = set()
     for entry in session.exec(query):
         after = entry.after or {}
-        if entry.action == UNDO_ACTION:
+        if entry.action in (UNDO_ACTION, REDO_ACTION):
             produced.update(int(i) for i in after.get("produced", []))
             renamed.update({int(k): int(v) for k, v in after.get("recreated", {}).items()})
         elif entry.undone_at is None:
@@ -108,7 +138,7 @@ def _current_id(history: _History, initiative_id: int) -> int:
 
 
 def _exists(session: Session, initiative_id: int) -> bool:
-    return session.get(Initiative, initiative_id) is not None
+    return bool(existing_initiative_ids(session, [initiative_id]))
 
 
 def _still_undoable(session: Session, history: _History, entry: AuditEntry) -> bool:
@@ -202,6 +232,39 @@ def last_change(session: Session, *, team_id: int, period_id: int | None) -> Aud
     return None
 
 
+def last_undo(session: Session, *, team_id: int, period_id: int | None) -> AuditEntry | None:
+    """The undo the next redo on the team's plan for `period_id` would revert, or None.
+
+    That is the team's newest undo not redone yet, when it was pressed on this period's page
+    and no other change to the team's initiatives has been made since.
+    """
+    if period_id is None:
+        return None
+    history = _history(session, team_id)
+    query = (
+        select(
+            AuditEntry.id,
+            AuditEntry.action,
+            AuditEntry.undone_at,
+            col(AuditEntry.after)["period_id"].as_integer(),
+        )
+        .where(AuditEntry.team_id == team_id, AuditEntry.entity == "initiative")
+        .order_by(col(AuditEntry.id).desc())
+        .limit(HISTORY_DEPTH)
+    )
+    for entry_id, action, undone_at, pressed_on in session.exec(query):
+        if entry_id in history.produced or action == REDO_ACTION:
+            continue  # an undo's or redo's own changes, or a redo: keep looking back
+        if action == UNDO_ACTION:
+            if undone_at is not None:
+                continue  # redone already
+            return session.get(AuditEntry, entry_id) if pressed_on == period_id else None
+        if action in UNDOABLE and undone_at is not None:
+            continue
+        return None  # a change made after the last undo: a redo would overwrite it
+    return None
+
+
 def offer_text(entry: AuditEntry, viewer: str) -> str:
     """What the undo button would revert, and whose change it is: the plan is the team's, so
     the last change may be a colleague's, and the person pressing undo should know."""
@@ -209,10 +272,59 @@ def offer_text(entry: AuditEntry, viewer: str) -> str:
     return f"{entry.summary} ({whose})"
 
 
+def undo_offer(session: Session, *, team_id: int, period_id: int | None) -> Offer | None:
+    """The plan page's undo button, for the person asking, or None."""
+    entry = last_change(session, team_id=team_id, period_id=period_id)
+    if entry is None:
+        return None
+    viewer = current_actor.get()
+    return Offer(entry.id or 0, offer_text(entry, viewer), entry.actor, entry.actor != viewer)
+
+
+def redo_offer(session: Session, *, team_id: int, period_id: int | None) -> Offer | None:
+    """The plan page's redo button, for the person asking, or None."""
+    entry = last_undo(session, team_id=team_id, period_id=period_id)
+    if entry is None:
+        return None
+    viewer = current_actor.get()
+    whose = "your undo" if entry.actor == viewer else f"undone by {entry.actor}"
+    text = f"{entry.summary.removeprefix('Undid: ')} ({whose})"
+    return Offer(entry.id or 0, text, entry.actor, entry.actor != viewer)
+
+
+def _refuse_unconfirmed(
+    entry: AuditEntry, *, offered: int | None, confirmed: int | None, what: str, button: str
+) -> None:
+    """Refuse to revert a change the page did not offer, or another person's unconfirmed."""
+    viewer = current_actor.get()
+    if offered is not None and offered != entry.id:
+        raise ConflictError(
+            f"The last {what} is now another one: {offer_text(entry, viewer)}. Nothing was "
+            f"reverted; look at it and press {button} again.",
+            field=what,
+        )
+    if entry.actor != viewer and confirmed != entry.id:
+        raise ConflictError(
+            f"“{entry.summary}” is {entry.actor}'s {what}, not yours: tick “Revert "
+            f"{entry.actor}'s {what}” and press {button} to revert it. Nothing was reverted.",
+            field=what,
+        )
+
+
 def undo_last_change(
-    session: Session, *, team_id: int, period_id: int | None, actor: str = ""
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int | None,
+    actor: str = "",
+    offered: int | None = None,
+    confirmed: int | None = None,
 ) -> UndoOutcome:
-    """Revert the team's last change in the period; NotFoundError when there is none."""
+    """Revert the team's last change in the period; NotFoundError when there is none.
+
+    offered: the entry the page showed, refused when the last change is another one by now.
+    confirmed: the entry the person confirmed reverting; needed for another person's change.
+    """
     # Deletes cascade in the database, so rows loaded earlier in this session may be gone;
     # SQLite can hand their ids to the rows an undo creates. Start from an empty identity map.
     session.expunge_all()
@@ -221,6 +333,7 @@ def undo_last_change(
         raise NotFoundError(
             "There is no change of this team in this period left to undo.", field="undo"
         )
+    _refuse_unconfirmed(entry, offered=offered, confirmed=confirmed, what="change", button="Undo")
     history = _history(session, team_id)
     before_id = _max_entry_id(session)
     try:
@@ -228,20 +341,94 @@ def undo_last_change(
     except Exception:  # nothing of a failed undo stays half-done in the session
         session.rollback()
         raise
-    produced = [
-        e.id or 0
-        for e in session.exec(
-            select(AuditEntry).where(
-                col(AuditEntry.id) > before_id,
-                AuditEntry.action != UNDO_ACTION,
-                AuditEntry.team_id == team_id,
-            )
-        )
-    ]
-    marker.after = (marker.after or {}) | {"produced": produced}
+    marker.after = (marker.after or {}) | {
+        "period_id": period_id,
+        "produced": _produced_since(session, before_id, team_id),
+    }
     session.add(marker)
     session.commit()
     return UndoOutcome(entry=entry, summary=done)
+
+
+def redo_last_undo(
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int | None,
+    actor: str = "",
+    offered: int | None = None,
+    confirmed: int | None = None,
+) -> UndoOutcome:
+    """Revert the team's last undo in the period (see the module); NotFoundError if none."""
+    session.expunge_all()
+    undo = last_undo(session, team_id=team_id, period_id=period_id)
+    if undo is None:
+        raise NotFoundError(
+            "There is no undo of this team in this period left to redo.", field="redo"
+        )
+    _refuse_unconfirmed(undo, offered=offered, confirmed=confirmed, what="undo", button="Redo")
+    history = _history(session, team_id)
+    after = undo.after or {}
+    ids = [int(i) for i in after.get("produced", [])]
+    produced = [e for e in (session.get(AuditEntry, i) for i in ids) if e is not None]
+    before_id = _max_entry_id(session)
+    try:
+        reverted = session.get(AuditEntry, int(after.get("undid", 0)))
+        if reverted is not None:
+            reverted.undone_at = None
+            session.add(reverted)
+        undo.undone_at = utcnow()
+        session.add(undo)
+        marker = audit.record(
+            session,
+            actor=actor,
+            action=REDO_ACTION,
+            entity="initiative",
+            entity_id=undo.entity_id,
+            team_id=team_id,
+            summary=f"Redid: {reverted.summary if reverted is not None else undo.summary}",
+            after={"redid": undo.id, "period_id": period_id},
+        )
+        recreated = _reapply(session, history, produced, actor)
+    except Exception:
+        session.rollback()
+        raise
+    marker.after = (marker.after or {}) | {
+        "produced": _produced_since(session, before_id, team_id),
+        "recreated": recreated,
+    }
+    session.add(marker)
+    session.commit()
+    again = reverted.summary if reverted is not None else undo.summary.removeprefix("Undid: ")
+    return UndoOutcome(entry=undo, summary=f"Redid: {again}.")
+
+
+def _produced_since(session: Session, before_id: int, team_id: int) -> list[int]:
+    query = select(AuditEntry.id).where(
+        col(AuditEntry.id) > before_id,
+        col(AuditEntry.action).not_in((UNDO_ACTION, REDO_ACTION)),
+        AuditEntry.team_id == team_id,
+    )
+    return [int(i or 0) for i in session.exec(query)]
+
+
+def _reapply(
+    session: Session, history: _History, produced: Sequence[AuditEntry], actor: str
+) -> dict[str, int]:
+    """Revert an undo's own changes (newest first); the new ids of rows that got one."""
+    produced = sorted(produced, key=lambda e: e.id or 0, reverse=True)
+    created = [e for e in produced if e.action in (RESTORE_ACTION, "initiative.create")]
+    if created:  # the undo brought rows back: delete them again
+        ids = [_current_id(history, e.entity_id or 0) for e in created]
+        delete_initiatives(session, initiative_ids=ids, actor=actor)
+    deleted = [e for e in produced if e.action == "initiative.delete"]
+    recreated: dict[str, int] = {}
+    if deleted:  # the undo deleted rows (a creation or a paste undone): bring them back
+        recreated = _restore(session, [e.before or {} for e in reversed(deleted)], actor)
+    for e in produced:
+        if e.action == "initiative.update":
+            _revert_update(session, _current_id(history, e.entity_id or 0), e.before or {}, actor)
+    return recreated
 
 
 def _revert(
@@ -250,7 +437,7 @@ def _revert(
     """Make the reverting change; the undo's marks are committed with its last write."""
     if entry.action == "initiative.paste":
         ids = [_current_id(history, int(i)) for i in (entry.after or {}).get("initiative_ids", [])]
-        present = [i for i in ids if _exists(session, i)]
+        present = sorted(existing_initiative_ids(session, ids), key=ids.index)
         # One commit for all the rows and the marks: needs between pasted rows go with them,
         # and a row another initiative needs by now refuses the whole undo.
         marker = _mark(session, entry, team_id, actor, None)
@@ -266,10 +453,12 @@ def _revert(
         marker = _mark(session, entry, team_id, actor, initiative_id)
         delete_initiative(session, initiative_id=initiative_id, actor=actor)
         return marker, f"Removed {_quoted_title(entry)} again."
-    marker = _mark(session, entry, team_id, actor, None)
-    new_id = _recreate(session, entry.before or {}, actor)
-    marker.entity_id = new_id
-    marker.after = {"undid": entry.id, "recreated": {str(entry.entity_id): new_id}}
+    old_id = _current_id(history, entry.entity_id or 0)
+    marker = _mark(session, entry, team_id, actor, old_id)
+    recreated = _restore(session, [(entry.before or {}) | {"id": old_id}], actor)
+    marker.after = (marker.after or {}) | {"recreated": recreated}
+    if recreated:
+        marker.entity_id = recreated[str(old_id)]
     session.add(marker)
     session.commit()
     return marker, f"Brought back {_quoted_title(entry)}."
@@ -336,30 +525,67 @@ def _revert_update(
     update_initiative(session, initiative_id=initiative_id, initiative_in=update_in, actor=actor)
 
 
-def _recreate(session: Session, before: dict[str, Any], actor: str) -> int:
-    period_id = before.get("period_id")
-    if period_id is not None and session.get(Period, period_id) is None:
-        period_id = None
-    needs = [n for n in before.get("needs", []) if _exists(session, int(n))]
-    values = {
-        "team_id": before.get("team_id"),
-        "period_id": period_id,
-        "title": before.get("title"),
-        "notes": before.get("notes", ""),
-        "effort": _effort_in(before.get("effort") or {}),
-        "other_efforts": [
-            _effort_in(line) | {"team_id": line.get("team_id")}
-            for line in before.get("other_efforts", [])
-        ],
-        "value": before.get("value"),
-        "confidence": before.get("confidence"),
-        "state": before.get("state", "candidate"),
-        "either_or": before.get("either_or"),
-        "needs": needs,
+def _restore(session: Session, snapshots: Sequence[dict[str, Any]], actor: str) -> dict[str, int]:
+    """Store deleted initiatives again from their delete entries' `before`, under their ids.
+
+    Needs on initiatives deleted since, effort lines of teams deleted since and a deleted
+    period are left out (the initiative goes to the backlog). Not committed. Returns the new
+    ids of those whose old id was taken (SQLite only), as {old id: new id}.
+    """
+    wanted = {int(s.get("id") or 0) for s in snapshots}
+    needed = {int(n) for s in snapshots for n in s.get("needs", [])}
+    present = existing_initiative_ids(session, needed) | wanted
+    restoring: list[Restoring] = []
+    for before in snapshots:
+        period_id = before.get("period_id")
+        if period_id is not None and session.get(Period, period_id) is None:
+            period_id = None
+        values = {
+            "team_id": before.get("team_id"),
+            "period_id": period_id,
+            "title": before.get("title"),
+            "notes": before.get("notes", ""),
+            "effort": _effort_in(before.get("effort") or {}),
+            "other_efforts": [
+                _effort_in(line) | {"team_id": line.get("team_id")}
+                for line in before.get("other_efforts", [])
+                if _team_exists(session, line.get("team_id"))
+            ],
+            "value": before.get("value"),
+            "confidence": before.get("confidence"),
+            "state": before.get("state", "candidate"),
+            "either_or": before.get("either_or"),
+            "needs": [int(n) for n in before.get("needs", []) if int(n) in present],
+        }
+        create_in, errors = parse_form(InitiativeCreate, values)
+        if create_in is None:
+            field, message = next(iter(errors.items()))
+            raise InputError(f"{field}: the deleted initiative cannot be restored ({message}).")
+        restoring.append(
+            Restoring(
+                initiative_id=int(before.get("id") or 0),
+                initiative_in=create_in,
+                position=before.get("position"),
+                created_at=_timestamp(before.get("created_at")),
+                version=int(before.get("version") or 1),
+            )
+        )
+    records = restore_initiatives(session, restoring=restoring, actor=actor)
+    return {
+        str(r.initiative_id): record.row.id or 0
+        for r, record in zip(restoring, records, strict=True)
+        if record.row.id != r.initiative_id
     }
-    create_in, errors = parse_form(InitiativeCreate, values)
-    if create_in is None:
-        field, message = next(iter(errors.items()))
-        raise InputError(f"{field}: the deleted initiative cannot be restored ({message}).")
-    record = create_initiative(session, initiative_in=create_in, commit=False, actor=actor)
-    return record.row.id or 0
+
+
+def _team_exists(session: Session, team_id: Any) -> bool:
+    return isinstance(team_id, int) and session.get(Team, team_id) is not None
+
+
+def _timestamp(value: Any) -> dt.datetime | None:
+    if not isinstance(value, str):
+        return None
+    try:
+        return dt.datetime.fromisoformat(value)
+    except ValueError:
+        return None

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import threading
 from collections import OrderedDict
-from collections.abc import Hashable, Mapping, Sequence
+from collections.abc import Callable, Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -33,7 +33,7 @@ from server.planning.plan_view import (
     parse_whatif,
     plan_json,
 )
-from server.planning.undo import undo_last_change
+from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
 from server.routes.forms import form_text, see_other
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
@@ -523,6 +523,12 @@ async def paste_commit(
 # --- undo --------------------------------------------------------------------------------------
 
 
+def _entry_field(form: FormData, name: str) -> int | None:
+    """An audit entry id the undo or redo form sent (the one it offered or confirmed)."""
+    text = form_text(form, name)
+    return int(text) if text.isdigit() else None
+
+
 @router.post("/teams/{team_id}/plan/undo")
 async def undo(
     team_id: int,
@@ -531,11 +537,39 @@ async def undo(
     settings: SettingsDep,
     templates: TemplatesDep,
 ) -> Response:
+    return await _undo_or_redo(request, session, settings, templates, team_id, undo_last_change)
+
+
+@router.post("/teams/{team_id}/plan/redo")
+async def redo(
+    team_id: int,
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+) -> Response:
+    return await _undo_or_redo(request, session, settings, templates, team_id, redo_last_undo)
+
+
+async def _undo_or_redo(
+    request: Request,
+    session: SessionDep,
+    settings: SettingsDep,
+    templates: TemplatesDep,
+    team_id: int,
+    revert: Callable[..., UndoOutcome],
+) -> Response:
     form = await request.form()
     try:
         # The page's period: undo reverts only what the page offered.
         whatif, _ = parse_whatif(_multi(form))
-        outcome = undo_last_change(session, team_id=team_id, period_id=whatif.period_id)
+        outcome = revert(
+            session,
+            team_id=team_id,
+            period_id=whatif.period_id,
+            offered=_entry_field(form, "entry"),
+            confirmed=_entry_field(form, "confirm"),
+        )
     except LoadlineError as exc:
         view = _view(request, session, settings, team_id, _multi(form))
         status = 404 if isinstance(exc, NotFoundError) else exc.status_code

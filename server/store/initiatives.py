@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from collections import defaultdict
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
@@ -567,7 +568,9 @@ def create_initiative(
     return record
 
 
-def _insert_rows(session: Session, rows: Sequence[SQLModel], key: tuple[str, ...]) -> None:
+def _insert_rows(
+    session: Session, rows: Sequence[SQLModel], key: tuple[str, ...], *, with_ids: bool = False
+) -> None:
     """INSERT new rows of one table in batches and make them rows of the session.
 
     The session's own flush sends one INSERT per row on SQLite, to read each new id back in
@@ -576,12 +579,13 @@ def _insert_rows(session: Session, rows: Sequence[SQLModel], key: tuple[str, ...
     1,000 rows each and within the drivers' parameter limits). The RETURNING rows carry `key`,
     columns that are unique among `rows`, so the ids are matched back whatever order the
     database returns them in. The rows keep the values they were built with (no read-back)
-    and join the session as persistent, clean rows, as if they had been flushed.
+    and join the session as persistent, clean rows, as if they had been flushed. with_ids:
+    the rows carry their ids (initiatives brought back), which are sent too.
     """
     if not rows:
         return
     table = type(rows[0]).__table__  # type: ignore[attr-defined]
-    columns = [column.key for column in table.columns if not column.primary_key]
+    columns = [column.key for column in table.columns if with_ids or not column.primary_key]
     statement = insert(table).returning(table.c.id, *(table.c[name] for name in key))
     values = [{name: getattr(row, name) for name in columns} for row in rows]
     ids = {tuple(found[1:]): found[0] for found in session.exec(statement, params=values)}
@@ -958,7 +962,8 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
             entity_id=record.row.id,
             team_id=record.row.team_id,
             summary=f"Deleted “{record.row.title}”",
-            before=record.to_public().model_dump(mode="json"),
+            # With its place in the team's list, so an undo puts it back there.
+            before=record.to_public().model_dump(mode="json") | {"position": record.row.position},
         )
     delete_needs_among(session, ids)
     for record in records:
@@ -998,3 +1003,123 @@ _FIELD_WORDS = {
 def _change_summary(title: str, before: dict[str, Any], after: dict[str, Any]) -> str:
     fields = sorted(_FIELD_WORDS.get(name, name) for name in _changed(after, before))
     return f"Changed {and_list(fields) if fields else 'nothing'} of “{title}”"
+
+
+# --- bringing deleted initiatives back under their own ids ---------------------------------
+
+
+@dataclass(frozen=True)
+class Restoring:
+    """A deleted initiative to store again: its values, and the identity it had."""
+
+    initiative_id: int
+    initiative_in: InitiativeCreate
+    position: int | None = None  # None: after the team's last initiative
+    created_at: dt.datetime | None = None
+    version: int = 1  # the version it had; it comes back one step on, so open forms notice
+
+
+def restore_initiatives(
+    session: Session, *, restoring: Sequence[Restoring], actor: str = ""
+) -> list[InitiativeRecord]:
+    """Store deleted initiatives again, each under the id it had where that id is free.
+
+    Deleting an initiative removes its row, and the database's cascades take its effort lines
+    (every team's) and its own needs with it; needs of others on it are refused beforehand
+    (`needs_from_outside`). So the row, those lines and those needs are what comes back, and
+    everything that names the initiative by id (scenarios' forced lists, saved plans, other
+    initiatives' needs) points at it again. An explicit id does not move PostgreSQL's
+    sequence, which has passed it already. SQLite hands the largest id out again once its row
+    is gone, so that id may belong to a newer initiative by now: such a one comes back under a
+    new id (the returned record says which). The references, titles and marks are checked as
+    for new initiatives, in one batch; one `initiative.restore` audit entry each; no commit.
+    """
+    if not restoring:
+        return []
+    items = [r.initiative_in for r in restoring]
+    # Needs on initiatives restored in the same batch are stored with them, not checked first.
+    batch = {r.initiative_id for r in restoring}
+    _check_batch(
+        session,
+        [i.model_copy(update={"needs": [n for n in i.needs if n not in batch]}) for i in items],
+    )
+    _refuse_repeated_titles(items)
+    _refuse_title_clashes(session, [(i.team_id, i.period_id, i.title) for i in items])
+    taken = _existing_ids(session, Initiative, [r.initiative_id for r in restoring])
+    positions = _next_positions(session, (item.team_id for item in items))
+    kept: list[Initiative] = []
+    renewed: list[Initiative] = []
+    rows: list[Initiative] = []
+    for r in restoring:
+        item = r.initiative_in
+        either_or = item.either_or
+        if either_or is not None:
+            either_or = _set_spellings(session, item.team_id, item.period_id).spelling(either_or)
+        position = r.position
+        if position is None:
+            positions[item.team_id] += 1
+            position = positions[item.team_id]
+        free = r.initiative_id not in taken
+        row = Initiative(
+            id=r.initiative_id if free else None,
+            team_id=item.team_id,
+            period_id=item.period_id,
+            title=item.title,
+            notes=item.notes,
+            value=item.value,
+            confidence=item.confidence,
+            state=item.state,
+            either_or=either_or,
+            position=position,
+            version=r.version + 1,
+            created_at=r.created_at or utcnow(),
+        )
+        (kept if free else renewed).append(row)
+        rows.append(row)
+    _insert_rows(session, kept, ("id",), with_ids=True)
+    for row in renewed:  # rare: one at a time, as positions of restored rows may repeat
+        _insert_rows(session, [row], ("team_id", "position"))
+    new_id = {r.initiative_id: row.id or 0 for r, row in zip(restoring, rows, strict=True)}
+    records: list[InitiativeRecord] = []
+    for row, r in zip(rows, restoring, strict=True):
+        item = r.initiative_in
+        # A need on another restored initiative follows it to the id it got back.
+        needs = [new_id.get(n, n) for n in dict.fromkeys(item.needs)]
+        record = InitiativeRecord(row=row, needs=needs)
+        for team_id, effort in [(row.team_id, item.effort)] + [
+            (line.team_id, line) for line in item.other_efforts
+        ]:
+            record.efforts[team_id] = EffortLine(
+                initiative_id=row.id or 0,
+                team_id=team_id,
+                likely=effort.likely,
+                low=effort.low,
+                high=effort.high,
+            )
+        records.append(record)
+    lines = [line for record in records for line in record.efforts.values()]
+    _insert_rows(session, lines, ("initiative_id", "team_id"))
+    add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
+    check_marks(session, records)
+    audit.record_many(
+        session,
+        [
+            audit.entry(
+                actor=actor,
+                action="initiative.restore",
+                entity="initiative",
+                entity_id=record.row.id,
+                team_id=record.row.team_id,
+                summary=f"Brought back “{record.row.title}”",
+                after=record.to_public().model_dump(mode="json")
+                | {"restored_from": r.initiative_id},
+            )
+            for record, r in zip(records, restoring, strict=True)
+        ],
+    )
+    return records
+
+
+def existing_initiative_ids(session: Session, ids: Iterable[int]) -> set[int]:
+    """Which of `ids` name an initiative that is stored now."""
+    return _existing_ids(session, Initiative, ids)

@@ -22,8 +22,9 @@ from tests.pages.test_plan_pages import HX, build, post_form
 
 @pytest.fixture(autouse=True)
 def signed_in() -> Iterator[None]:
-    """Changes made through the store here count as a person's, as the app's requests do."""
-    token = current_actor.set("ola")
+    """Changes made through the store here count as the signed-in admin's, as the app's
+    requests by the test client do (so undoing them is undoing one's own change)."""
+    token = current_actor.set("admin")
     yield
     current_actor.reset(token)
 
@@ -94,7 +95,7 @@ def test_undo_a_creation_deletes_and_a_deletion_recreates(session: Session) -> N
         "Rails",
         "north side",
     )
-    # The next undo reverts the creation of "Crane rail", following it to its new id.
+    # The next undo reverts the creation of "Crane rail", back under the id it was made with.
     outcome = undo_last_change(session, team_id=team.id or 0, period_id=period.id)
     assert outcome.entry.action == "initiative.create"
     assert outcome.summary == "Removed “Crane rail” again."
