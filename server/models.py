@@ -24,12 +24,12 @@ from sqlalchemy import (
 )
 from sqlmodel import Field, SQLModel
 
-from server.selector.set_names import name_key
+from server.selector.set_names import KEY_MAX, name_key
 
 NAME_MAX = 80
 TITLE_MAX = 200
 # Case folding can lengthen a title ("ß" -> "ss", at most three characters for one).
-TITLE_KEY_MAX = 3 * TITLE_MAX
+TITLE_KEY_MAX = KEY_MAX  # name_key's bound: 3 x TITLE_MAX
 NOTES_MAX = 4000
 
 

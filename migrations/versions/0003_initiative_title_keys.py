@@ -2,9 +2,10 @@
 
 The database itself now refuses a second initiative of one title in a team and period, so the
 second of two requests that both passed the store's check in the same instant is refused too.
-initiative.title_key holds the title as the app compares titles (runs of white space as one
-space, trimmed, case folded: server.selector.set_names.name_key, copied below so this
-revision keeps meaning what it meant). Unique indexes allow one key per team and period
+initiative.title_key holds the title as the app compares titles (Unicode compatibility
+caseless match, runs of white space as one space, trimmed, long keys ending in a digest:
+server.selector.set_names.name_key, copied below so this revision keeps meaning what it
+meant). Unique indexes allow one key per team and period
 (uq_initiative_title_key) and one per team in the backlog (uq_initiative_backlog_title_key,
 partial, since NULL periods never clash in a unique index).
 
@@ -20,6 +21,8 @@ Revises: 0002
 Create Date: 2026-12-02 16:40:00.000000
 """
 
+import hashlib
+import unicodedata
 from collections import defaultdict
 from collections.abc import Sequence
 
@@ -39,7 +42,13 @@ BACKLOG_ONLY = sa.text('period_id IS NULL')
 
 
 def title_key(title: str) -> str:
-    return ' '.join(title.split()).casefold()
+    # Compatibility caseless match (Unicode Standard 3.13, D146), white space runs as one.
+    folded = unicodedata.normalize('NFD', title).casefold()
+    folded = unicodedata.normalize('NFKD', unicodedata.normalize('NFKD', folded).casefold())
+    key = ' '.join(folded.split())
+    if len(key) <= TITLE_KEY_MAX:
+        return key
+    return key[: TITLE_KEY_MAX - 64] + hashlib.sha256(key.encode()).hexdigest()
 
 
 def _parted_titles(rows: Sequence[tuple[int, int, int | None, str]]) -> dict[int, str]:

@@ -6,12 +6,29 @@ gives the plan the app would. `name_key` is also the rule the store compares tit
 
 from __future__ import annotations
 
+import hashlib
+import unicodedata
 from collections.abc import Iterable
+
+# Past this many characters a key ends in a digest of the rest, so it fits a database column
+# (a few characters fold to many: "ﷺ" to 18) and still tells every two names apart.
+KEY_MAX = 600
+_DIGEST_CHARS = 64
 
 
 def name_key(name: str) -> str:
-    """How names are compared: runs of spaces as one, trimmed, case folded."""
-    return " ".join(name.split()).casefold()
+    """How names are compared: as the Unicode Standard's compatibility caseless match (section
+    3.13, D146, from memory: NFKD(casefold(NFKD(casefold(NFD(name)))))), with runs of white
+    space as one and the ends trimmed. So "café" typed with a combining accent, "CAFÉ" and the
+    full-width "ｃａｆé" are one name.
+    """
+    folded = unicodedata.normalize("NFD", name).casefold()
+    folded = unicodedata.normalize("NFKD", unicodedata.normalize("NFKD", folded).casefold())
+    key = " ".join(folded.split())
+    if len(key) <= KEY_MAX:
+        return key
+    digest = hashlib.sha256(key.encode()).hexdigest()
+    return key[: KEY_MAX - _DIGEST_CHARS] + digest
 
 
 class SetNames:
