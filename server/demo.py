@@ -238,7 +238,7 @@ def load(session: Session) -> None:
             title=CROSS_TEAM_TITLE,
             effort=_effort(CROSS_TEAM_EFFORT),
             other_efforts=[
-                TeamEffortIn(team_id=team_ids[name], **_effort(raw).model_dump())
+                TeamEffortIn(team_id=team_ids[name], **_effort(raw).model_dump(exclude={"team_id"}))
                 for name, raw in CROSS_TEAM_OTHERS.items()
             ],
             value=CROSS_TEAM_VALUE,

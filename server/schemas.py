@@ -225,6 +225,13 @@ class EffortIn(_Strict):
     likely: EffortDays
     low: EffortDays | None = None
     high: EffortDays | None = None
+    # Reads show an initiative's own effort with its team; a write may send that back, so a
+    # read-change-write round trip works, but only with the owning team (the store checks).
+    team_id: WholeNumber | None = Field(
+        default=None,
+        description="Optional on an initiative's own effort: the owning team, as reads show "
+        "it. Other teams' effort goes in other_efforts.",
+    )
 
     @model_validator(mode="before")
     @classmethod
@@ -248,6 +255,14 @@ class EffortIn(_Strict):
 
 class TeamEffortIn(EffortIn):
     team_id: WholeNumber
+
+
+def own_effort_refusal(given: int, owner: int) -> str:
+    """Why an initiative's own effort may not name another team (field effort.team_id)."""
+    return (
+        f"effort is the owning team's, so its team_id is {owner} or left out; give team "
+        f"{given}'s effort in other_efforts."
+    )
 
 
 class EffortPublic(BaseModel):
@@ -274,6 +289,13 @@ class InitiativeCreate(_Strict):
     @classmethod
     def _blank_is_none(cls, value: Any) -> Any:
         return None if isinstance(value, str) and not value.strip() else value
+
+    @model_validator(mode="after")
+    def _own_effort(self) -> InitiativeCreate:
+        if self.effort.team_id not in (None, self.team_id):
+            given = self.effort.team_id
+            raise ValueError(f"effort.team_id: {own_effort_refusal(given, self.team_id)}")
+        return self
 
 
 class InitiativeUpdate(_Strict):

@@ -11,7 +11,10 @@ from pydantic import BaseModel, ValidationError
 from server.text_rules import VISIBLE_TEXT, WEEKMASK
 
 ModelT = TypeVar("ModelT", bound=BaseModel)
-_PREFIXED = re.compile(r"^(?:Value error, )?(?P<field>[a-z_]+): (?P<message>.+)$", re.DOTALL)
+# A model-level message naming its field first: "low: ...", "effort.team_id: ...".
+_PREFIXED = re.compile(
+    r"^(?:Value error, )?(?P<field>[a-z_]+(?:\.[a-z_]+)*): (?P<message>.+)$", re.DOTALL
+)
 _LOCATION_WORDS = {"body", "query", "path", "form"}
 
 

@@ -25,6 +25,7 @@ from server.schemas import (
     InitiativePublic,
     InitiativeUpdate,
     TeamEffortIn,
+    own_effort_refusal,
 )
 from server.selector import Item, SelectorInputError
 from server.selector import check_marks as selector_check_marks
@@ -772,6 +773,12 @@ def update_initiative(
         if "other_efforts" in changes and initiative_in.other_efforts is not None
         else None
     )
+    effort = initiative_in.effort
+    if effort is not None and effort.team_id not in (None, db_row.team_id):
+        raise InputError(
+            f"effort.team_id: {own_effort_refusal(effort.team_id, db_row.team_id)}",
+            field="effort.team_id",
+        )
     period_id = initiative_in.period_id if "period_id" in changes else db_row.period_id
     _check_references(
         session,

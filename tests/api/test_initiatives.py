@@ -90,6 +90,41 @@ def test_initiative_round_trip(client: TestClient, workspace: Workspace) -> None
     assert client.get(f"/api/v1/initiatives/{created['id']}").status_code == 404
 
 
+def test_what_a_read_shows_can_be_written_back(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    """A read shows the own effort with its team_id; writing that back was refused as an
+    unknown field, so a read-change-write client had to strip it first."""
+    url = f"/api/v1/initiatives/{workspace.initiative}"
+    read = client.get(url).json()
+    effort = read["effort"] | {"likely": read["effort"]["likely"] + 1}
+    written = client.patch(url, json={"version": read["version"], "effort": effort})
+    assert written.status_code == 200, written.text
+    assert written.json()["effort"] == effort
+
+    now = written.json()
+    before = snapshot()
+    foreign = now["effort"] | {"team_id": workspace.other_team}
+    refused = client.patch(url, json={"version": now["version"], "effort": foreign})
+    assert refused.status_code == 422
+    assert error_fields(refused) == ["effort.team_id"]
+    assert f"give team {workspace.other_team}'s effort in other_efforts" in error_text(refused)
+    assert snapshot() == before
+
+    created = client.post(
+        "/api/v1/initiatives",
+        json={
+            "team_id": workspace.team,
+            "title": "Bollard paint",
+            "effort": {"likely": 1, "team_id": workspace.other_team},
+            "value": 2,
+        },
+    )
+    assert created.status_code == 422
+    assert error_fields(created) == ["effort.team_id"]
+    assert snapshot() == before
+
+
 def test_a_bare_number_is_a_single_estimate(client: TestClient, workspace: Workspace) -> None:
     created = _create(client, team_id=workspace.team, title="Bollards", effort=2.5, value=3)
     assert created["effort"] == {
