@@ -58,7 +58,15 @@ def _plain_words(error: Mapping[str, Any]) -> str | None:
 
     def bound(name: str) -> str:
         value = ctx.get(name)
-        return f"{value:,g}" if isinstance(value, int | float) else str(value)
+        if isinstance(value, float) and value.is_integer() and abs(value) < 1e15:
+            value = int(value)  # 1,000,000, not 1e+06
+        return (
+            f"{value:,}"
+            if isinstance(value, int)
+            else f"{value:,g}"
+            if isinstance(value, float)
+            else str(value)
+        )
 
     if kind == "string_too_short":
         least = ctx.get("min_length", 1)
