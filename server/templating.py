@@ -8,9 +8,7 @@ from fastapi.templating import Jinja2Templates
 from jinja2 import pass_context
 
 from server.access import allowed
-from server.wording import counted, day_word, days, in_days
-
-STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
+from server.wording import STATE_LABELS, counted, day_word, days, in_days
 
 
 def number(value: float | None) -> str:

@@ -7,6 +7,9 @@ from decimal import ROUND_HALF_UP, Decimal
 
 _HUNDREDTH = Decimal("0.01")
 
+# An initiative's state as pages and messages say it.
+STATE_LABELS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
+
 
 def counted(count: int, singular: str, plural: str | None = None) -> str:
     """'1 initiative', '0 initiatives', '1,200 rows': the count, then the noun it calls for.

@@ -36,7 +36,7 @@ from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
 from server.store.teams import get_team, list_members
-from server.wording import in_days
+from server.wording import STATE_LABELS, in_days
 
 SNAPSHOT_FORMAT = 1
 
@@ -603,6 +603,11 @@ class InputChange:
     text: str
 
 
+def _said(field: str, value: Any) -> str:
+    """An initiative's field value in a sentence: states as the pages name them."""
+    return STATE_LABELS.get(value, value) if field == "state" else _n(value)
+
+
 def _n(value: Any) -> str:
     if value is None:
         return "none"
@@ -773,7 +778,7 @@ def _initiative_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange
                         name,
                         old,
                         new,
-                        f"“{subject}”: {label} {_n(old)} → {_n(new)}",
+                        f"“{subject}”: {label} {_said(name, old)} → {_said(name, new)}",
                     )
                 )
         old_needs = sorted(saved_rows[k].title if k in saved_rows else k for k in before.needs)

@@ -235,6 +235,7 @@ def test_drift_is_empty_until_live_data_moves_then_names_each_change(
     assert by_field[("Route search", "value")] == (12.0, 13.0)
     assert by_field[("Fare capping", "effort.likely")] == (4.0, 6.0)
     assert by_field[("Offline timetable", "state")] == ("candidate", "ruled_out")
+    assert "“Offline timetable”: state candidate → ruled out" in texts  # the pages' words
     assert by_field[("Ola", "days_off")] == (0.0, 4.0)
     assert by_field[("capacity", "capacity_days")][0] == pytest.approx(EXPECTED_CAPACITY)
     assert by_field[("capacity", "capacity_days")][1] == pytest.approx((6 + 8) * 0.7 * 0.85)
