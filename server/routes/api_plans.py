@@ -339,14 +339,15 @@ def export_response(body: str, fmt: str, filename: str) -> Response:
     )
 
 
-def plan_export(db_plan: SavedPlan, fmt: str) -> Response:
+def plan_export(db_plan: SavedPlan, fmt: str, filename: str | None = None) -> Response:
+    """A saved plan's download; an unsaved one (the live plan) is named by `filename`."""
     if fmt == "csv":
         body = exports.plan_csv(db_plan)
     elif fmt == "json":
         body = exports.json_text(exports.plan_json(db_plan))
     else:
         body = exports.plan_markdown(db_plan)
-    return export_response(body, fmt, f"plan-{db_plan.id}-{db_plan.name}")
+    return export_response(body, fmt, filename or f"plan-{db_plan.id}-{db_plan.name}")
 
 
 def comparison_export(comparison: Comparison, fmt: str) -> Response:

@@ -22,7 +22,7 @@ from starlette.datastructures import FormData, UploadFile
 from server.actor import current_actor
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
-from server.models import Period, Team
+from server.models import Period, SavedPlan, Team, utcnow
 from server.planning import exports
 from server.planning.compare import (
     MAX_PLANS,
@@ -271,6 +271,40 @@ def plan_changes_page(
 @router.get("/plans/{plan_id}/export.{fmt}")
 def export_plan(plan_id: PathId, fmt: ExportFormat, session: SessionDep) -> Response:
     return plan_export(store.get_plan(session, plan_id=plan_id), fmt)
+
+
+@router.get("/teams/{team_id}/plan/export.{fmt}")
+def export_live_plan(
+    team_id: PathId,
+    fmt: ExportFormat,
+    session: SessionDep,
+    settings: SettingsDep,
+    period_id: RequiredQueryId,
+) -> Response:
+    """The live plan as it stands, in the saved plans' formats, without saving it.
+
+    Named "(live, not saved)" in the file, so a download cannot pass for a frozen plan.
+    """
+    team = get_team(session, team_id=team_id)
+    period = get_period(session, period_id=period_id)
+    snapshot = capture(
+        session,
+        team_id=team_id,
+        period_id=period_id,
+        changes=ScenarioChanges(),
+        resolution=settings.resolution_days,
+    )
+    unsaved = SavedPlan(
+        name=f"{team.name} · {period.name} (live, not saved)",
+        period_id=period_id,
+        team_ids=[team_id],
+        inputs=snapshot.inputs_json(),
+        result=snapshot.result_json(),
+        inputs_digest=snapshot.digest,
+        created_by=_actor(""),
+        created_at=utcnow(),
+    )
+    return plan_export(unsaved, fmt, f"live-plan-{team.name}-{period.name}")
 
 
 @router.post("/plans/{plan_id}/publish")

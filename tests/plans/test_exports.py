@@ -46,6 +46,7 @@ from tests.plans.conftest import (
 )
 
 # The characters OWASP lists as formula starters: =, +, -, @, tab (0x09), carriage return (0x0D).
+FORMATS = ("csv", "md", "json")
 OWASP_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -403,6 +404,38 @@ def test_json_export_is_the_stored_snapshot(workspace: Workspace, client: TestCl
     assert document["result"] == plan["result"]
     assert document["plan"]["inputs_digest"] == plan["inputs_digest"]
     assert client.get(f"/plans/{plan['id']}/export.json").content == response.content
+
+
+def test_the_live_plan_downloads_as_a_saved_one_would_without_saving(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """Only saved plans had downloads: a meeting had to save a plan to send it round."""
+    base = f"/teams/{workspace.team_id}/plan"
+    plan_page = parse(client.get(f"{base}?period_id={workspace.period_id}").text)
+    links = [a.attrs["href"] for a in plan_page.find("span", id="live-downloads").find_all("a")]
+    assert links == [f"{base}/export.{fmt}?period_id={workspace.period_id}" for fmt in FORMATS]
+    before = counts(session)
+    live = {
+        fmt: client.get(f"{base}/export.{fmt}?period_id={workspace.period_id}") for fmt in FORMATS
+    }
+    assert counts(session) == before  # nothing saved
+    assert all(response.status_code == 200 for response in live.values())
+    saved = save_live(client, workspace, "Same plan")
+    document = json.loads(live["json"].text)
+    assert document["result"]["chosen"] == saved["result"]["chosen"]
+    assert document["result"]["value"] == saved["result"]["value"]
+    assert document["plan"]["name"].endswith("(live, not saved)")
+    summary = dict(row[:2] for row in csv.reader(io.StringIO(live["csv"].text)) if len(row) >= 2)
+    assert summary["plan"].endswith("(live, not saved)")
+    assert summary["value"] == str(_plain(saved["result"]["value"]))
+    assert live["md"].text.startswith("# Harbour · Sprint")
+    assert 'filename="live-plan-Harbour-' in live["csv"].headers["content-disposition"]
+    missing = client.get(f"{base}/export.csv")
+    assert missing.status_code == 422  # the period is required
+
+
+def _plain(value: float) -> int | float:
+    return int(value) if float(value).is_integer() else value
 
 
 def test_markdown_summary_escapes_markup(
