@@ -8,7 +8,7 @@ from fastapi.templating import Jinja2Templates
 from jinja2 import pass_context
 
 from server.access import allowed
-from server.wording import STATE_LABELS, counted, day_word, days, in_days
+from server.wording import STATE_LABELS, counted, day_word, days, in_days, possessive
 
 
 def number(value: float | None) -> str:
@@ -82,6 +82,7 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["days"] = days
     env.filters["day_word"] = day_word
     env.filters["in_days"] = in_days
+    env.filters["possessive"] = possessive
     env.filters["number"] = number
     env.filters["percent"] = percent
     env.filters["share_percent"] = share_percent

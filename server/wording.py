@@ -20,6 +20,12 @@ def counted(count: int, singular: str, plural: str | None = None) -> str:
     return f"{count:,} {noun}"
 
 
+def possessive(name: object) -> str:
+    """ "Ines's", but "Fares and Payments'": the possessive of a name in a sentence."""
+    text = str(name)
+    return f"{text}'" if text.endswith(("s", "S")) else f"{text}'s"
+
+
 def quoted(name: object) -> str:
     """A name inside a sentence, in the curly quotes the pages use: “Quay wall”."""
     return f"“{name}”"

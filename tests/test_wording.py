@@ -7,7 +7,7 @@ from pydantic import ValidationError
 
 from server.schemas import InitiativeCreate
 from server.validation import field_and_message
-from server.wording import counted
+from server.wording import counted, possessive
 
 
 @pytest.mark.parametrize(
@@ -31,3 +31,12 @@ def test_a_range_bound_reads_as_people_write_numbers() -> None:
         "value",
         "Enter a number of at most 1,000,000.",
     )
+
+
+@pytest.mark.parametrize(
+    ("name", "expected"),
+    [("Ines", "Ines'"), ("Ola", "Ola's"), ("Fares and Payments", "Fares and Payments'")],
+)
+def test_a_name_ending_in_s_takes_an_apostrophe_only(name: str, expected: str) -> None:
+    """ "Fares and Payments's share" read on the plan page."""
+    assert possessive(name) == expected

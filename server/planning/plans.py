@@ -42,7 +42,7 @@ from server.selector.risk import (
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period
 from server.store.teams import get_team
-from server.wording import counted, in_days
+from server.wording import counted, in_days, possessive
 
 FIT_DRAWS = 10_000
 # In the warning about rounding; stored plans' pages find it by this and say it once, their way.
@@ -420,7 +420,8 @@ def plan_for(
         need = "needs" if len(cross) == 1 else "need"
         warnings.append(
             f"{counted(len(cross), 'initiative')} also {need} effort from other teams; this page "
-            f"plans {team.name}'s share only. The period overview plans all teams together."
+            f"plans {possessive(team.name)} share only. The period overview plans all teams "
+            "together."
         )
     if selection.rounding.items_rounded_up:
         rounded = len(selection.rounding.items_rounded_up)

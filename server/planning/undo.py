@@ -59,7 +59,7 @@ from server.store.initiatives import (
     update_initiative,
 )
 from server.validation import parse_form
-from server.wording import counted
+from server.wording import counted, possessive
 
 UNDOABLE = ("initiative.create", "initiative.update", "initiative.delete", "initiative.paste")
 UNDO_ACTION = "initiative.undo"
@@ -305,8 +305,9 @@ def _refuse_unconfirmed(
         )
     if entry.actor != viewer and confirmed != entry.id:
         raise ConflictError(
-            f"“{entry.summary}” is {entry.actor}'s {what}, not yours: tick “Revert "
-            f"{entry.actor}'s {what}” and press {button} to revert it. Nothing was reverted.",
+            f"“{entry.summary}” is {possessive(entry.actor)} {what}, not yours: tick “Revert "
+            f"{possessive(entry.actor)} {what}” and press {button} to revert it. Nothing was "
+            "reverted.",
             field=what,
         )
 

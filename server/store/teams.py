@@ -38,7 +38,7 @@ from server.store._common import (
 )
 from server.store.initiatives import delete_needs_among, needs_from_outside
 from server.store.periods import period_working_days
-from server.wording import counted, quoted
+from server.wording import counted, possessive, quoted
 
 
 def list_teams(session: Session) -> list[Team]:
@@ -319,7 +319,7 @@ def _refuse_if_member_changed(db_member: Member, based_on: BasedOn) -> None:
     refuse_if_changed(
         based_on,
         _member_values(db_member),
-        f"{db_member.name}'s name and share were",
+        f"{possessive(db_member.name)} name and share were",
         f"{db_member.name}, {_share(db_member.allocation)}",
     )
 
@@ -520,7 +520,7 @@ def set_availability(
     refuse_if_changed(
         based_on,
         before or {},
-        f"{db_member.name}'s days off in {period.name} were",
+        f"{possessive(db_member.name)} days off in {period.name} were",
         _availability_words(before) if before else "none recorded",
     )
     db_row = found or Availability(
@@ -557,7 +557,7 @@ def _refuse_if_availability_changed(
     refuse_if_changed(
         based_on,
         values,
-        f"{db_member.name}'s days off in {period.name} were",
+        f"{possessive(db_member.name)} days off in {period.name} were",
         _availability_words(values),
     )
 
