@@ -46,7 +46,15 @@ def _fk(target: str, ondelete: str, *, nullable: bool = False, index: bool = Tru
     )
 
 
+# SQLite reuses the largest id of a deleted row unless a table is AUTOINCREMENT. Ids of these
+# tables are named inside scenarios, saved plans and undo entries: they must never come back
+# for another row (migration 0005). PostgreSQL's sequences never reuse an id.
+NEVER_REUSED_IDS = {"sqlite_autoincrement": True}
+
+
 class Team(SQLModel, table=True):
+    __table_args__ = (NEVER_REUSED_IDS,)
+
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=NAME_MAX, unique=True)
     # Default +/- spread applied to single-number efforts when judging risk (0 = certain).
@@ -55,7 +63,10 @@ class Team(SQLModel, table=True):
 
 
 class Member(SQLModel, table=True):
-    __table_args__ = (UniqueConstraint("team_id", "name", name="uq_member_team_name"),)
+    __table_args__ = (
+        UniqueConstraint("team_id", "name", name="uq_member_team_name"),
+        NEVER_REUSED_IDS,
+    )
 
     id: int | None = Field(default=None, primary_key=True)
     team_id: int = _fk("team.id", "CASCADE")
@@ -127,6 +138,7 @@ class Initiative(SQLModel, table=True):
             sqlite_where=_BACKLOG_ONLY,
             postgresql_where=_BACKLOG_ONLY,
         ),
+        NEVER_REUSED_IDS,
     )
 
     id: int | None = Field(default=None, primary_key=True)
@@ -189,6 +201,8 @@ class Need(SQLModel, table=True):
 
 class Scenario(SQLModel, table=True):
     """A named variation of a team's live plan inputs (capacity, focus, confidence, forcing)."""
+
+    __table_args__ = (NEVER_REUSED_IDS,)
 
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)

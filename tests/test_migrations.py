@@ -246,3 +246,49 @@ def test_the_title_indexes_and_restricted_deletes_refuse_what_the_store_refuses(
             conn.execute(text(statement))
     engine.dispose()
     assert _count(empty_settings, "initiative") == 9
+
+
+def test_0005_keeps_ids_of_deleted_rows_from_coming_back(empty_settings: Settings) -> None:
+    """On SQLite a new row took the largest id again once its row was deleted: a new
+    initiative could step into a deleted one's place in scenarios, saved plans and undo."""
+    migrate.upgrade(empty_settings, "0002")
+    _insert_at_0002(empty_settings)
+    migrate.upgrade(empty_settings)
+    engine = make_engine(empty_settings)
+    with engine.begin() as conn:
+        newest = conn.execute(text("SELECT max(id) FROM initiative")).scalar_one()
+        conn.execute(text("DELETE FROM initiative_need WHERE needed_id = :i"), {"i": newest})
+        conn.execute(text("DELETE FROM effort_line WHERE initiative_id = :i"), {"i": newest})
+        conn.execute(text("DELETE FROM initiative WHERE id = :i"), {"i": newest})
+        conn.execute(
+            text(
+                "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, "
+                "state, position, version, created_at, updated_at) VALUES (1, 1, 'Later', "
+                "'later', '', 1, 'candidate', 99, 1, '2026-01-01', '2026-01-01')"
+            )
+        )
+        after = conn.execute(text("SELECT max(id) FROM initiative")).scalar_one()
+        # The partial backlog index kept its condition through the table's copy: the same
+        # title in the backlog and in a period is two places.
+        conn.execute(
+            text(
+                "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, "
+                "state, position, version, created_at, updated_at) VALUES (1, NULL, 'Later', "
+                "'later', '', 1, 'candidate', 100, 1, '2026-01-01', '2026-01-01')"
+            )
+        )
+    engine.dispose()
+    assert after == newest + 1
+    for table in ("team", "member", "scenario"):  # the others named by id elsewhere
+        engine = make_engine(empty_settings)
+        try:
+            columns = {c["name"]: c for c in inspect(engine).get_columns(table)}
+            assert "id" in columns
+            if engine.dialect.name == "sqlite":
+                with engine.connect() as conn:
+                    sql = conn.execute(
+                        text("SELECT sql FROM sqlite_master WHERE name = :t"), {"t": table}
+                    ).scalar_one()
+                assert "AUTOINCREMENT" in sql
+        finally:
+            engine.dispose()

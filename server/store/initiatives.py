@@ -1036,9 +1036,10 @@ def restore_initiatives(
     (`needs_from_outside`). So the row, those lines and those needs are what comes back, and
     everything that names the initiative by id (scenarios' forced lists, saved plans, other
     initiatives' needs) points at it again. An explicit id does not move PostgreSQL's
-    sequence, which has passed it already. SQLite hands the largest id out again once its row
-    is gone, so that id may belong to a newer initiative by now: such a one comes back under a
-    new id (the returned record says which). The references, titles and marks are checked as
+    sequence, which has passed it already, and SQLite's initiative table is AUTOINCREMENT
+    (migration 0005), so ids are not handed out twice; should the id be taken anyway (a row
+    written past the store), the initiative comes back under a new id (the returned record
+    says which). The references, titles and marks are checked as
     for new initiatives, in one batch; one `initiative.restore` audit entry each; no commit.
     """
     if not restoring:

@@ -179,12 +179,15 @@ def test_an_id_handed_out_again_meanwhile_brings_the_initiative_back_under_a_new
     newest = max(workspace.id_of(title) for title in workspace.initiatives)
     title = next(t for t in workspace.initiatives if workspace.id_of(t) == newest)
     _delete(form_client, newest)
-    # Another team's new initiative: SQLite gives it the largest id again, PostgreSQL does not.
+    # Another team's new initiative: ids are never handed out again (PostgreSQL's sequences,
+    # SQLite's AUTOINCREMENT tables since migration 0005), so the old id is free; were it
+    # taken, the initiative would come back under a new one.
     lighthouse = make_team(session, "Lighthouse")
     lamp = add_initiative(session, lighthouse, workspace.period, "Lamp", 2, 10).row.id or 0
     assert _undo(form_client, workspace) == f"Brought back “{title}”."
     session.expire_all()
     (back,) = session.exec(select(Initiative).where(Initiative.title == title)).all()
-    assert (back.id == newest) == (lamp != newest)
+    assert lamp != newest
+    assert back.id == newest
     assert get_initiative(session, initiative_id=lamp).row.title == "Lamp"  # left alone
     assert len(get_initiative(session, initiative_id=back.id or 0).efforts) == 1
