@@ -287,20 +287,26 @@ def value_words(key: str, value: Any, names: Names, entry: AuditEntry) -> str:
 
 
 def _pairs(
-    values: Mapping[str, Any] | None, names: Names, entry: AuditEntry
+    values: Mapping[str, Any] | None,
+    other: Mapping[str, Any] | None,
+    names: Names,
+    entry: AuditEntry,
 ) -> list[tuple[str, str]]:
+    """The listed values; a field equal on both sides (a scenario's name kept) is left out."""
     return [
         (FIELD_LABELS.get(key, key.replace("_", " ")), value_words(key, value, names, entry))
         for key, value in (values or {}).items()
-        if key not in _NOT_LISTED
+        if key not in _NOT_LISTED and not (other and key in other and other[key] == value)
     ]
 
 
 def summary_words(entry: AuditEntry) -> str:
-    text = entry.summary
+    """The summary; old period summaries named fields by their stored names (only the part
+    before the period's name is reworded)."""
+    head, mark, rest = entry.summary.partition(" of period “")
     for old, new in _SUMMARY_WORDS.get(entry.action, ()):
-        text = text.replace(old, new)
-    return text
+        head = head.replace(old, new)
+    return head + mark + rest
 
 
 def entry_views(entries: Sequence[AuditEntry], names: Names) -> list[EntryView]:
@@ -311,8 +317,8 @@ def entry_views(entries: Sequence[AuditEntry], names: Names) -> list[EntryView]:
             EntryView(
                 entry=entry,
                 summary=summary_words(entry),
-                before=_pairs(entry.before, names, entry) if shown else [],
-                after=_pairs(entry.after, names, entry) if shown else [],
+                before=_pairs(entry.before, entry.after, names, entry) if shown else [],
+                after=_pairs(entry.after, entry.before, names, entry) if shown else [],
             )
         )
     return views

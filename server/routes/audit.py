@@ -188,7 +188,9 @@ def audit_page(request: Request, session: SessionDep, templates: TemplatesDep) -
     team_words = None
     if asked.team_id is not None:
         name = team_names.get(asked.team_id)
-        team_words = f"team “{name}”" if name is not None else f"a deleted team (id {asked.team_id})"
+        team_words = (
+            f"team “{name}”" if name is not None else f"a deleted team (id {asked.team_id})"
+        )
         if name is None and total == 0:
             context["errors"] = {
                 "team_id": f"There is no team with id {asked.team_id}. Choose a team from the list."
