@@ -76,10 +76,6 @@ class Names:
     teams: Mapping[int, str]
     periods: Mapping[int, str]
 
-    def member(self, member_id: int) -> str:
-        name = self.members.get(member_id)
-        return quoted(name) if name is not None else f"a removed member (id {member_id})"
-
     def initiative(self, initiative_id: int) -> str:
         title = self.initiatives.get(initiative_id)
         return quoted(title) if title is not None else f"a deleted initiative (id {initiative_id})"
@@ -191,7 +187,11 @@ def _scenario_changes(value: Any, names: Names, entry: AuditEntry) -> str:
         changes = changes_from_json(value)
     except (ValidationError, TypeError, ValueError):
         return _fallback(value)
-    members = {member_id: names.member(member_id) for member_id in changes.days_off}
+    # Members unquoted, as the words kept by a scenario's deletion name them.
+    members = {
+        member_id: names.members.get(member_id, f"a removed member (id {member_id})")
+        for member_id in changes.days_off
+    }
     unforced = changes.model_copy(update={"forced_in": [], "forced_out": []})
     words = changes_in_words(unforced, members=members, titles={})
     for ids, label in ((changes.forced_in, "forced in"), (changes.forced_out, "forced out")):

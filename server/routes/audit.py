@@ -197,7 +197,12 @@ def audit_page(request: Request, session: SessionDep, templates: TemplatesDep) -
             }
             return templates.TemplateResponse(request, "audit.html", context, status_code=404)
     if entries:
-        newer = audit_store.count_entries(session, wanted=wanted, newer_than=entries[0].id or 0)
+        paged = asked.before is not None or asked.after is not None
+        newer = (  # the first page holds the newest entries
+            audit_store.count_entries(session, wanted=wanted, newer_than=entries[0].id or 0)
+            if paged
+            else 0
+        )
         first, last = newer + 1, newer + len(entries)
         context["shown"] = f"Changes {first:,}–{last:,} of {total:,}, newest first"
         if newer:

@@ -207,7 +207,7 @@ def test_values_read_with_names_and_the_pages_words(client: TestClient, session:
     assert "changes: none (the live plan)" in scenario_row
     assert "name: Lean" not in scenario_row  # unchanged on both sides
     assert (
-        f"confidence level P80; “Ola”: 4 days off; a deleted initiative (id {gone_id}) forced in"
+        f"confidence level P80; Ola: 4 days off; a deleted initiative (id {gone_id}) forced in"
         in scenario_row
     )
     capacity = _row(rows, "Changed capacity settings")
@@ -244,6 +244,38 @@ def test_old_period_summaries_are_shown_in_the_pages_words(
     row = _row(_rows(client), "of period")
     assert "Changed non-working dates, working weekdays of period “Weekmask sprint”" in row
     assert "working weekdays: 1111100" in row
+
+
+def test_removed_members_and_deleted_periods_are_named_by_id(
+    client: TestClient, session: Session
+) -> None:
+    audit.record(
+        session,
+        action="scenario.update",
+        entity="scenario",
+        entity_id=1,
+        summary="Changed scenario “Gone”",
+        before={"changes": {}},
+        after={"changes": {"days_off": {"77": 2}, "reserve_pct": 15}},
+    )
+    audit.record(
+        session,
+        action="member.delete",
+        entity="member",
+        entity_id=5,
+        summary="Removed member “Kai” from team “Quay”",
+        before={
+            "name": "Kai",
+            "allocation": 0.5,
+            "availability": [{"period_id": 88, "days_off": 1, "allocation": None}],
+        },
+    )
+    session.commit()
+    rows = _rows(client)
+    assert "changes: reserve 15 %; a removed member (id 77): 2 days off" in _row(rows, "“Gone”")
+    removed = _row(rows, "Removed member “Kai”")
+    assert "share: 50 %" in removed
+    assert "days off: a deleted period (id 88): 1 day off, the member's usual share" in removed
 
 
 def test_the_state_words_are_the_pages_labels() -> None:
@@ -366,6 +398,8 @@ def test_names_are_read_in_a_fixed_number_of_statements(
     _scenario_edits(session, "Large", 30)
     with _statements(app) as many:
         page = parse_html(client.get("/audit").text).text()
-    assert "“Member 29”: 1 day off" in page
+    assert "Member 29: 1 day off" in page
     assert "needs: “Work 28”" in page
     assert len(many) == len(few)
+    # Sign-in (2), teams, the entries, their count, member names, initiative titles.
+    assert len(many) <= 7
