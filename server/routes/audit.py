@@ -204,7 +204,14 @@ def audit_page(request: Request, session: SessionDep, templates: TemplatesDep) -
             else 0
         )
         first, last = newer + 1, newer + len(entries)
-        context["shown"] = f"Changes {first:,}–{last:,} of {total:,}, newest first"
+        of = f" of {team_words}" if team_words else ""
+        context["shown"] = (
+            f"Changes{of} {first:,}–{last:,} of {total:,}, newest first"
+            if len(entries) < total
+            else (
+                f"The only change{of}" if total == 1 else f"All {total:,} changes{of}, newest first"
+            )
+        )
         if newer:
             context["newer_url"] = _link(asked, after=entries[0].id or 0)
             context["newest_url"] = _link(asked)
