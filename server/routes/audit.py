@@ -14,6 +14,7 @@ from pydantic import BaseModel
 
 from server.deps import SessionDep, TemplatesDep
 from server.planning import audit_view
+from server.planning.scenarios import MAX_ID
 from server.store import audit as audit_store
 from server.store.teams import list_teams
 
@@ -50,10 +51,13 @@ AUDIT_PAGING = (
 def audit_entries(
     session: SessionDep,
     entity: str | None = Query(None, max_length=40),
-    entity_id: int | None = None,
-    team_id: int | None = None,
+    entity_id: int | None = Query(None, ge=1, le=MAX_ID),
+    team_id: int | None = Query(None, ge=1, le=MAX_ID),
     before: int | None = Query(
-        None, ge=1, description="Only entries older than this entry id (the last one received)."
+        None,
+        ge=1,
+        le=MAX_ID,
+        description="Only entries older than this entry id (the last one received).",
     ),
     limit: int = Query(200, ge=1, le=1000),
 ) -> list[AuditEntryPublic]:
@@ -85,7 +89,9 @@ class _Asked:
 
 def _whole(raw: str) -> int | None:
     text = raw.strip()
-    return int(text) if text.isascii() and text.isdigit() and int(text) > 0 else None
+    if not (text.isascii() and text.isdigit()) or len(text) > 10:
+        return None
+    return int(text) if 1 <= int(text) <= MAX_ID else None
 
 
 def _read_query(params: Mapping[str, str]) -> tuple[_Asked, dict[str, str]]:
@@ -106,6 +112,8 @@ def _read_query(params: Mapping[str, str]) -> tuple[_Asked, dict[str, str]]:
             except ValueError:
                 errors[name] = f"{label}: enter a date such as 2026-12-02."
     since, until = dates["from"], dates["to"]
+    if until == dt.date.max:  # the day after it cannot be written: no end at all
+        until = None
     if since and until and since > until:
         errors["to"] = "To: the end date is before the start date."
     keys: dict[str, int | None] = {}

@@ -133,6 +133,8 @@ def test_the_api_pages_by_before_id(client: TestClient, session: Session) -> Non
     described = client.get("/openapi.json").json()["paths"]["/api/v1/audit"]["get"]
     assert "before" in {parameter["name"] for parameter in described["parameters"]}
     assert "`before`" in described["description"]
+    too_large = client.get("/api/v1/audit", params={"before": 2**63})
+    assert too_large.status_code == 422
 
 
 def _rows(client: TestClient, url: str = "/audit") -> list[str]:
@@ -311,6 +313,8 @@ def test_a_deleted_teams_changes_are_still_shown(client: TestClient, session: Se
     assert "Deleted team “Quay”" in text
     assert "Added team “Quay”" in text
     assert f"All 2 changes of a deleted team (id {team_id}), newest first." in text
+    kept = parse_html(response.text).by_id("audit-team").find_all("option")
+    assert [o.text() for o in kept if "selected" in o.attrs] == [f"a deleted team (id {team_id})"]
 
 
 @pytest.mark.parametrize(
@@ -318,6 +322,7 @@ def test_a_deleted_teams_changes_are_still_shown(client: TestClient, session: Se
     [
         ({"team_id": "abc"}, "“abc” is not a team's number. Choose a team from the list."),
         ({"team_id": "-3"}, "“-3” is not a team's number."),
+        ({"team_id": "99999999999999999999"}, "is not a team's number."),
         ({"from": "2026-13-01"}, "From: enter a date such as 2026-12-02."),
         ({"from": "2026-12-02", "to": "2026-12-01"}, "To: the end date is before the start date."),
         ({"before": "abc"}, "This page address does not name a page of changes."),
@@ -350,6 +355,8 @@ def test_the_date_range_includes_both_days(client: TestClient, session: Session)
     assert heading == "All 2 changes, newest first."
     shown, _, _ = _page(client, "/audit?to=2026-11-01")
     assert shown == ids[:1]
+    shown, _, _ = _page(client, "/audit?from=2026-11-03&to=9999-12-31")
+    assert shown == ids[2:]
     empty = client.get("/audit", params={"from": "2026-11-04"})
     assert "No changes since 4 November 2026." in parse_html(empty.text).text()
     form = parse_html(client.get("/audit?from=2026-11-02").text)
