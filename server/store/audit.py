@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from collections.abc import Sequence
+from dataclasses import dataclass
 from typing import Any
 
 from sqlalchemy import insert
-from sqlmodel import Session, col, select
+from sqlmodel import Session, col, func, select
 
 from server.actor import current_actor
 from server.models import AuditEntry
@@ -86,19 +88,75 @@ def changed(before: dict[str, Any], after: dict[str, Any]) -> tuple[dict[str, An
     return {key: before.get(key) for key in keys}, {key: after[key] for key in keys}
 
 
+@dataclass(frozen=True)
+class EntryFilter:
+    """Which entries a reader asked for; `until` is exclusive (the start of the day after)."""
+
+    entity: str | None = None
+    entity_id: int | None = None
+    team_id: int | None = None
+    since: dt.datetime | None = None
+    until: dt.datetime | None = None
+
+    def where(self, query: Any) -> Any:
+        if self.entity is not None:
+            query = query.where(AuditEntry.entity == self.entity)
+        if self.entity_id is not None:
+            query = query.where(AuditEntry.entity_id == self.entity_id)
+        if self.team_id is not None:
+            query = query.where(AuditEntry.team_id == self.team_id)
+        if self.since is not None:
+            query = query.where(col(AuditEntry.at) >= _in_utc(self.since))
+        if self.until is not None:
+            query = query.where(col(AuditEntry.at) < _in_utc(self.until))
+        return query
+
+
+def _in_utc(moment: dt.datetime) -> dt.datetime:
+    """Times are stored in UTC; a time without a zone is read as UTC too."""
+    if moment.tzinfo is None:
+        return moment.replace(tzinfo=dt.UTC)
+    return moment.astimezone(dt.UTC)
+
+
 def list_entries(
     session: Session,
     *,
     entity: str | None = None,
     entity_id: int | None = None,
     team_id: int | None = None,
+    before_id: int | None = None,
     limit: int = 200,
 ) -> list[AuditEntry]:
-    query = select(AuditEntry).order_by(col(AuditEntry.id).desc()).limit(limit)
-    if entity is not None:
-        query = query.where(AuditEntry.entity == entity)
-    if entity_id is not None:
-        query = query.where(AuditEntry.entity_id == entity_id)
-    if team_id is not None:
-        query = query.where(AuditEntry.team_id == team_id)
-    return list(session.exec(query))
+    """Newest first; `before_id` pages back: only entries older than that entry (by id)."""
+    wanted = EntryFilter(entity=entity, entity_id=entity_id, team_id=team_id)
+    return page_of_entries(session, wanted=wanted, before_id=before_id, limit=limit)
+
+
+def page_of_entries(
+    session: Session,
+    *,
+    wanted: EntryFilter,
+    before_id: int | None = None,
+    after_id: int | None = None,
+    limit: int = 100,
+) -> list[AuditEntry]:
+    """Up to `limit` entries, newest first, by keyset on the id: older than `before_id`, or
+    the ones just newer than `after_id` (the page before, read backwards). Entries added
+    meanwhile never shift a page, since they only take larger ids."""
+    query = wanted.where(select(AuditEntry))
+    if after_id is not None:
+        query = query.where(col(AuditEntry.id) > after_id)
+        rows = list(session.exec(query.order_by(col(AuditEntry.id)).limit(limit)))
+        return rows[::-1]
+    if before_id is not None:
+        query = query.where(col(AuditEntry.id) < before_id)
+    return list(session.exec(query.order_by(col(AuditEntry.id).desc()).limit(limit)))
+
+
+def count_entries(session: Session, *, wanted: EntryFilter, newer_than: int | None = None) -> int:
+    """How many entries match; with `newer_than`, only those of a larger id."""
+    query = wanted.where(select(func.count()).select_from(AuditEntry))
+    if newer_than is not None:
+        query = query.where(col(AuditEntry.id) > newer_than)
+    return int(session.exec(query).one())

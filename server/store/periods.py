@@ -69,6 +69,15 @@ def _apply(db_period: Period, fields: PeriodFields) -> None:
     db_period.non_working_dates = [day.isoformat() for day in fields.non_working_dates]
 
 
+# Fields as the period form labels them, for audit summaries.
+_FIELD_WORDS = {
+    "start_date": "start date",
+    "end_date": "end date",
+    "weekmask": "working weekdays",
+    "non_working_dates": "non-working dates",
+}
+
+
 def period_values(db_period: Period) -> dict[str, Any]:
     """A period's fields as plain JSON values (audit entries, forms)."""
     return {
@@ -157,13 +166,14 @@ def update_period(
     _apply(db_period, fields)
     old, new = audit.changed(before, period_values(db_period))
     if new:
+        changed_words = ", ".join(_FIELD_WORDS.get(k, k) for k in new)
         audit.record(
             session,
             actor=actor,
             action="period.update",
             entity="period",
             entity_id=period_id,
-            summary=f"Changed {', '.join(k.replace('_', ' ') for k in new)} of period “{old_name}”",
+            summary=f"Changed {changed_words} of period “{old_name}”",
             before=old,
             after=new,
         )

@@ -197,11 +197,10 @@ def test_the_changes_page_shows_them_and_filters_by_team(client: TestClient) -> 
     # Before and after of the share change are in their columns.
     cells = [row.text() for row in root.find_all("tr")]
     (share_row,) = [c for c in cells if "share 100 % → share 50 %" in c]
-    assert "allocation: 1 " in share_row
-    assert "allocation: 0.5" in share_row
+    assert "share: 100 % share: 50 %" in share_row  # shares as the pages type them
     (days_row,) = [c for c in cells if "Set availability of “Ola”" in c]
-    assert "days off: 2 " in days_row  # field names in words, numbers without float noise
-    assert "allocation: –" in days_row
+    assert "days off: 2 days " in days_row  # field names in words, numbers without float noise
+    assert "share: the member's usual share" in days_row
 
 
 def test_the_demo_records_its_workspace_as_the_demo(app: FastAPI, session: Session) -> None:
