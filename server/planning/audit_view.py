@@ -16,9 +16,7 @@ from sqlmodel import Session, col, select
 
 from server.models import AuditEntry, Initiative, Member, Period
 from server.planning.scenarios import changes_from_json, changes_in_words
-from server.wording import in_days, quoted
-
-STATE_WORDS = {"candidate": "candidate", "pinned": "pinned", "ruled_out": "ruled out"}
+from server.wording import STATE_LABELS, in_days, quoted
 
 # Field names as the pages label them.
 FIELD_LABELS = {
@@ -254,7 +252,7 @@ _PLAIN: dict[str, Callable[[Any], str]] = {
     "reserve_pct": _numeric(lambda v: f"{_number(v)} %"),
     "focus_factor": _numeric(_number),
     "value": _numeric(_number),
-    "state": lambda v: STATE_WORDS.get(v, _fallback(v)) if isinstance(v, str) else _fallback(v),
+    "state": lambda v: STATE_LABELS.get(v, _fallback(v)) if isinstance(v, str) else _fallback(v),
     "either_or": lambda v: "none" if v in (None, "") else _fallback(v),
     "notes": lambda v: "none" if v in (None, "") else _fallback(v),
     "effort": lambda v: effort_words(v) if isinstance(v, dict) else _fallback(v),

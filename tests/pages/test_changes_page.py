@@ -28,7 +28,6 @@ from server.store.initiatives import delete_initiative, get_initiative, update_i
 from server.store.periods import set_capacity_settings, update_period
 from server.store.plans import create_scenario, update_scenario
 from server.store.teams import delete_team
-from server.templating import STATE_LABELS
 from tests.factories import make_initiative, make_member, make_period, make_team
 from tests.pages.html_tree import parse_html
 
@@ -278,12 +277,6 @@ def test_removed_members_and_deleted_periods_are_named_by_id(
     removed = _row(rows, "Removed member “Kai”")
     assert "share: 50 %" in removed
     assert "days off: a deleted period (id 88): 1 day off, the member's usual share" in removed
-
-
-def test_the_state_words_are_the_pages_labels() -> None:
-    from server.planning.audit_view import STATE_WORDS
-
-    assert STATE_WORDS == STATE_LABELS
 
 
 def test_an_unknown_team_is_named_as_such(client: TestClient) -> None:
