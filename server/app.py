@@ -32,8 +32,8 @@ from server.routes import (
     team_pages,
 )
 from server.security import RequestGuard
-from server.templating import configure_templates
-from server.validation import api_errors
+from server.templating import configure_templates, error_line
+from server.validation import api_errors, field_and_message
 
 API_DESCRIPTION = """
 Loadline's JSON API. Efforts and capacities are person-days. Plans are estimates, not
@@ -106,7 +106,10 @@ def _add_error_handlers(app: FastAPI) -> None:
         if _wants_json(request):
             return JSONResponse({"detail": errors}, status_code=422)
         # A page asked with a bad address (a hand-edited link): say so on a page, not in JSON.
-        message = "; ".join(f"{e['field']}: {e['msg']}" for e in errors)
+        # The API's "msg" already starts with the field; a page names it once, in words.
+        message = "; ".join(
+            error_line(field, text) for field, text in map(field_and_message, exc.errors())
+        )
         return request.app.state.templates.TemplateResponse(
             request, "error.html", {"message": message}, status_code=422
         )

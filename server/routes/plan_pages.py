@@ -23,7 +23,13 @@ from starlette.datastructures import FormData, ImmutableMultiDict
 from server.access import allowed
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError, StaleVersionError
-from server.planning.paste import PasteResult, commit_paste, effort_fields, parse_paste
+from server.planning.paste import (
+    PasteResult,
+    commit_paste,
+    effort_fields,
+    effort_text_message,
+    parse_paste,
+)
 from server.planning.plan_view import (
     PlanView,
     RowEdit,
@@ -326,6 +332,20 @@ def _field(name: str) -> str:
     return head if head in (*ROW_FIELDS, "version") else "form"
 
 
+def _typed_errors(refused: Mapping[str, str], field_of: Callable[[str], str]) -> dict[str, str]:
+    """Refusals by the page's field; an effort typed in one field says what it accepts."""
+    errors: dict[str, str] = {}
+    for name, message in refused.items():
+        field = field_of(name)
+        errors.setdefault(field, effort_text_message(message) if field == "effort" else message)
+    return errors
+
+
+def _quick_field(name: str) -> str:
+    head = name.split(".")[0]
+    return head if head in QUICK_FIELDS else "form"
+
+
 @router.post("/teams/{team_id}/plan/initiatives/{initiative_id}")
 async def edit_row(
     team_id: int,
@@ -345,7 +365,7 @@ async def edit_row(
         )
     values = _row_values(form)
     update_in, refused = parse_form(InitiativeUpdate, _update_values(values))
-    errors = {_field(name): message for name, message in refused.items()}
+    errors = _typed_errors(refused, _field)
     current = None
     # Nothing changed (e.g. a field left without editing): no store call, no new version.
     if update_in is not None and not _unchanged(record, update_in):
@@ -411,10 +431,7 @@ async def quick_add(
             }
         ),
     )
-    errors = {
-        (name.split(".")[0] if name.split(".")[0] in QUICK_FIELDS else "form"): message
-        for name, message in refused.items()
-    }
+    errors = _typed_errors(refused, _quick_field)
     if create_in is not None:
         try:
             record = initiative_store.create_initiative(session, initiative_in=create_in)
