@@ -17,9 +17,16 @@
 
   // A refused value (422), an edit based on an old version (409) and "nothing left to undo"
   // (404) come back as the plan with the message beside the field: show them like a success.
+  // An error of any status answered as a fragment (a deleted row's message, the plan's alert)
+  // carries a header saying so, and goes where the server said (HX-Retarget).
   var SHOWN_STATUSES = [404, 409, 422];
+  function isErrorFragment(xhr) {
+    return Boolean(xhr && xhr.getResponseHeader("Loadline-Error-Fragment"));
+  }
+
   document.addEventListener("htmx:beforeSwap", function (event) {
-    if (SHOWN_STATUSES.indexOf(event.detail.xhr.status) >= 0) {
+    var xhr = event.detail.xhr;
+    if (SHOWN_STATUSES.indexOf(xhr.status) >= 0 || isErrorFragment(xhr)) {
       event.detail.shouldSwap = true;
       event.detail.isError = false;
     }
@@ -388,8 +395,10 @@
     kept = null;
   });
 
+  // An error fragment lands in a part of the plan (a row, the alert slot): the request is
+  // over all the same.
   document.addEventListener("htmx:afterSettle", function (event) {
-    if (!isPlan(event.target)) {
+    if (!isPlan(event.target) && !isErrorFragment(event.detail.xhr)) {
       return;
     }
     busy = false;

@@ -41,6 +41,7 @@ from server.planning.plan_view import (
 )
 from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
 from server.routes.forms import form_text, see_other
+from server.routes.fragments import is_htmx
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
 from server.store.periods import list_periods
@@ -55,13 +56,6 @@ QUICK_FIELDS = ("title", "effort", "value")
 
 def _multi(data: ImmutableMultiDict[str, Any] | FormData) -> dict[str, list[str]]:
     return {key: [v for v in data.getlist(key) if isinstance(v, str)] for key in data}
-
-
-def _is_htmx(request: Request) -> bool:
-    return (
-        request.headers.get("hx-request") == "true"
-        and request.headers.get("hx-history-restore-request") != "true"
-    )
 
 
 def _wants_json(request: Request) -> bool:
@@ -174,7 +168,7 @@ def _render(
         "can_edit": can_edit(request, view.team.id or 0),
     } | dict(extra or {})
     context["row_cache"] = _row_cache(request, view, context["focus"], context["can_edit"])
-    show_fragment = _is_htmx(request)
+    show_fragment = is_htmx(request)
     name = "_plan_body.html" if show_fragment else "plan.html"
     response = templates.TemplateResponse(request, name, context, status_code=status_code)
     response.headers["Vary"] = "HX-Request, Accept"
@@ -232,7 +226,7 @@ def _after_change(
     """A change is stored: back to the plan page, or the plan re-rendered for htmx and JSON,
     marking what the change moved in or out of the plan."""
     params = _multi(form)
-    if not _is_htmx(request) and not _wants_json(request):
+    if not is_htmx(request) and not _wants_json(request):
         whatif, _ = parse_whatif(params)
         return _back(team_id, whatif, anchor)
     view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
@@ -278,7 +272,7 @@ def explain_fragment(
         return JSONResponse(next(r for r in body["rows"] if r["id"] == initiative_id))
     return templates.TemplateResponse(
         request,
-        "_plan_explain_fragment.html" if _is_htmx(request) else "plan_explain.html",
+        "_plan_explain_fragment.html" if is_htmx(request) else "plan_explain.html",
         {
             "view": view,
             "row": row,
@@ -286,7 +280,7 @@ def explain_fragment(
             "states": INITIATIVE_STATES,
             "can_edit": can_edit(request, team_id),
             # Fetched into its row, the row's form is there for "Pin it" and the like.
-            "standalone": not _is_htmx(request),
+            "standalone": not is_htmx(request),
         },
     )
 
