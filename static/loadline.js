@@ -430,6 +430,30 @@
     true
   );
 
+  // --- A form shown again with errors ------------------------------------------------------
+  // A page that comes back refused starts at its first problem: the error summary takes the
+  // focus by itself (autofocus); on forms without one, the first field marked invalid, or else
+  // the form's message. Nothing moves when the page put the focus somewhere already.
+  function focusFirstError() {
+    if (document.querySelector("[autofocus]") || (document.activeElement && document.activeElement !== document.body)) {
+      return;
+    }
+    var first = document.querySelector('main [aria-invalid="true"], main form .form-error[role="alert"]');
+    if (!first) {
+      return;
+    }
+    if (!isField(first) && !first.hasAttribute("tabindex")) {
+      first.setAttribute("tabindex", "-1");
+    }
+    first.focus();
+  }
+
+  if (document.readyState === "loading") {
+    document.addEventListener("DOMContentLoaded", focusFirstError);
+  } else {
+    focusFirstError();
+  }
+
   // --- Quick-add row -------------------------------------------------------------------------
   // Enter moves on to the next empty field of the row; when the row is complete, Enter saves
   // it and the answer brings a fresh empty row with the focus in its title (autofocus).
