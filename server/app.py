@@ -15,6 +15,7 @@ from server.access import AccessControl
 from server.config import PROJECT_ROOT, Settings
 from server.db import make_engine
 from server.errors import LoadlineError
+from server.refusals import back_link
 from server.routes import (
     api_docs,
     api_initiatives,
@@ -33,7 +34,13 @@ from server.routes import (
     published,
     team_pages,
 )
-from server.routes.fragments import error_fragment, is_htmx, not_a_page
+from server.routes.fragments import (
+    changes_url,
+    error_fragment,
+    is_htmx,
+    not_a_page,
+    page_above,
+)
 from server.security import RequestGuard
 from server.templating import configure_templates, error_line
 from server.validation import api_errors, field_and_message
@@ -112,8 +119,11 @@ def _error_page(
 ) -> Response:
     if _fragment_for(request):
         return error_fragment(request, message, status_code, error)
+    # A refused post: a way back to the page it came from (or the page above its address).
+    back = (back_link(request) or page_above(request)) if request.method == "POST" else None
+    context = {"message": message, "back_url": back, "changes_url": changes_url(error)}
     return request.app.state.templates.TemplateResponse(
-        request, "error.html", {"message": message}, status_code=status_code
+        request, "error.html", context, status_code=status_code
     )
 
 

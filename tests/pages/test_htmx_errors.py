@@ -75,7 +75,13 @@ def test_a_plain_post_of_a_deleted_row_still_gets_the_page(
     response = post_form(form_client, edit_url(setup, "Audit log"), fields)
     assert response.status_code == 404
     assert "<html" in response.text
-    assert "“Audit log” was deleted" in response.text
+    root = parse_html(response.text)
+    said = root.find("p", cls="form-error")
+    assert said is not None
+    assert "“Audit log” was deleted" in said.text()
+    links = {a.get("href") for a in root.find_all("a")}
+    assert f"/audit?team_id={setup.team.id}" in links
+    assert root.by_id("back-link").get("href") == f"/teams/{setup.team.id}/plan"
 
 
 def test_a_get_of_a_post_only_address_goes_to_the_page_above(
