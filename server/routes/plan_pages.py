@@ -264,7 +264,7 @@ def explain_fragment(
     view = _view(request, session, settings, team_id, _multi(request.query_params), explain=True)
     row = next((r for r in view.rows if r.id == initiative_id), None)
     if row is None:
-        raise NotFoundError(
+        raise initiative_store.deleted_refusal(session, initiative_id) or NotFoundError(
             f"No initiative with id {initiative_id} in this plan.", field="initiative_id"
         )
     if _wants_json(request):

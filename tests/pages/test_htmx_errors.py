@@ -102,3 +102,20 @@ def test_a_get_of_a_post_only_address_goes_to_the_page_above(
     assert f"row-{initiative_id}" in followed.text
     api = form_client.get(f"/api/v1/teams/{setup.team.id}/plan/initiatives")
     assert api.status_code in (404, 405)
+
+
+def test_the_explanation_of_a_deleted_row_says_so_where_it_opens(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    initiative_id = setup.ids["Audit log"]
+    delete_initiatives(session, initiative_ids=[initiative_id])
+    url = f"{edit_url(setup, 'Audit log')}/explain?period_id={setup.period.id}"
+    response = form_client.get(url, headers=HX)  # fetched into the row's explanation slot
+    assert response.status_code == 404
+    assert "HX-Retarget" not in response.headers
+    root = parse_html(response.text)
+    said = root.find("p", cls="form-error")
+    assert said is not None
+    assert "“Audit log” was deleted by someone else; see" in said.text()
+    assert "<header" not in response.text

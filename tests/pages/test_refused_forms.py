@@ -68,3 +68,28 @@ def test_an_effort_of_two_parts_says_what_is_accepted(
     )
     assert quick.status_code == 422
     assert "Enter a number of days, or low/likely/high such as 3/5/8." in quick.text
+
+
+def test_a_refused_period_change_opens_on_an_error_summary(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    response = post_form(
+        form_client,
+        f"/periods/{setup.period.id}",
+        {
+            "name": "",
+            "kind": "sprint",
+            "start_date": "2027-03-12",
+            "end_date": "2027-03-01",
+            "weekmask": "11111",
+            "non_working_dates": "",
+        },
+    )
+    assert response.status_code == 422
+    summary = parse_html(response.text).by_id("error-summary")
+    assert "autofocus" in summary.attrs
+    links = {a.get("href") for a in summary.find_all("a")}
+    assert "#f-weekmask" in links
+    for href in links:
+        assert parse_html(response.text).by_id((href or "#").removeprefix("#")) is not None
