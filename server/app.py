@@ -3,16 +3,19 @@
 from __future__ import annotations
 
 from fastapi import FastAPI, Request
+from fastapi.exception_handlers import http_exception_handler
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
 from fastapi.templating import Jinja2Templates
 from sqlalchemy.exc import DataError, OperationalError
+from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from server.access import AccessControl
 from server.config import PROJECT_ROOT, Settings
 from server.db import make_engine
 from server.errors import LoadlineError
+from server.refusals import back_link
 from server.routes import (
     api_docs,
     api_initiatives,
@@ -31,9 +34,16 @@ from server.routes import (
     published,
     team_pages,
 )
+from server.routes.fragments import (
+    changes_url,
+    error_fragment,
+    is_htmx,
+    not_a_page,
+    page_above,
+)
 from server.security import RequestGuard
-from server.templating import configure_templates
-from server.validation import api_errors
+from server.templating import configure_templates, error_line
+from server.validation import api_errors, field_and_message
 
 API_DESCRIPTION = """
 Loadline's JSON API. Efforts and capacities are person-days. Plans are estimates, not
@@ -99,17 +109,46 @@ def _wants_json(request: Request) -> bool:
     )
 
 
+def _fragment_for(request: Request) -> bool:
+    """An htmx request of a page: its error answers with a fragment, not a whole page."""
+    return is_htmx(request) and not _wants_json(request)
+
+
+def _error_page(
+    request: Request, message: str, status_code: int, error: LoadlineError | None = None
+) -> Response:
+    if _fragment_for(request):
+        return error_fragment(request, message, status_code, error)
+    # A refused post: a way back to the page it came from (or the page above its address).
+    back = (back_link(request) or page_above(request)) if request.method == "POST" else None
+    context = {"message": message, "back_url": back, "changes_url": changes_url(error)}
+    return request.app.state.templates.TemplateResponse(
+        request, "error.html", context, status_code=status_code
+    )
+
+
 def _add_error_handlers(app: FastAPI) -> None:
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(request: Request, exc: StarletteHTTPException) -> Response:
+        if exc.status_code == 405 and not _wants_json(request):
+            moved = not_a_page(request)
+            if moved is not None:
+                return moved
+        if _fragment_for(request):
+            return error_fragment(request, str(exc.detail), exc.status_code)
+        return await http_exception_handler(request, exc)
+
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError) -> Response:
         errors = api_errors(exc.errors())
         if _wants_json(request):
             return JSONResponse({"detail": errors}, status_code=422)
         # A page asked with a bad address (a hand-edited link): say so on a page, not in JSON.
-        message = "; ".join(f"{e['field']}: {e['msg']}" for e in errors)
-        return request.app.state.templates.TemplateResponse(
-            request, "error.html", {"message": message}, status_code=422
+        # The API's "msg" already starts with the field; a page names it once, in words.
+        message = "; ".join(
+            error_line(field, text) for field, text in map(field_and_message, exc.errors())
         )
+        return _error_page(request, message, 422)
 
     @app.exception_handler(LoadlineError)
     async def _domain(request: Request, exc: LoadlineError) -> Response:
@@ -127,9 +166,7 @@ def _add_error_handlers(app: FastAPI) -> None:
             return JSONResponse(
                 {"detail": exc.detail()}, status_code=exc.status_code, headers=exc.headers()
             )
-        return request.app.state.templates.TemplateResponse(
-            request, "error.html", {"message": exc.message}, status_code=exc.status_code
-        )
+        return _error_page(request, exc.message, exc.status_code, exc)
 
     @app.exception_handler(OverflowError)
     @app.exception_handler(DataError)
@@ -139,9 +176,7 @@ def _add_error_handlers(app: FastAPI) -> None:
         message = "A number in the request is too large for any stored item."
         if _wants_json(request):
             return JSONResponse({"detail": {"message": message}}, status_code=404)
-        return request.app.state.templates.TemplateResponse(
-            request, "error.html", {"message": message}, status_code=404
-        )
+        return _error_page(request, message, 404)
 
     @app.exception_handler(OperationalError)
     async def _database_unavailable(request: Request, exc: OperationalError) -> Response:
@@ -152,6 +187,4 @@ def _add_error_handlers(app: FastAPI) -> None:
         )
         if _wants_json(request):
             return JSONResponse({"detail": {"message": message}}, status_code=503)
-        return request.app.state.templates.TemplateResponse(
-            request, "error.html", {"message": message}, status_code=503
-        )
+        return _error_page(request, message, 503)

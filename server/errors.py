@@ -36,6 +36,16 @@ class NotFoundError(LoadlineError):
     status_code = 404
 
 
+class DeletedError(NotFoundError):
+    """The row was deleted (its audit entry says so): named by title, with the team whose
+    Changes list has the entry."""
+
+    def __init__(self, message: str, *, field: str, title: str, team_id: int | None) -> None:
+        super().__init__(message, field=field)
+        self.title = title
+        self.team_id = team_id
+
+
 class ConflictError(LoadlineError):
     """The request clashes with what is stored (a duplicate name, a dependent row)."""
 

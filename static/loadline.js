@@ -17,9 +17,16 @@
 
   // A refused value (422), an edit based on an old version (409) and "nothing left to undo"
   // (404) come back as the plan with the message beside the field: show them like a success.
+  // An error of any status answered as a fragment (a deleted row's message, the plan's alert)
+  // carries a header saying so, and goes where the server said (HX-Retarget).
   var SHOWN_STATUSES = [404, 409, 422];
+  function isErrorFragment(xhr) {
+    return Boolean(xhr && xhr.getResponseHeader("Loadline-Error-Fragment"));
+  }
+
   document.addEventListener("htmx:beforeSwap", function (event) {
-    if (SHOWN_STATUSES.indexOf(event.detail.xhr.status) >= 0) {
+    var xhr = event.detail.xhr;
+    if (SHOWN_STATUSES.indexOf(xhr.status) >= 0 || isErrorFragment(xhr)) {
       event.detail.shouldSwap = true;
       event.detail.isError = false;
     }
@@ -388,8 +395,10 @@
     kept = null;
   });
 
+  // An error fragment lands in a part of the plan (a row, the alert slot): the request is
+  // over all the same.
   document.addEventListener("htmx:afterSettle", function (event) {
-    if (!isPlan(event.target)) {
+    if (!isPlan(event.target) && !isErrorFragment(event.detail.xhr)) {
       return;
     }
     busy = false;
@@ -420,6 +429,40 @@
     },
     true
   );
+
+  // --- A form shown again with errors ------------------------------------------------------
+  // A page that comes back refused starts at its first problem: the error summary takes the
+  // focus by itself (autofocus); on forms without one, the first field marked invalid, or else
+  // the form's message. Nothing moves when the page put the focus somewhere already.
+  function focusFirstError() {
+    if (document.querySelector("[autofocus]") || (document.activeElement && document.activeElement !== document.body)) {
+      return;
+    }
+    var first = document.querySelector('main [aria-invalid="true"], main form .form-error[role="alert"]');
+    if (!first) {
+      return;
+    }
+    if (!isField(first) && !first.hasAttribute("tabindex")) {
+      first.setAttribute("tabindex", "-1");
+    }
+    first.focus();
+  }
+
+  // A link of the error summary puts the keyboard in its field, not only the view there.
+  document.addEventListener("click", function (event) {
+    var link = event.target && event.target.closest ? event.target.closest(".error-summary a[href^='#']") : null;
+    var field = link ? document.getElementById(link.getAttribute("href").slice(1)) : null;
+    if (field && typeof field.focus === "function") {
+      event.preventDefault();
+      field.focus();
+    }
+  });
+
+  if (document.readyState === "loading") {
+    document.addEventListener("DOMContentLoaded", focusFirstError);
+  } else {
+    focusFirstError();
+  }
 
   // --- Quick-add row -------------------------------------------------------------------------
   // Enter moves on to the next empty field of the row; when the row is complete, Enter saves

@@ -100,6 +100,16 @@ class PasteResult:
         return sum(1 for row in self.rows if not row.ok)
 
 
+# An effort typed in one field ("5" or "3/5/8") that is not a number: say what is accepted.
+EFFORT_TEXT_RULE = "Enter a number of days, or low/likely/high such as 3/5/8."
+_NOT_A_NUMBER = {"Enter a number.", "Enter a finite number."}
+
+
+def effort_text_message(message: str) -> str:
+    """The message for an effort typed as text: a bad number names both accepted forms."""
+    return EFFORT_TEXT_RULE if message in _NOT_A_NUMBER else message
+
+
 def effort_fields(text: str) -> dict[str, Any]:
     """Turn "5" into {"likely": "5"} and "3/5/8" into low, likely and high (still text)."""
     if not text.strip():
@@ -236,7 +246,7 @@ def _parse_row(
         effort_text = by_column.get("effort", "")
         effort = effort_fields(_number_text(effort_text, decimal_comma))
         if effort_text.count("/") not in (0, 2):
-            errors["effort"] = "Give one number of days, or low/likely/high such as 3/5/8."
+            errors["effort"] = EFFORT_TEXT_RULE
     else:
         parts = [by_column.get(name, "") for name in ("low", "likely", "high")]
         effort_text = "/".join(parts) if parts[0] or parts[2] else parts[1]
@@ -265,7 +275,9 @@ def _parse_row(
         values["value"] = _number_text(value_text, decimal_comma)
     initiative_in, refused = parse_form(InitiativeCreate, values)
     for name, message in refused.items():
-        errors.setdefault(_field_of(name), message)
+        field = _field_of(name)
+        one_cell = field == "effort" and "effort" in columns
+        errors.setdefault(field, effort_text_message(message) if one_cell else message)
     key = title_key(title)
     clash = titles_in_use.clash(title) if key and titles_in_use is not None else None
     if key and key in seen:

@@ -23,7 +23,13 @@ from starlette.datastructures import FormData, ImmutableMultiDict
 from server.access import allowed
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError, StaleVersionError
-from server.planning.paste import PasteResult, commit_paste, effort_fields, parse_paste
+from server.planning.paste import (
+    PasteResult,
+    commit_paste,
+    effort_fields,
+    effort_text_message,
+    parse_paste,
+)
 from server.planning.plan_view import (
     PlanView,
     RowEdit,
@@ -35,6 +41,7 @@ from server.planning.plan_view import (
 )
 from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
 from server.routes.forms import form_text, see_other
+from server.routes.fragments import is_htmx
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
 from server.store import initiatives as initiative_store
 from server.store.periods import list_periods
@@ -49,13 +56,6 @@ QUICK_FIELDS = ("title", "effort", "value")
 
 def _multi(data: ImmutableMultiDict[str, Any] | FormData) -> dict[str, list[str]]:
     return {key: [v for v in data.getlist(key) if isinstance(v, str)] for key in data}
-
-
-def _is_htmx(request: Request) -> bool:
-    return (
-        request.headers.get("hx-request") == "true"
-        and request.headers.get("hx-history-restore-request") != "true"
-    )
 
 
 def _wants_json(request: Request) -> bool:
@@ -168,7 +168,7 @@ def _render(
         "can_edit": can_edit(request, view.team.id or 0),
     } | dict(extra or {})
     context["row_cache"] = _row_cache(request, view, context["focus"], context["can_edit"])
-    show_fragment = _is_htmx(request)
+    show_fragment = is_htmx(request)
     name = "_plan_body.html" if show_fragment else "plan.html"
     response = templates.TemplateResponse(request, name, context, status_code=status_code)
     response.headers["Vary"] = "HX-Request, Accept"
@@ -226,7 +226,7 @@ def _after_change(
     """A change is stored: back to the plan page, or the plan re-rendered for htmx and JSON,
     marking what the change moved in or out of the plan."""
     params = _multi(form)
-    if not _is_htmx(request) and not _wants_json(request):
+    if not is_htmx(request) and not _wants_json(request):
         whatif, _ = parse_whatif(params)
         return _back(team_id, whatif, anchor)
     view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
@@ -264,7 +264,7 @@ def explain_fragment(
     view = _view(request, session, settings, team_id, _multi(request.query_params), explain=True)
     row = next((r for r in view.rows if r.id == initiative_id), None)
     if row is None:
-        raise NotFoundError(
+        raise initiative_store.deleted_refusal(session, initiative_id) or NotFoundError(
             f"No initiative with id {initiative_id} in this plan.", field="initiative_id"
         )
     if _wants_json(request):
@@ -272,7 +272,7 @@ def explain_fragment(
         return JSONResponse(next(r for r in body["rows"] if r["id"] == initiative_id))
     return templates.TemplateResponse(
         request,
-        "_plan_explain_fragment.html" if _is_htmx(request) else "plan_explain.html",
+        "_plan_explain_fragment.html" if is_htmx(request) else "plan_explain.html",
         {
             "view": view,
             "row": row,
@@ -280,7 +280,7 @@ def explain_fragment(
             "states": INITIATIVE_STATES,
             "can_edit": can_edit(request, team_id),
             # Fetched into its row, the row's form is there for "Pin it" and the like.
-            "standalone": not _is_htmx(request),
+            "standalone": not is_htmx(request),
         },
     )
 
@@ -326,6 +326,20 @@ def _field(name: str) -> str:
     return head if head in (*ROW_FIELDS, "version") else "form"
 
 
+def _typed_errors(refused: Mapping[str, str], field_of: Callable[[str], str]) -> dict[str, str]:
+    """Refusals by the page's field; an effort typed in one field says what it accepts."""
+    errors: dict[str, str] = {}
+    for name, message in refused.items():
+        field = field_of(name)
+        errors.setdefault(field, effort_text_message(message) if field == "effort" else message)
+    return errors
+
+
+def _quick_field(name: str) -> str:
+    head = name.split(".")[0]
+    return head if head in QUICK_FIELDS else "form"
+
+
 @router.post("/teams/{team_id}/plan/initiatives/{initiative_id}")
 async def edit_row(
     team_id: int,
@@ -345,7 +359,7 @@ async def edit_row(
         )
     values = _row_values(form)
     update_in, refused = parse_form(InitiativeUpdate, _update_values(values))
-    errors = {_field(name): message for name, message in refused.items()}
+    errors = _typed_errors(refused, _field)
     current = None
     # Nothing changed (e.g. a field left without editing): no store call, no new version.
     if update_in is not None and not _unchanged(record, update_in):
@@ -411,10 +425,7 @@ async def quick_add(
             }
         ),
     )
-    errors = {
-        (name.split(".")[0] if name.split(".")[0] in QUICK_FIELDS else "form"): message
-        for name, message in refused.items()
-    }
+    errors = _typed_errors(refused, _quick_field)
     if create_in is not None:
         try:
             record = initiative_store.create_initiative(session, initiative_in=create_in)

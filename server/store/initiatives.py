@@ -15,9 +15,25 @@ from sqlalchemy.orm import make_transient_to_detached
 from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, SQLModel, col, func, select
 
-from server.errors import ConflictError, InputError, StaleVersionError
+from server.actor import current_actor
+from server.errors import (
+    ConflictError,
+    DeletedError,
+    InputError,
+    NotFoundError,
+    StaleVersionError,
+)
 from server.message_titles import conflict_with_titles
-from server.models import TITLE_MAX, EffortLine, Initiative, Need, Period, Team, utcnow
+from server.models import (
+    TITLE_MAX,
+    AuditEntry,
+    EffortLine,
+    Initiative,
+    Need,
+    Period,
+    Team,
+    utcnow,
+)
 from server.schemas import (
     EffortIn,
     EffortPublic,
@@ -340,8 +356,36 @@ def list_initiatives(
 
 
 def get_initiative(session: Session, *, initiative_id: int) -> InitiativeRecord:
-    row = get_or_404(session, Initiative, initiative_id, "initiative")
+    row = session.get(Initiative, initiative_id)
+    if row is None:
+        raise deleted_refusal(session, initiative_id) or NotFoundError(
+            f"No initiative with id {initiative_id}.", field="initiative_id"
+        )
     return load_records(session, [row])[0]
+
+
+def deleted_refusal(session: Session, initiative_id: int) -> DeletedError | None:
+    """An initiative no longer stored, named from its deletion's audit entry (None: no entry,
+    so there never was one of that id)."""
+    query = (
+        select(AuditEntry)
+        .where(AuditEntry.entity == "initiative", AuditEntry.entity_id == initiative_id)
+        .where(AuditEntry.action == "initiative.delete")
+        .order_by(col(AuditEntry.id).desc())
+        .limit(1)
+    )
+    gone = session.exec(query).first()
+    if gone is None:
+        return None
+    title = str((gone.before or {}).get("title") or f"initiative {initiative_id}")
+    me = current_actor.get()
+    who = "you, on another page" if me and gone.actor == me else "someone else"
+    return DeletedError(
+        f"“{title}” was deleted by {who}.",
+        field="initiative_id",
+        title=title,
+        team_id=gone.team_id,
+    )
 
 
 # Ids per IN (...) list: far below the bound-parameter limits of SQLite and PostgreSQL.

@@ -134,7 +134,7 @@ def test_bad_effort_is_refused_beside_the_field(app_page: Page, live_server: Liv
     page = app_page
     gangway, _ = _gangway_and_buoy(page, live_server)
     effort = page.locator(f"#effort-{gangway}")
-    for bad, message in (("abc", "Enter a number."), ("-2", "above 0")):
+    for bad, message in (("abc", "Enter a number of days, or low/likely/high"), ("-2", "above 0")):
         effort = page.locator(f"#effort-{gangway}")
         effort.fill(bad)
         effort.press("Tab")

@@ -14,6 +14,7 @@ from server.schemas import EffortIn, InitiativeUpdate
 from server.store.initiatives import InitiativeRecord, get_initiative, update_initiative
 from server.store.teams import get_team
 from tests.factories import make_initiative, make_period, make_team
+from tests.pages.html_tree import parse_html
 from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
 
 
@@ -451,3 +452,52 @@ def test_the_edit_form_shows_stored_numbers_with_every_digit(
     )
     url = f"/initiatives/{stored.quay}"
     assert Form(parse(form_client.get(url + "/edit").text), url).value("value") == "123456.75"
+
+
+def _summary_links(html: str) -> dict[str, str]:
+    root = parse_html(html)
+    summary = root.by_id("error-summary")
+    assert "autofocus" in summary.attrs
+    assert summary.get("tabindex") == "-1"
+    assert summary.get("role") == "alert"
+    return {(a.get("href") or ""): " ".join(a.text().split()) for a in summary.find_all("a")}
+
+
+def test_a_refused_initiative_edit_opens_on_an_error_summary(
+    form_client: TestClient, stored: Stored
+) -> None:
+    typed = ADD | {
+        "version": "1",
+        "period_id": str(stored.period),
+        "needs": [str(stored.crane)],
+        "notes": "x" * 4001,
+    }
+    response = _post(form_client, f"/initiatives/{stored.quay}", typed)
+    assert response.status_code == 422
+    links = _summary_links(response.text)
+    assert links["#f-notes"].startswith("Notes: Keep it to 4000 characters")
+    root = parse_html(response.text)
+    assert root.by_id("f-notes") is not None
+    # The needs cycle is checked once the values are valid: the notes are cut to size.
+    typed["notes"] = "Both berths."
+    response = _post(form_client, f"/initiatives/{stored.quay}", typed)
+    assert response.status_code == 422
+    links = _summary_links(response.text)
+    assert "needs cycle" in links["#f-needs"]
+    assert links["#f-needs"].startswith("Needs: ")
+    assert parse_html(response.text).by_id("f-needs") is not None
+
+
+def test_a_refused_add_opens_on_the_summary_and_a_good_page_has_none(
+    form_client: TestClient, stored: Stored
+) -> None:
+    page = form_client.get(f"/initiatives/{stored.quay}")
+    assert "error-summary" not in page.text
+    response = _post(
+        form_client,
+        f"/teams/{stored.team}/initiatives",
+        ADD | {"period_id": str(stored.period), "value": "lots"},
+    )
+    assert response.status_code == 422
+    links = _summary_links(response.text)
+    assert links["#f-value"] == "Value score: Enter a number."

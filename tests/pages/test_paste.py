@@ -100,7 +100,7 @@ def test_errors_name_the_line_and_the_field() -> None:
     assert result.error_count == 7
     errors = {row.line: row.errors for row in result.rows}
     assert errors[1] == {}
-    assert errors[2] == {"effort": "Enter a number."}
+    assert errors[2] == {"effort": "Enter a number of days, or low/likely/high such as 3/5/8."}
     assert "above 0" in errors[3]["effort"]
     assert errors[4] == {"value": "This field is required."}
     assert "not a state" in errors[5]["state"]
@@ -169,7 +169,7 @@ def test_preview_shows_errors_per_row_and_commit_refuses_bad_blocks(
     assert preview.status_code == 422
     root = parse_html(preview.text)
     bad = root.by_id("paste-line-3")
-    assert "Line 3, effort: Enter a number." in bad.text()
+    assert "Line 3, effort: Enter a number of days, or low/likely/high such as 3/5/8." in bad.text()
     assert "ready" in root.by_id("paste-line-2").text()
     assert "1 of 3 rows has errors" in root.by_id("paste-preview").text()
     assert root.find(id="paste-add") is None  # no add button while a row is wrong

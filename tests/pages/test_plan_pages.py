@@ -575,7 +575,8 @@ def test_inline_edit_without_script_redirects_back(
 @pytest.mark.parametrize(
     ("effort", "message"),
     [
-        ("abc", "Enter a number."),
+        ("abc", "Enter a number of days, or low/likely/high such as 3/5/8."),
+        ("5/8", "Enter a number of days, or low/likely/high such as 3/5/8."),
         ("-2", "above 0"),
         ("3/2/8", "low estimate is above the likely one"),
     ],

@@ -115,6 +115,17 @@ def test_setting_days_off_through_the_form(
     assert _breakdown(page)["Capacity for planned work"] == "7.14 days"
 
 
+def _described(row: Form, name: str) -> str:
+    """The message the field points at (aria-describedby), found in the field's own form."""
+    control = row.control(name)
+    assert control.attrs.get("aria-invalid") == "true"
+    target = control.attrs.get("aria-describedby")
+    found = [e for e in row.element.iter() if target and e.attrs.get("id") == target]
+    assert len(found) == 1, target
+    assert "field-error" in found[0].classes
+    return found[0].text()
+
+
 @pytest.mark.parametrize(
     ("days_off", "share", "field", "message"),
     [
@@ -148,8 +159,11 @@ def test_bad_days_off_are_shown_again_in_the_member_row(
     row = Form(page, url, member_id=str(team.ola))
     assert row.value("days_off") == days_off
     assert row.value("share") == share
-    assert message in " ".join(row.errors())
-    assert field.replace("_", " ") in " ".join(row.errors())
+    # The message sits beside its own field, which points at it: no label in front of it.
+    said = _described(row, field)
+    assert message in said
+    assert not said.startswith(field.replace("_", " ") + ":")
+    assert row.errors() == [said]
     # Kari's row is untouched and shows no message.
     assert Form(page, url, member_id=str(team.kari)).errors() == []
     assert _days_off(session, team.ola) == [2]
@@ -169,9 +183,11 @@ def test_every_bad_availability_field_is_named_once(
     assert response.status_code == 422  # type: ignore[attr-defined]
     errors = Form(parse(response.text), url, member_id=str(team.ola)).errors()  # type: ignore[attr-defined]
     assert len(errors) == 2
-    assert "days off: 70 days off is more than the 10 working days" in " ".join(errors)
-    assert "share: Enter a percentage above 0 and at most 100." in errors
-    assert not any("days_off" in e for e in errors)  # the label once, in words
+    row = Form(parse(response.text), url, member_id=str(team.ola))  # type: ignore[attr-defined]
+    # Each beside its own field, which names it: the message does not say it again.
+    assert _described(row, "days_off").startswith("70 days off is more than the 10 working days")
+    assert _described(row, "share") == "Enter a percentage above 0 and at most 100."
+    assert not any(e.startswith(("days off:", "share:", "days_off")) for e in errors)
     assert _days_off(session, team.ola) == [2]
 
 

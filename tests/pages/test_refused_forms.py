@@ -1,0 +1,95 @@
+"""Re-shown forms start at their problems, keep what was typed, and name each field once."""
+
+from __future__ import annotations
+
+from fastapi.testclient import TestClient
+from sqlmodel import Session
+
+from tests.factories import make_member, set_days_off
+from tests.pages.html_tree import parse_html
+from tests.pages.test_plan_pages import HX, build, edit_url, post_form, row_fields
+
+
+def test_the_curve_field_keeps_a_refused_value(form_client: TestClient, session: Session) -> None:
+    setup = build(session)
+    for typed in ("-5", "0", "1000000", "NaN"):
+        response = form_client.get(f"{setup.url}&delta={typed}")
+        assert response.status_code == 422
+        field = parse_html(response.text).by_id("delta-days")
+        assert field.get("value") == typed
+        assert field.get("aria-invalid") == "true"
+
+
+def test_a_bad_query_value_is_named_once(form_client: TestClient) -> None:
+    response = form_client.get("/audit?team_id=abc")
+    assert response.status_code == 422
+    text = " ".join(parse_html(response.text).text().split())
+    assert "team id: Enter a number." in text
+    assert "team_id: team_id" not in text
+    assert "team_id:" not in text
+
+
+def test_days_off_and_share_beside_their_fields_say_it_once(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    member = make_member(session, setup.team, "Noor")
+    set_days_off(session, member, setup.period, 0)
+    url = f"/teams/{setup.team.id}/availability"
+    base = {"member_id": str(member.id), "period_id": str(setup.period.id)}
+    for data, wrong in (
+        ({"days_off": "70", "share": ""}, "days off: "),
+        ({"days_off": "0", "share": "250"}, "share: "),
+    ):
+        response = post_form(form_client, url, base | data)
+        assert response.status_code in (409, 422), response.text[:300]
+        root = parse_html(response.text)
+        errors = [p for p in root.find_all("p", cls="field-error") if p.get("id")]
+        assert errors, response.text[:500]
+        for error in errors:
+            assert not error.text().strip().startswith(wrong), error.text()
+
+
+def test_an_effort_of_two_parts_says_what_is_accepted(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    initiative_id = setup.ids["Audit log"]
+    fields = row_fields(session, initiative_id, effort="5/8")
+    response = post_form(form_client, edit_url(setup, "Audit log"), fields, **HX)
+    assert response.status_code == 422
+    error = parse_html(response.text).by_id(f"effort-{initiative_id}-error")
+    assert error.text().strip() == "Enter a number of days, or low/likely/high such as 3/5/8."
+    quick = post_form(
+        form_client,
+        f"/teams/{setup.team.id}/plan/initiatives",
+        {"title": "Tide gauge", "effort": "5/8", "value": "3", "period_id": str(setup.period.id)},
+        **HX,
+    )
+    assert quick.status_code == 422
+    assert "Enter a number of days, or low/likely/high such as 3/5/8." in quick.text
+
+
+def test_a_refused_period_change_opens_on_an_error_summary(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    response = post_form(
+        form_client,
+        f"/periods/{setup.period.id}",
+        {
+            "name": "",
+            "kind": "sprint",
+            "start_date": "2027-03-12",
+            "end_date": "2027-03-01",
+            "weekmask": "11111",
+            "non_working_dates": "",
+        },
+    )
+    assert response.status_code == 422
+    summary = parse_html(response.text).by_id("error-summary")
+    assert "autofocus" in summary.attrs
+    links = {a.get("href") for a in summary.find_all("a")}
+    assert "#f-weekmask" in links
+    for href in links:
+        assert parse_html(response.text).by_id((href or "#").removeprefix("#")) is not None
