@@ -21,7 +21,7 @@ def test_the_curve_field_keeps_a_refused_value(form_client: TestClient, session:
 
 
 def test_a_bad_query_value_is_named_once(form_client: TestClient) -> None:
-    response = form_client.get("/audit?team_id=abc")
+    response = form_client.get("/plans?team_id=abc")
     assert response.status_code == 422
     text = " ".join(parse_html(response.text).text().split())
     assert "team id: Enter a number." in text
