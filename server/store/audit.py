@@ -102,3 +102,16 @@ def list_entries(
     if team_id is not None:
         query = query.where(AuditEntry.team_id == team_id)
     return list(session.exec(query))
+
+
+def last_actor(session: Session, *, entity: str, entity_id: int | None) -> str:
+    """Who made the newest change to a row ("" when unknown): named when a save collides."""
+    if entity_id is None:
+        return ""
+    query = (
+        select(AuditEntry.actor)
+        .where(AuditEntry.entity == entity, AuditEntry.entity_id == entity_id)
+        .order_by(col(AuditEntry.id).desc())
+        .limit(1)
+    )
+    return session.exec(query).first() or ""
