@@ -10,6 +10,7 @@ from typing import Any
 from fastapi import Request
 from fastapi.responses import RedirectResponse, Response
 
+from server.actor import current_actor
 from server.deps import TemplatesDep
 from server.errors import LoadlineError, StaleVersionError
 
@@ -131,6 +132,7 @@ class Merged:
     def note(self, who: str = "") -> str:
         """What the form did with the stored values, in a few short sentences."""
         colleague = who or "someone else"
+        yourself = bool(who) and who == current_actor.get()
         parts = []
         if self.kept:
             parts.append(f"Kept as you typed: {', '.join(self.kept)}.")
@@ -138,10 +140,16 @@ class Merged:
             parts.append(f"Refreshed to the stored value: {', '.join(self.refreshed)}.")
         for field in self.both:
             yours, stored = field.yours or "(empty)", field.stored or "(empty)"
-            parts.append(
-                f"You and {colleague} both changed {field.label}: yours {yours}, "
-                f"stored {stored}; yours is kept."
-            )
+            if yourself:  # the same account, in another tab or window
+                parts.append(
+                    f"You changed {field.label} in another window too: here {yours}, "
+                    f"stored {stored}; this one is kept."
+                )
+            else:
+                parts.append(
+                    f"You and {colleague} both changed {field.label}: yours {yours}, "
+                    f"stored {stored}; yours is kept."
+                )
         return " ".join(parts)
 
 
