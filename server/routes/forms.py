@@ -189,6 +189,21 @@ def shown_as_posted(form: Any, stored: Mapping[str, Any]) -> dict[str, Any]:
     return {name: now if posted[name] is None else posted[name] for name, now in stored.items()}
 
 
+def basis_to_show(
+    form: Any, errors: Mapping[str, str], based_on_now: str, shown_now: Mapping[str, Any]
+) -> tuple[str, dict[str, Any]]:
+    """The fingerprint and `shown_<field>` values to show a refused form with.
+
+    Refused as typed, it stays based on what it showed when opened: were it based on the
+    values stored now, a colleague's change made meanwhile would be overwritten without a
+    word by the typed copy of the old value. Refused for that change, it is based on the
+    stored values now (the fields were merged with them).
+    """
+    if "version" in errors:
+        return based_on_now, dict(shown_now)
+    return based_on(form) or based_on_now, shown_as_posted(form, shown_now)
+
+
 def merge_after_conflict(
     form: Any,
     typed: Mapping[str, Any],

@@ -19,6 +19,7 @@ from server.routes.forms import (
     SPREAD_RULE,
     after_conflict,
     based_on,
+    basis_to_show,
     form_text,
     percent_to_share,
     refusal_status,
@@ -127,12 +128,17 @@ def _period_page(
     form: dict[str, Any] | None = None,
     errors: dict[str, str] | None = None,
     delete_error: str | None = None,
+    basis: tuple[str, dict[str, Any]] | None = None,
     status_code: int = 200,
 ) -> Response:
+    based_on_now, shown = basis or (
+        period_store.period_fingerprint(db_period),
+        _period_form(db_period),
+    )
     context = {
         "period": db_period,
-        "based_on": period_store.period_fingerprint(db_period),
-        "shown": _period_form(db_period),
+        "based_on": based_on_now,
+        "shown": shown,
         "period_form": form or _period_form(db_period),
         "period_errors": errors or {},
         "delete_error": delete_error,
@@ -170,12 +176,16 @@ async def update_period(
     shown, errors = after_conflict(
         form, errors, typed, _period_form(db_period), labels=PERIOD_LABELS, who=who
     )
+    basis = basis_to_show(
+        form, errors, period_store.period_fingerprint(db_period), _period_form(db_period)
+    )
     return _period_page(
         request,
         templates,
         db_period,
         form=shown,
         errors=_flatten(errors),
+        basis=basis,
         status_code=refusal_status(errors),
     )
 

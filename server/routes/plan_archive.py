@@ -54,7 +54,7 @@ from server.routes.api_plans import (
     plan_export,
     plan_summary,
 )
-from server.routes.forms import after_conflict, form_text, render, see_other, shown_as_posted
+from server.routes.forms import after_conflict, basis_to_show, form_text, render, see_other
 from server.schemas import Title
 from server.store import audit
 from server.store import plans as store
@@ -602,9 +602,9 @@ async def update_scenario(
         else:
             return see_other(f"/scenarios/{scenario_id}")
     context = _scenario_context(session, scenario_id, settings)
-    if "version" not in errors:  # refused as typed: still based on what the form showed
-        context["edit_based_on"] = form_text(form, "based_on")
-        context["shown"] = shown_as_posted(form, context["shown"])
+    context["edit_based_on"], context["shown"] = basis_to_show(
+        form, errors, context["based_on"], context["shown"]
+    )
     who = audit.last_actor(session, entity="scenario", entity_id=scenario_id)
     typed, errors = after_conflict(
         form, errors, _echo(form), context["shown"], labels=context["labels"], who=who

@@ -17,6 +17,7 @@ from server.routes.forms import (
     SPREAD_RULE,
     after_conflict,
     based_on,
+    basis_to_show,
     form_text,
     optional_int,
     percent_to_share,
@@ -126,6 +127,7 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "team_shown": _team_shown(db_team),
         "availability_fingerprint": team_store.availability_fingerprint,
         "availability_shown": _availability_shown,
+        "availability_basis": None,  # (based_on, shown) of a refused days-off row
         "member_based_on": {m.id: team_store.member_fingerprint(m) for m in members},
         "member_shown": {m.id: _member_shown(m) for m in members},
         "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
@@ -189,6 +191,9 @@ async def update_team(
     who = audit.last_actor(session, entity="team", entity_id=team_id)
     values, errors = after_conflict(
         form, errors, values, context["team_shown"], labels=LABELS, who=who
+    )
+    context["team_based_on"], context["team_shown"] = basis_to_show(
+        form, errors, context["team_based_on"], context["team_shown"]
     )
     context |= {"team_form": values, "team_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
@@ -256,6 +261,9 @@ async def update_member(
     who = audit.last_actor(session, entity="member", entity_id=member_id)
     values, errors = after_conflict(form, errors, values, stored, labels=LABELS, who=who)
     context["member_edit"] = {"id": member_id, "form": values, "errors": errors}
+    if member_id in context["member_shown"]:
+        basis = basis_to_show(form, errors, context["member_based_on"][member_id], stored)
+        context["member_based_on"][member_id], context["member_shown"][member_id] = basis
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
@@ -321,9 +329,10 @@ async def set_availability(
     who = audit.last_actor(
         session, entity="availability", entity_id=stored_row.id if stored_row else None
     )
-    values, errors = after_conflict(
-        form, errors, values, _availability_shown(stored_row), labels=LABELS, who=who
-    )
+    stored = _availability_shown(stored_row)
+    values, errors = after_conflict(form, errors, values, stored, labels=LABELS, who=who)
+    now = team_store.availability_fingerprint(stored_row)
+    context["availability_basis"] = basis_to_show(form, errors, now, stored)
     context |= {"availability_form": values, "availability_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
@@ -364,6 +373,9 @@ async def set_capacity(
     )
     values, errors = after_conflict(
         form, errors, values, context["settings_shown"], labels=LABELS, who=who
+    )
+    context["settings_based_on"], context["settings_shown"] = basis_to_show(
+        form, errors, context["settings_based_on"], context["settings_shown"]
     )
     context |= {"settings_form": values, "settings_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))

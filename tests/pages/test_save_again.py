@@ -357,3 +357,49 @@ def test_scenario_save_again_keeps_the_colleagues_focus_factor(
     assert stored.name == "Lean and late"
     assert stored.changes.get("focus_factor") == 0.8
     assert stored.changes.get("reserve_pct") == 25
+
+
+def test_a_typing_mistake_keeps_the_form_based_on_what_it_showed(
+    tabs: tuple[TestClient, TestClient], session: Session, team_page: tuple[int, int, int]
+) -> None:
+    """A saves a focus factor; B, on the page as it was, types a bad reserve and is refused
+    as typed (422). The re-shown form is still based on what B first saw, so B's corrected
+    save is refused too and merged, instead of putting the old focus factor back unseen."""
+    tab_a, tab_b = tabs
+    team_id, period_id, _ = team_page
+    url = f"/teams/{team_id}/capacity"
+    opened_a = submitted(_team_form(tab_a, team_id, period_id, url))
+    opened_b = submitted(_team_form(tab_b, team_id, period_id, url))
+    assert _post(tab_a, url, opened_a | {"focus_factor": "0.65"}).status_code == 303
+
+    mistake = _post(tab_b, url, opened_b | {"reserve_pct": "lots"})
+    assert mistake.status_code == 422
+    form = Form(parse(mistake.text), url)
+    assert form.value("focus_factor") == "0.7"  # as typed: the page B is looking at
+    refused = _post(tab_b, url, submitted(form) | {"reserve_pct": "20"})
+    assert refused.status_code == 409
+    form = Form(parse(refused.text), url)
+    assert (form.value("focus_factor"), form.value("reserve_pct")) == ("0.65", "20")
+    assert _post(tab_b, url, submitted(form)).status_code == 303
+    session.expire_all()
+    row = session.exec(select(CapacitySettings).where(CapacitySettings.team_id == team_id)).one()
+    assert (row.focus_factor, row.reserve_pct) == (0.65, 20)
+
+
+def test_a_typing_mistake_on_the_plan_row_keeps_what_it_showed(
+    tabs: tuple[TestClient, TestClient], session: Session, plan_row: tuple[str, str, int]
+) -> None:
+    tab_a, tab_b = tabs
+    page_url, edit_url, rid = plan_row
+    opened_a, opened_b = _open_row(tab_a, page_url, rid), _open_row(tab_b, page_url, rid)
+    assert _post(tab_a, edit_url, opened_a | {"value": "26"}, **HX).status_code == 200
+    mistake = _post(tab_b, edit_url, opened_b | {"effort": "soon"}, **HX)
+    assert mistake.status_code == 422
+    fields = _row_fields(parse_html(mistake.text), rid)
+    assert (fields["version"], fields["shown_value"]) == ("1", "25")
+    refused = _post(tab_b, edit_url, fields | {"effort": "15"}, **HX)
+    assert refused.status_code == 409
+    assert (
+        _post(tab_b, edit_url, _row_fields(parse_html(refused.text), rid), **HX).status_code == 200
+    )
+    assert _stored(session, rid) == (15, 26)
