@@ -16,6 +16,7 @@ from fastapi.testclient import TestClient
 from sqlmodel import Session, select
 
 from server.models import CapacitySettings, Member, Period, Scenario
+from server.routes.forms import BothChanged, merge_after_conflict
 from server.store.initiatives import get_initiative
 from server.store.plans import create_scenario
 from tests.conftest import csrf_token
@@ -403,3 +404,23 @@ def test_a_typing_mistake_on_the_plan_row_keeps_what_it_showed(
         _post(tab_b, edit_url, _row_fields(parse_html(refused.text), rid), **HX).status_code == 200
     )
     assert _stored(session, rid) == (15, 26)
+
+
+# --- the merge rule itself ---------------------------------------------------------------
+
+
+def test_merge_rule_field_by_field() -> None:
+    shown = {"shown_a": "1", "shown_b": "x", "shown_c": "5", "shown_needs": "3,4", "shown_d": "2"}
+    typed = {"a": "1.0", "b": "y", "c": "6", "needs": ["4", "3"], "d": "7", "e": "typed"}
+    stored = {"a": "2", "b": "x", "c": "8", "needs": ["3"], "d": "7", "e": "stored"}
+    merged = merge_after_conflict(shown, typed, stored, {"c": "value"})
+    # a: typed as shown (1.0 is 1) -> stored; b: changed here only; c: changed by both;
+    # needs: untouched here (order aside) -> stored; d: both set it to 7 (no clash);
+    # e: no shown value sent (an older page) -> kept as typed, not named.
+    assert merged.values == typed | {"a": "2", "needs": ["3"]}
+    assert merged.kept == ("b", "value", "d")
+    assert merged.refreshed == ("a", "needs")
+    assert merged.both == (BothChanged("value", "6", "8"),)
+    assert merged.note("Ines").endswith(
+        "You and Ines both changed value: yours 6, stored 8; yours is kept."
+    )
