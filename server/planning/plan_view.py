@@ -229,6 +229,10 @@ class RowEdit:
     values: Mapping[str, str]
     errors: Mapping[str, str] = field(default_factory=dict)
     current: Mapping[str, Any] | None = None  # stored values after a clash (stale version)
+    note: str = ""  # after a clash: which fields were kept as typed and which refreshed
+    # The stored values the row showed when it was opened, carried over a refusal that is
+    # not a clash (the version stays the one it showed too); None: as stored now.
+    shown: Mapping[str, str] | None = None
 
 
 @dataclass(frozen=True)
@@ -255,6 +259,8 @@ class RowView:
     form: Mapping[str, str]
     errors: Mapping[str, str]
     current: Mapping[str, Any] | None
+    note: str  # see RowEdit
+    shown: Mapping[str, str]  # the stored values the row's form is based on (`shown_<field>`)
 
 
 def effort_text(record: InitiativeRecord, team_id: int) -> str:
@@ -309,14 +315,10 @@ def _row_view(
             planned = plan_row.effort_days
         if not plan_row.estimate.is_certain:
             pert = (pert_mean(plan_row.estimate), pert_sd(plan_row.estimate))
-    stored_effort = effort_text(record, team_id)
-    value_text = _plain(record.row.value)
-    form = {
-        "effort": stored_effort,
-        "value": value_text,
-        "state": record.row.state,
-        "version": str(record.row.version),
-    }
+    stored = row_form(record, team_id)
+    stored_effort = stored["effort"]
+    value_text = stored["value"]
+    form = stored | {"version": str(record.row.version)}
     if edit is not None:
         form |= dict(edit.values)
     return RowView(
@@ -342,7 +344,18 @@ def _row_view(
         form=form,
         errors=dict(edit.errors) if edit else {},
         current=edit.current if edit else None,
+        note=edit.note if edit else "",
+        shown=dict(edit.shown) if edit and edit.shown is not None else stored,
     )
+
+
+def row_form(record: InitiativeRecord, team_id: int) -> dict[str, str]:
+    """The stored estimate, value score and state as a plan row's fields show them."""
+    return {
+        "effort": effort_text(record, team_id),
+        "value": _plain(record.row.value),
+        "state": record.row.state,
+    }
 
 
 # --- totals, capacity bar, risk --------------------------------------------------------------

@@ -17,7 +17,9 @@ from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
 from server.routes.forms import (
     SPREAD_RULE,
+    after_conflict,
     based_on,
+    basis_to_show,
     form_text,
     percent_to_share,
     refusal_status,
@@ -31,6 +33,7 @@ from server.schemas import (
     PeriodUpdate,
     TeamCreate,
 )
+from server.store import audit
 from server.store import periods as period_store
 from server.store import teams as team_store
 from server.validation import parse_form
@@ -104,6 +107,14 @@ async def add_period(request: Request, session: SessionDep, templates: Templates
     return render(templates, request, "home.html", context, status_code=422)
 
 
+PERIOD_LABELS = {
+    "start_date": "first day",
+    "end_date": "last day",
+    "weekmask": "working weekdays",
+    "non_working_dates": "non-working dates",
+}
+
+
 def _period_form(db_period: Any) -> dict[str, Any]:
     values = period_store.period_values(db_period)
     return values | {"non_working_dates": " ".join(values["non_working_dates"])}
@@ -117,11 +128,17 @@ def _period_page(
     form: dict[str, Any] | None = None,
     errors: dict[str, str] | None = None,
     delete_error: str | None = None,
+    basis: tuple[str, dict[str, Any]] | None = None,
     status_code: int = 200,
 ) -> Response:
+    based_on_now, shown = basis or (
+        period_store.period_fingerprint(db_period),
+        _period_form(db_period),
+    )
     context = {
         "period": db_period,
-        "based_on": period_store.period_fingerprint(db_period),
+        "based_on": based_on_now,
+        "shown": shown,
         "period_form": form or _period_form(db_period),
         "period_errors": errors or {},
         "delete_error": delete_error,
@@ -154,13 +171,21 @@ async def update_period(
         if updated is not None:
             return see_other("/")
     session.refresh(db_period)
-    shown = values | {"non_working_dates": form_text(form, "non_working_dates")}
+    typed = values | {"non_working_dates": form_text(form, "non_working_dates")}
+    who = audit.last_actor(session, entity="period", entity_id=period_id)
+    shown, errors = after_conflict(
+        form, errors, typed, _period_form(db_period), labels=PERIOD_LABELS, who=who
+    )
+    basis = basis_to_show(
+        form, errors, period_store.period_fingerprint(db_period), _period_form(db_period)
+    )
     return _period_page(
         request,
         templates,
         db_period,
         form=shown,
         errors=_flatten(errors),
+        basis=basis,
         status_code=refusal_status(errors),
     )
 

@@ -15,12 +15,14 @@ from server.errors import LoadlineError, NotFoundError
 from server.routes.forms import (
     SHARE_RULE,
     form_text,
+    merge_after_conflict,
     optional_int,
     optional_text,
     percent_to_share,
     refused_as_percentage,
     render,
     see_other,
+    shown_as_posted,
     store_or_errors,
 )
 from server.schemas import (
@@ -28,6 +30,7 @@ from server.schemas import (
     InitiativeCreate,
     InitiativeUpdate,
 )
+from server.store import audit
 from server.store import initiatives as initiative_store
 from server.store import periods as period_store
 from server.store import teams as team_store
@@ -150,7 +153,6 @@ async def add_initiative(
 def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
     record = initiative_store.get_initiative(session, initiative_id=initiative_id)
     row = record.row
-    effort = record.own_effort
     others = initiative_store.list_initiatives(session, team_id=row.team_id)
     # Needs on other teams' work are offered too, or saving the form would drop them.
     listed = {r.row.id for r in others}
@@ -160,6 +162,7 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         if needed_id not in listed
     ]
     names = {t.id: t.name for t in team_store.list_teams(session)}
+    stored = _stored_form(record)
     return {
         "record": record,
         # Effort other teams carry for it: listed, and each can be removed here (the way to
@@ -173,22 +176,40 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         "periods": period_store.list_periods(session),
         "states": INITIATIVE_STATES,
         "candidates": [r for r in others if r.row.id != row.id],
-        "form": {
-            "title": row.title,
-            "notes": row.notes,
-            "effort.likely": form_number(effort.likely),
-            "effort.low": form_number(effort.low),
-            "effort.high": form_number(effort.high),
-            "value": form_number(row.value),
-            "confidence": form_number(row.confidence * 100 if row.confidence is not None else None),
-            "state": row.state,
-            "either_or": row.either_or or "",
-            "period_id": str(row.period_id) if row.period_id else initiative_store.BACKLOG,
-            "needs": [str(n) for n in record.needs],
-            "version": str(row.version),
-        },
+        "form": stored | {"version": str(row.version)},
+        "shown": stored,  # the stored values the form is based on (`shown_<field>`)
         "errors": {},
         "current": None,
+        "merge_note": "",
+    }
+
+
+# Names of the edit form's fields in a message about a colleague's change.
+EDIT_LABELS = {
+    "effort.likely": "likely effort",
+    "effort.low": "low effort",
+    "effort.high": "high effort",
+    "either_or": "either-or set",
+    "period_id": "period",
+}
+
+
+def _stored_form(record: initiative_store.InitiativeRecord) -> dict[str, Any]:
+    """The stored initiative as the edit form's fields show it."""
+    row = record.row
+    effort = record.own_effort
+    return {
+        "title": row.title,
+        "notes": row.notes,
+        "effort.likely": form_number(effort.likely),
+        "effort.low": form_number(effort.low),
+        "effort.high": form_number(effort.high),
+        "value": form_number(row.value),
+        "confidence": form_number(row.confidence * 100 if row.confidence is not None else None),
+        "state": row.state,
+        "either_or": row.either_or or "",
+        "period_id": str(row.period_id) if row.period_id else initiative_store.BACKLOG,
+        "needs": [str(n) for n in record.needs],
     }
 
 
@@ -217,6 +238,9 @@ async def edit_initiative(
             if str(line.team_id) not in dropped
         ]
     update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
+    typed = form_echo(form)
+    # Refused as typed: the form stays based on what it showed (its version is echoed too).
+    shown = shown_as_posted(form, context["shown"])
     if update_in is not None:
         try:
             initiative_store.update_initiative(
@@ -226,10 +250,16 @@ async def edit_initiative(
             errors = {exc.field or "form": exc.message}
             current = getattr(exc, "current", None)
             context = _edit_context(session, initiative_id) | {"current": current}
+            if current is not None:  # a colleague's change: merge it in, based on it now
+                merged = merge_after_conflict(form, typed, context["shown"], EDIT_LABELS)
+                typed = merged.values | {"version": str(current["version"])}
+                shown = context["shown"]
+                who = audit.last_actor(session, entity="initiative", entity_id=initiative_id)
+                context["merge_note"] = merged.note(who)
         else:
             period = form_text(form, "period_id") or initiative_store.BACKLOG
             return see_other(f"/teams/{team_id}/initiatives?period={period}")
-    context |= {"form": form_echo(form), "errors": errors}
+    context |= {"form": typed, "errors": errors, "shown": shown}
     status = 409 if context.get("current") else 422
     return render(templates, request, "initiative_edit.html", context, status_code=status)
 

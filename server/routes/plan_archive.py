@@ -21,7 +21,7 @@ from starlette.datastructures import FormData, UploadFile
 
 from server.actor import current_actor
 from server.deps import SessionDep, SettingsDep, TemplatesDep
-from server.errors import InputError, LoadlineError, NotFoundError
+from server.errors import InputError, LoadlineError, NotFoundError, StaleVersionError
 from server.models import Period, SavedPlan, Team, utcnow
 from server.planning import exports
 from server.planning.compare import (
@@ -54,8 +54,9 @@ from server.routes.api_plans import (
     plan_export,
     plan_summary,
 )
-from server.routes.forms import form_text, render, see_other
+from server.routes.forms import after_conflict, basis_to_show, form_text, render, see_other
 from server.schemas import Title
+from server.store import audit
 from server.store import plans as store
 from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
@@ -524,6 +525,32 @@ def _form_of(changes: ScenarioChanges) -> dict[str, str]:
     return data
 
 
+def _scenario_shown(db_scenario: Any, changes: ScenarioChanges, baseline: Any) -> dict[str, str]:
+    """Every field of the scenario form as the stored scenario fills it (blank: live value)."""
+    fields = {
+        "name": db_scenario.name,
+        "capacity_days": "",
+        "focus_factor": "",
+        "reserve_pct": "",
+        "confidence": "",
+    }
+    fields |= {f"days_off.{m.member_id}": "" for m in baseline.inputs.capacity.members}
+    fields |= {f"forced.{row.id}": "" for row in baseline.inputs.initiatives}
+    return fields | _form_of(changes)
+
+
+def _scenario_labels(baseline: Any) -> dict[str, str]:
+    """The scenario form's fields as a message about a colleague's change names them."""
+    labels = {"capacity_days": "capacity", "reserve_pct": "reserve", "name": "name"}
+    labels |= {
+        f"days_off.{m.member_id}": f"days off of {m.name}" for m in baseline.inputs.capacity.members
+    }
+    labels |= {
+        f"forced.{row.id}": f"forcing of “{row.title}”" for row in baseline.inputs.initiatives
+    }
+    return labels
+
+
 def _scenario_context(
     session: SessionDep, scenario_id: int, settings: SettingsDep
 ) -> dict[str, Any]:
@@ -554,6 +581,8 @@ def _scenario_context(
         else None,
         "baseline": outcome.baseline,
         "form": {"name": db_scenario.name, **_form_of(changes)},
+        "shown": _scenario_shown(db_scenario, changes, outcome.baseline),
+        "labels": _scenario_labels(outcome.baseline),
         "errors": {},
         "save_form": {"name": db_scenario.name},
         "save_errors": {},
@@ -600,12 +629,21 @@ async def update_scenario(
                 actor=_actor(form_text(form, "created_by")),
                 based_on=form_text(form, "based_on") or None,
             )
-        except LoadlineError as exc:  # a colleague saved the scenario in between
+        except StaleVersionError as exc:  # a colleague saved the scenario in between
+            errors, status_code = {"version": exc.changed or exc.message}, exc.status_code
+        except LoadlineError as exc:
             errors, status_code = {exc.field or "form": exc.message}, exc.status_code
         else:
             return see_other(f"/scenarios/{scenario_id}")
     context = _scenario_context(session, scenario_id, settings)
-    context |= {"form": _echo(form), "errors": errors}
+    context["edit_based_on"], context["shown"] = basis_to_show(
+        form, errors, context["based_on"], context["shown"]
+    )
+    who = audit.last_actor(session, entity="scenario", entity_id=scenario_id)
+    typed, errors = after_conflict(
+        form, errors, _echo(form), context["shown"], labels=context["labels"], who=who
+    )
+    context |= {"form": typed, "errors": errors}
     return render(templates, request, "plans/scenario.html", context, status_code=status_code)
 
 

@@ -38,11 +38,13 @@ from server.planning.plan_view import (
     build_plan_view,
     parse_whatif,
     plan_json,
+    row_form,
 )
 from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
-from server.routes.forms import form_text, see_other
+from server.routes.forms import form_text, merge_after_conflict, see_other, shown_as_posted
 from server.routes.fragments import is_htmx
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
+from server.store import audit
 from server.store import initiatives as initiative_store
 from server.store.periods import list_periods
 from server.validation import parse_form
@@ -51,6 +53,7 @@ from server.wording import counted
 router = APIRouter(include_in_schema=False)
 
 ROW_FIELDS = ("effort", "value", "state")
+ROW_LABELS = {"effort": "effort", "value": "value", "state": "state"}
 QUICK_FIELDS = ("title", "effort", "value")
 
 
@@ -382,10 +385,18 @@ async def edit_row(
             form=form,
             anchor=f"#row-{initiative_id}",
         )
+    note = ""
+    shown = None
     if current is not None:
-        # Saving again applies the person's values on top of the stored version.
-        values = values | {"version": str(current["version"])}
-    edit = RowEdit(values=values, errors=errors, current=current)
+        # Fields changed here keep their typed values, the others take the stored ones, and
+        # saving again puts the result on top of the stored version.
+        merged = merge_after_conflict(form, values, row_form(record, team_id), ROW_LABELS)
+        values = merged.values | {"version": str(current["version"])}
+        who = audit.last_actor(session, entity="initiative", entity_id=initiative_id)
+        note = merged.note(who)
+    else:  # refused as typed: the row stays based on what it showed, version included
+        shown = shown_as_posted(form, row_form(record, team_id))
+    edit = RowEdit(values=values, errors=errors, current=current, note=note, shown=shown)
     view = _view(request, session, settings, team_id, params, edits={initiative_id: edit})
     status = 409 if current is not None else 422
     first = next((name for name in ROW_FIELDS if name in errors), ROW_FIELDS[0])

@@ -15,7 +15,9 @@ from server.planning.team_capacity import capacity_of
 from server.routes.forms import (
     SHARE_RULE,
     SPREAD_RULE,
+    after_conflict,
     based_on,
+    basis_to_show,
     form_text,
     optional_int,
     percent_to_share,
@@ -32,6 +34,7 @@ from server.schemas import (
     MemberUpdate,
     TeamUpdate,
 )
+from server.store import audit
 from server.store import periods as period_store
 from server.store import teams as team_store
 from server.templating import form_number
@@ -41,6 +44,43 @@ router = APIRouter(include_in_schema=False)
 
 
 # --- team page ---------------------------------------------------------------------------
+
+# The stored values as each form shows them: its fields when opened, its `shown_<field>`
+# values, and what a field untouched here takes after a colleague's change.
+
+
+def _settings_shown(settings: Any) -> dict[str, str]:
+    if settings is None:
+        return {}
+    return {
+        "focus_factor": form_number(settings.focus_factor),
+        "reserve_pct": form_number(settings.reserve_pct),
+    }
+
+
+def _team_shown(db_team: Any) -> dict[str, str]:
+    return {"name": db_team.name, "spread_pct": form_number(db_team.default_spread * 100)}
+
+
+def _member_shown(db_member: Any) -> dict[str, str]:
+    return {"name": db_member.name, "share": form_number(db_member.allocation * 100)}
+
+
+def _availability_shown(row: Any) -> dict[str, str]:
+    if row is None:
+        return {"days_off": "0", "share": ""}
+    share = form_number(row.allocation * 100) if row.allocation is not None else ""
+    return {"days_off": form_number(row.days_off), "share": share}
+
+
+LABELS = {
+    "focus_factor": "focus factor",
+    "reserve_pct": "reserve",
+    "spread_pct": "estimate spread",
+    "days_off": "days off",
+    "share": "share",
+    "name": "name",
+}
 
 
 def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> dict[str, Any]:
@@ -82,9 +122,14 @@ def _team_context(session: SessionDep, team_id: int, period_id: int | None) -> d
         "team_errors": {},
         "member_edit": None,  # {"id", "form", "errors"} of a refused member edit
         "settings_based_on": period_store.settings_fingerprint(settings) if settings else "",
+        "settings_shown": _settings_shown(settings),
         "team_based_on": team_store.team_fingerprint(db_team),
+        "team_shown": _team_shown(db_team),
         "availability_fingerprint": team_store.availability_fingerprint,
+        "availability_shown": _availability_shown,
+        "availability_basis": None,  # (based_on, shown) of a refused days-off row
         "member_based_on": {m.id: team_store.member_fingerprint(m) for m in members},
+        "member_shown": {m.id: _member_shown(m) for m in members},
         "owned_initiatives": team_store.count_team_initiatives(session, team_id=team_id),
         "scenario_count": team_store.count_team_scenarios(session, team_id=team_id),
         "delete_error": None,
@@ -142,10 +187,15 @@ async def update_team(
         )
         if db_team is not None:
             return see_other(_team_url(team_id, period_id))
-    context = _team_context(session, team_id, period_id) | {
-        "team_form": values,
-        "team_errors": errors,
-    }
+    context = _team_context(session, team_id, period_id)
+    who = audit.last_actor(session, entity="team", entity_id=team_id)
+    values, errors = after_conflict(
+        form, errors, values, context["team_shown"], labels=LABELS, who=who
+    )
+    context["team_based_on"], context["team_shown"] = basis_to_show(
+        form, errors, context["team_based_on"], context["team_shown"]
+    )
+    context |= {"team_form": values, "team_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
@@ -206,9 +256,14 @@ async def update_member(
         )
         if db_member is not None:
             return see_other(_team_url(team_id, period_id))
-    context = _team_context(session, team_id, period_id) | {
-        "member_edit": {"id": member_id, "form": values, "errors": errors},
-    }
+    context = _team_context(session, team_id, period_id)
+    stored = context["member_shown"].get(member_id, {})
+    who = audit.last_actor(session, entity="member", entity_id=member_id)
+    values, errors = after_conflict(form, errors, values, stored, labels=LABELS, who=who)
+    context["member_edit"] = {"id": member_id, "form": values, "errors": errors}
+    if member_id in context["member_shown"]:
+        basis = basis_to_show(form, errors, context["member_based_on"][member_id], stored)
+        context["member_based_on"][member_id], context["member_shown"][member_id] = basis
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
@@ -269,10 +324,16 @@ async def set_availability(
         )
         if row is not None:
             return see_other(_team_url(team_id, period_id))
-    context = _team_context(session, team_id, period_id) | {
-        "availability_form": values,
-        "availability_errors": errors,
-    }
+    context = _team_context(session, team_id, period_id)
+    stored_row = context["availability"].get(optional_int(values["member_id"]))
+    who = audit.last_actor(
+        session, entity="availability", entity_id=stored_row.id if stored_row else None
+    )
+    stored = _availability_shown(stored_row)
+    values, errors = after_conflict(form, errors, values, stored, labels=LABELS, who=who)
+    now = team_store.availability_fingerprint(stored_row)
+    context["availability_basis"] = basis_to_show(form, errors, now, stored)
+    context |= {"availability_form": values, "availability_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
@@ -303,10 +364,20 @@ async def set_capacity(
             return see_other(_team_url(team_id, period_id))
     if period_id is None:
         errors = {"period_id": "Choose a period first."}
-    context = _team_context(session, team_id, period_id) | {
-        "settings_form": values,
-        "settings_errors": errors,
-    }
+    context = _team_context(session, team_id, period_id)
+    stored_settings = context["capacity_settings"]
+    who = audit.last_actor(
+        session,
+        entity="capacity_settings",
+        entity_id=stored_settings.id if stored_settings is not None else None,
+    )
+    values, errors = after_conflict(
+        form, errors, values, context["settings_shown"], labels=LABELS, who=who
+    )
+    context["settings_based_on"], context["settings_shown"] = basis_to_show(
+        form, errors, context["settings_based_on"], context["settings_shown"]
+    )
+    context |= {"settings_form": values, "settings_errors": errors}
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 

@@ -160,3 +160,16 @@ def count_entries(session: Session, *, wanted: EntryFilter, newer_than: int | No
     if newer_than is not None:
         query = query.where(col(AuditEntry.id) > newer_than)
     return int(session.exec(query).one())
+
+
+def last_actor(session: Session, *, entity: str, entity_id: int | None) -> str:
+    """Who made the newest change to a row ("" when unknown): named when a save collides."""
+    if entity_id is None:
+        return ""
+    query = (
+        select(AuditEntry.actor)
+        .where(AuditEntry.entity == entity, AuditEntry.entity_id == entity_id)
+        .order_by(col(AuditEntry.id).desc())
+        .limit(1)
+    )
+    return session.exec(query).first() or ""

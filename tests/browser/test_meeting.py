@@ -300,3 +300,39 @@ def test_long_unbroken_names_do_not_widen_the_page(app_page: Page, live_server: 
     page.goto(live_server.url + "/")
     assert page.evaluate(overflow) <= 0
     screenshot(page, "long-names-home")
+
+
+@pytest.mark.browser
+def test_save_again_after_a_colleagues_change_keeps_both(
+    app_page: Page, live_server: LiveServer, watch: Any
+) -> None:
+    """Two tabs on one plan: A changes the value, B the effort; B's save is refused, the value
+    field shows A's value, and saving again stores both changes."""
+    tab_a = app_page
+    set_up_team(tab_a, live_server.url)
+    quick_add(tab_a, "Gangway repair", "12", "25")
+    gangway = row_id(tab_a, "Gangway repair")
+    tab_b = tab_a.context.new_page()
+    watch(tab_b)
+    tab_b.goto(tab_a.url)
+    expect(tab_b.locator(f"#value-{gangway}")).to_have_value("25")
+
+    tab_a.locator(f"#value-{gangway}").fill("26")
+    tab_a.locator(f"#value-{gangway}").press("Enter")
+    expect(tab_a.locator("#total-value")).to_have_attribute("value", "26.0")
+
+    tab_b.locator(f"#effort-{gangway}").fill("15")
+    tab_b.locator(f"#effort-{gangway}").press("Tab")
+    conflict = tab_b.locator(f"#conflict-{gangway}")
+    expect(conflict).to_contain_text("Kept as you typed: effort.")
+    expect(conflict).to_contain_text("Refreshed to the stored value: value.")
+    expect(tab_b.locator(f"#effort-{gangway}")).to_have_value("15")
+    expect(tab_b.locator(f"#value-{gangway}")).to_have_value("26")
+    screenshot(tab_b, "save-again-after-a-colleagues-change")
+
+    tab_b.locator(f"#save-{gangway}").click()
+    expect(tab_b.locator(".conflict")).to_have_count(0)
+    tab_a.reload()
+    expect(tab_a.locator(f"#effort-{gangway}")).to_have_value("15")
+    expect(tab_a.locator(f"#value-{gangway}")).to_have_value("26")
+    tab_b.close()
