@@ -645,6 +645,32 @@ def _insert_rows(
         session.add(row)
 
 
+def _store_lines_and_needs(
+    session: Session, stored: Sequence[tuple[Initiative, InitiativeCreate, list[int]]]
+) -> list[InitiativeRecord]:
+    """For rows just inserted (row, what it was made from, its needs): insert every team's
+    effort line and the needs in batches, check the marks, and return the records."""
+    records: list[InitiativeRecord] = []
+    for db_row, item, needs in stored:
+        record = InitiativeRecord(row=db_row, needs=needs)
+        for team_id, effort in [(db_row.team_id, item.effort)] + [
+            (line.team_id, line) for line in item.other_efforts
+        ]:
+            record.efforts[team_id] = EffortLine(
+                initiative_id=db_row.id or 0,
+                team_id=team_id,
+                likely=effort.likely,
+                low=effort.low,
+                high=effort.high,
+            )
+        records.append(record)
+    lines = [line for record in records for line in record.efforts.values()]
+    _insert_rows(session, lines, ("initiative_id", "team_id"))
+    add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
+    check_marks(session, records)
+    return records
+
+
 def create_initiatives(
     session: Session, *, initiatives_in: Sequence[InitiativeCreate], actor: str = ""
 ) -> list[InitiativeRecord]:
@@ -692,24 +718,13 @@ def create_initiatives(
         _insert_rows(session, rows, ("team_id", "position"))
     except IntegrityError as exc:  # a title stored by another writer since the check
         raise refused_title_clash(session, exc, wanted) from exc
-    records: list[InitiativeRecord] = []
-    for db_row, item in zip(rows, initiatives_in, strict=True):
-        record = InitiativeRecord(row=db_row, needs=list(dict.fromkeys(item.needs)))
-        for team_id, effort in [(db_row.team_id, item.effort)] + [
-            (line.team_id, line) for line in item.other_efforts
-        ]:
-            record.efforts[team_id] = EffortLine(
-                initiative_id=db_row.id or 0,
-                team_id=team_id,
-                likely=effort.likely,
-                low=effort.low,
-                high=effort.high,
-            )
-        records.append(record)
-    lines = [line for record in records for line in record.efforts.values()]
-    _insert_rows(session, lines, ("initiative_id", "team_id"))
-    add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
-    check_marks(session, records)
+    records = _store_lines_and_needs(
+        session,
+        [
+            (db_row, item, list(dict.fromkeys(item.needs)))
+            for db_row, item in zip(rows, initiatives_in, strict=True)
+        ],
+    )
     # Built from what was stored, so the entries need no read-back of the rows.
     entries = [
         audit.entry(
@@ -1132,27 +1147,14 @@ def restore_initiatives(
     for row in renewed:  # rare: one at a time, as positions of restored rows may repeat
         _insert_rows(session, [row], ("team_id", "position"))
     new_id = {r.initiative_id: row.id or 0 for r, row in zip(restoring, rows, strict=True)}
-    records: list[InitiativeRecord] = []
-    for row, r in zip(rows, restoring, strict=True):
-        item = r.initiative_in
-        # A need on another restored initiative follows it to the id it got back.
-        needs = [new_id.get(n, n) for n in dict.fromkeys(item.needs)]
-        record = InitiativeRecord(row=row, needs=needs)
-        for team_id, effort in [(row.team_id, item.effort)] + [
-            (line.team_id, line) for line in item.other_efforts
-        ]:
-            record.efforts[team_id] = EffortLine(
-                initiative_id=row.id or 0,
-                team_id=team_id,
-                likely=effort.likely,
-                low=effort.low,
-                high=effort.high,
-            )
-        records.append(record)
-    lines = [line for record in records for line in record.efforts.values()]
-    _insert_rows(session, lines, ("initiative_id", "team_id"))
-    add_needs(session, needs=[(r.row.id or 0, n) for r in records for n in r.needs])
-    check_marks(session, records)
+    # A need on another restored initiative follows it to the id it got back.
+    records = _store_lines_and_needs(
+        session,
+        [
+            (row, r.initiative_in, [new_id.get(n, n) for n in dict.fromkeys(r.initiative_in.needs)])
+            for row, r in zip(rows, restoring, strict=True)
+        ],
+    )
     audit.record_many(
         session,
         [
