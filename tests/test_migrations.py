@@ -11,7 +11,7 @@ from alembic import command
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import inspect, text
+from sqlalchemy import Engine, inspect, text
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, SQLModel
 
@@ -255,7 +255,37 @@ def test_0005_keeps_ids_of_deleted_rows_from_coming_back(empty_settings: Setting
     _insert_at_0002(empty_settings)
     migrate.upgrade(empty_settings)
     engine = make_engine(empty_settings)
+    try:
+        after, newest = _delete_the_newest_initiative_and_add_two(engine)
+    finally:
+        engine.dispose()
+    assert after == newest + 1
+    for table in ("team", "member", "scenario"):  # the others named by id elsewhere
+        engine = make_engine(empty_settings)
+        try:
+            columns = {c["name"]: c for c in inspect(engine).get_columns(table)}
+            assert "id" in columns
+            if engine.dialect.name == "sqlite":
+                with engine.connect() as conn:
+                    sql = conn.execute(
+                        text("SELECT sql FROM sqlite_master WHERE name = :t"), {"t": table}
+                    ).scalar_one()
+                assert "AUTOINCREMENT" in sql
+        finally:
+            engine.dispose()
+
+
+def _delete_the_newest_initiative_and_add_two(engine: Engine) -> tuple[int, int]:
+    """Delete the newest initiative, add one in a period and one of the same title in the
+    backlog; return the new one's id and the deleted one's."""
     with engine.begin() as conn:
+        if engine.dialect.name == "postgresql":  # the rows of 0002 came with their own ids
+            conn.execute(
+                text(
+                    "SELECT setval(pg_get_serial_sequence('initiative', 'id'), "
+                    "(SELECT max(id) FROM initiative))"
+                )
+            )
         newest = conn.execute(text("SELECT max(id) FROM initiative")).scalar_one()
         conn.execute(text("DELETE FROM initiative_need WHERE needed_id = :i"), {"i": newest})
         conn.execute(text("DELETE FROM effort_line WHERE initiative_id = :i"), {"i": newest})
@@ -277,18 +307,4 @@ def test_0005_keeps_ids_of_deleted_rows_from_coming_back(empty_settings: Setting
                 "'later', '', 1, 'candidate', 100, 1, '2026-01-01', '2026-01-01')"
             )
         )
-    engine.dispose()
-    assert after == newest + 1
-    for table in ("team", "member", "scenario"):  # the others named by id elsewhere
-        engine = make_engine(empty_settings)
-        try:
-            columns = {c["name"]: c for c in inspect(engine).get_columns(table)}
-            assert "id" in columns
-            if engine.dialect.name == "sqlite":
-                with engine.connect() as conn:
-                    sql = conn.execute(
-                        text("SELECT sql FROM sqlite_master WHERE name = :t"), {"t": table}
-                    ).scalar_one()
-                assert "AUTOINCREMENT" in sql
-        finally:
-            engine.dispose()
+    return after, newest
