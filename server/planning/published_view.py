@@ -15,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from server.planning.snapshots import CapacitySnapshot, PlanView
+from server.wording import in_days
 
 # Advice in stored warnings that only someone signed in can follow, and what it becomes.
 _FOR_READERS = (
@@ -60,21 +61,16 @@ def team_capacity(capacity: CapacitySnapshot) -> TeamCapacity:
     )
 
 
-def _days(value: float) -> str:
-    rounded = round(value, 2)
-    return f"{rounded:g} day" if rounded == 1 else f"{rounded:g} days"
-
-
 def _days_off_change(total: float, live: float | None) -> str:
     if live is None:  # saved before the live total was kept with the snapshot
-        return f"Days off for the team: {_days(total)} in total (changed by the scenario)"
+        return f"Days off for the team: {in_days(total)} in total (changed by the scenario)"
     delta = round(total - live, 2)
     if delta == 0:
-        return f"Days off for the team: {_days(total)} in total, the same as live"
+        return f"Days off for the team: {in_days(total)} in total, the same as live"
     more = "more" if delta > 0 else "fewer"
     return (
-        f"Days off for the team: {_days(total)} in total, {_days(abs(delta))} {more} "
-        f"(live: {_days(live)})"
+        f"Days off for the team: {in_days(total)} in total, {in_days(abs(delta))} {more} "
+        f"(live: {in_days(live)})"
     )
 
 

@@ -51,7 +51,7 @@ from server.store.initiatives import (
 )
 from server.store.periods import get_period
 from server.store.teams import get_team, list_members
-from server.wording import counted, quoted
+from server.wording import counted, days, in_days, quoted
 
 TOKEN_BYTES = 32
 
@@ -228,10 +228,7 @@ def deleted_scenario_name(session: Session, *, scenario_id: int, team_id: int) -
 
 def _figures(snapshot: Snapshot) -> str:
     result = snapshot.result
-    return (
-        f"value {round(result.value, 2):g}, {round(result.effort, 2):g} of "
-        f"{round(result.capacity, 2):g} days"
-    )
+    return f"value {round(result.value, 2):g}, {days(result.effort)} of {in_days(result.capacity)}"
 
 
 _LOOK_AGAIN = (
