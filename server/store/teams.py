@@ -38,7 +38,7 @@ from server.store._common import (
 )
 from server.store.initiatives import delete_needs_among, needs_from_outside
 from server.store.periods import period_working_days
-from server.wording import counted, possessive, quoted
+from server.wording import counted, in_days, possessive, quoted
 
 
 def list_teams(session: Session) -> list[Team]:
@@ -454,8 +454,7 @@ def _availability_values(db_row: Availability) -> dict[str, Any]:
 
 
 def _availability_words(values: dict[str, Any]) -> str:
-    days_off = values["days_off"]
-    return f"{days_off:g} day{'' if days_off == 1 else 's'} off, {_share(values['allocation'])}"
+    return f"{in_days(values['days_off'])} off, {_share(values['allocation'])}"
 
 
 def _record_availability(
