@@ -1,6 +1,7 @@
-"""Side-by-side comparison of two to four saved plans, and their capacity curves on one chart.
+"""Side-by-side comparison of two to four plans, and their capacity curves on one chart.
 
-Plans are compared on their stored snapshots only. Initiatives are matched by key (the
+The plans are saved ones, compared on their stored snapshots only, or a team's live plan and
+its scenarios solved now and not saved (Column says which). Initiatives are matched by key (the
 initiative's id), so the differences are plain set arithmetic on the chosen sets: for every
 pair of plans, what is in one and not the other; what every plan has; what only one has.
 """
@@ -10,8 +11,9 @@ from __future__ import annotations
 import bisect
 import datetime as dt
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 from pydantic import BaseModel
 
@@ -25,8 +27,33 @@ MAX_PLANS = 4
 LABELS = "ABCD"
 
 
+@dataclass(frozen=True)
+class Column:
+    """One plan to compare: a saved one (id), or one solved now and not saved (id None)."""
+
+    id: int | None
+    name: str
+    created_at: dt.datetime  # when it was saved, or solved
+    created_by: str
+    inputs: Mapping[str, Any]
+    result: Mapping[str, Any]
+    scenario_id: int | None = None  # the scenario an unsaved column was solved from
+
+
+def column_of(db_plan: SavedPlan) -> Column:
+    return Column(
+        id=db_plan.id or 0,
+        name=db_plan.name,
+        created_at=db_plan.created_at,
+        created_by=db_plan.created_by,
+        inputs=db_plan.inputs,
+        result=db_plan.result,
+    )
+
+
 class ComparedPlan(BaseModel):
-    id: int
+    id: int | None  # None: solved now, not saved
+    scenario_id: int | None = None
     label: str  # A, B, C, D in the order asked for
     name: str
     team_names: str
@@ -110,16 +137,17 @@ def check_count(count: int) -> None:
         )
 
 
-def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
+def _compared(label: str, column: Column, view: PlanView) -> ComparedPlan:
     r = view.result
     return ComparedPlan(
-        id=db_plan.id or 0,
+        id=column.id,
+        scenario_id=column.scenario_id,
         label=label,
-        name=db_plan.name,
+        name=column.name,
         team_names=view.team_names,
         period_name=view.inputs.period.name,
-        created_at=db_plan.created_at,
-        created_by=db_plan.created_by,
+        created_at=column.created_at,
+        created_by=column.created_by,
         scenario_name=r.scenario_name,
         changed_inputs=r.changed_inputs,
         feasible=r.feasible,
@@ -138,13 +166,18 @@ def _compared(label: str, db_plan: SavedPlan, view: PlanView) -> ComparedPlan:
 
 def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
     """Compare saved plans (two to four, in the order given)."""
-    check_count(len(db_plans))
-    views = [view_of(p.inputs, p.result) for p in db_plans]
+    return compare_columns([column_of(p) for p in db_plans])
+
+
+def compare_columns(columns: Sequence[Column]) -> Comparison:
+    """Compare two to four plans, saved or not, in the order given."""
+    check_count(len(columns))
+    views = [view_of(c.inputs, c.result) for c in columns]
     plans = [
-        _compared(LABELS[i], p, v) for i, (p, v) in enumerate(zip(db_plans, views, strict=True))
+        _compared(LABELS[i], c, v) for i, (c, v) in enumerate(zip(columns, views, strict=True))
     ]
     # Newest title wins when an initiative was renamed between saves.
-    by_age = sorted(range(len(db_plans)), key=lambda i: (db_plans[i].created_at, i))
+    by_age = sorted(range(len(columns)), key=lambda i: (columns[i].created_at, i))
     titles: dict[str, str] = {}
     for i in by_age:
         titles.update(views[i].titles)
@@ -202,7 +235,7 @@ def compare(db_plans: Sequence[SavedPlan]) -> Comparison:
         if v.result.curve is not None and v.result.curve.capacity_days
     ]
     return Comparison(
-        plan_ids=[p.id for p in plans],
+        plan_ids=[p.id for p in plans if p.id is not None],
         plans=plans,
         initiatives=initiatives,
         titles=titles,

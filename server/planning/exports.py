@@ -32,7 +32,7 @@ from pydantic import ValidationError
 
 from server.errors import InputError
 from server.models import SavedPlan
-from server.planning.compare import Comparison
+from server.planning.compare import ComparedPlan, Comparison
 from server.planning.scenarios import MAX_CAPACITY_DAYS, MIN_CAPACITY_DAYS
 from server.planning.snapshots import PlanView, view_of
 from server.schemas import EffortIn, InitiativeCreate
@@ -276,7 +276,7 @@ def _figures(cmp: Comparison) -> list[tuple[str, list[object]]]:
 
 def comparison_csv(cmp: Comparison) -> str:
     """Figures per plan, an empty row, then each initiative's in/out per plan."""
-    heads = [f"{p.label}: {p.name}" for p in cmp.plans]
+    heads = [f"{p.label}: {p.name}{_unsaved(p)}" for p in cmp.plans]
     rows: list[Sequence[object]] = [["figure", *heads]]
     rows += [[name, *values] for name, values in _figures(cmp)]
     rows.append([])
@@ -284,6 +284,13 @@ def comparison_csv(cmp: Comparison) -> str:
     for i in cmp.initiatives:
         rows.append([i.key, i.title, *[cell or "" for cell in i.cells]])
     return _write(rows)
+
+
+def _unsaved(plan: ComparedPlan) -> str:
+    """Said after a plan's name when it was solved for the comparison and is saved nowhere."""
+    if plan.id is not None:
+        return ""
+    return f" (solved {plan.created_at:%Y-%m-%d %H:%M} UTC, not saved)"
 
 
 def comparison_json(cmp: Comparison) -> dict[str, Any]:
@@ -294,7 +301,7 @@ def comparison_markdown(cmp: Comparison) -> str:
     labels = [p.label for p in cmp.plans]
     lines = ["# Plan comparison", ""]
     lines += [
-        f"- **{p.label}**: {md(p.name)} ({md(p.team_names)}, {md(p.period_name)})"
+        f"- **{p.label}**: {md(p.name)} ({md(p.team_names)}, {md(p.period_name)}){_unsaved(p)}"
         for p in cmp.plans
     ]
     lines += ["", "| | " + " | ".join(labels) + " |", "| --- |" + " ---: |" * len(labels)]

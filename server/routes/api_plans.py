@@ -14,6 +14,7 @@ from server.deps import SessionDep, SettingsDep
 from server.models import NAME_MAX, Publication, SavedPlan, Scenario
 from server.planning import exports
 from server.planning.compare import Comparison, compare, parse_plan_ids
+from server.planning.scenario_compare import compare_picks, parse_picks
 from server.planning.scenarios import (
     MAX_ID,
     RowId,
@@ -350,7 +351,8 @@ def plan_export(db_plan: SavedPlan, fmt: str, filename: str | None = None) -> Re
     return export_response(body, fmt, filename or f"plan-{db_plan.id}-{db_plan.name}")
 
 
-def comparison_export(comparison: Comparison, fmt: str) -> Response:
+def comparison_export(comparison: Comparison, fmt: str, filename: str | None = None) -> Response:
+    """A comparison's download; one of unsaved plans (scenarios solved now) is named by filename."""
     if fmt == "csv":
         body = exports.comparison_csv(comparison)
     elif fmt == "json":
@@ -358,7 +360,7 @@ def comparison_export(comparison: Comparison, fmt: str) -> Response:
     else:
         body = exports.comparison_markdown(comparison)
     ids = "-".join(str(i) for i in comparison.plan_ids)
-    return export_response(body, fmt, f"comparison-{ids}")
+    return export_response(body, fmt, filename or f"comparison-{ids}")
 
 
 # --- saved plans ---------------------------------------------------------------------------
@@ -486,6 +488,29 @@ def compare_plans(
     plans: list[str] = Query(description="Plan ids, comma-separated: plans=1,2,3"),
 ) -> Comparison:
     return compare(store.get_plans(session, plan_ids=parse_plan_ids(plans)))
+
+
+@router.get(
+    "/teams/{team_id}/periods/{period_id}/scenario-comparison",
+    response_model=Comparison,
+    description="Compare a team's live plan and its scenarios in a period, two to four of them, "
+    "each solved now on today's live data and saved nowhere. Columns of plans solved now have "
+    "`id` null and `scenario_id` set for a scenario; `plan_ids` is empty.",
+)
+def compare_scenarios(
+    team_id: PathId,
+    period_id: PathId,
+    session: SessionDep,
+    settings: SettingsDep,
+    pick: list[str] = Query(description="live and scenario ids, comma-separated: pick=live,3,5"),
+) -> Comparison:
+    return compare_picks(
+        session,
+        team_id=team_id,
+        period_id=period_id,
+        picks=parse_picks(pick),
+        resolution=settings.resolution_days,
+    )
 
 
 @router.get("/compare/export.{fmt}", responses=EXPORT_RESPONSES, response_class=Response)

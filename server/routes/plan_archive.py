@@ -26,11 +26,13 @@ from server.models import Period, SavedPlan, Team, utcnow
 from server.planning import exports
 from server.planning.compare import (
     MAX_PLANS,
+    Comparison,
     compare,
     curves_chart,
     parse_plan_ids,
     single_curve_chart,
 )
+from server.planning.scenario_compare import compare_picks, parse_picks, picks_of
 from server.planning.scenarios import (
     LISTED_FIGURES,
     MAX_ID,
@@ -62,6 +64,7 @@ from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
 from server.templating import bare_message
 from server.validation import field_and_message
+from server.wording import counted
 
 router = APIRouter(include_in_schema=False)
 
@@ -427,6 +430,8 @@ def _scenarios_context(
         },
         "form": {},
         "errors": {},
+        "ticked": set(),
+        "max_plans": MAX_PLANS,
     }
     if period is not None:
         context |= _scenario_form_context(session, team_id, period.id or 0, settings)
@@ -458,6 +463,88 @@ def scenarios_page(
         if key == "confidence" or (key.startswith("forced.") and value in ("in", "out"))
     }
     return render(templates, request, "plans/scenarios.html", context)
+
+
+@router.get("/teams/{team_id}/scenarios/compare")
+def compare_scenarios_page(
+    team_id: PathId,
+    request: Request,
+    session: SessionDep,
+    templates: TemplatesDep,
+    settings: SettingsDep,
+    period_id: QueryId = None,
+    pick: list[str] = Query(default_factory=list),
+) -> Response:
+    """The live plan and scenarios picked, solved now side by side; nothing is saved."""
+    team = get_team(session, team_id=team_id)
+    try:
+        comparison = _picked_comparison(session, settings, team_id, period_id, pick)
+    except (InputError, NotFoundError) as exc:
+        # Back to the scenarios of the period, the boxes still ticked.
+        context = _scenarios_context(session, team_id, period_id, settings)
+        text = bare_message(exc.message, exc.field or "pick")
+        context |= {"ticked": _ticked(pick), "errors": {"pick": text[:1].upper() + text[1:]}}
+        return render(templates, request, "plans/scenarios.html", context, status_code=422)
+    period = get_period(session, period_id=period_id or 0)
+    picks = picks_of(comparison)
+    query = ",".join(picks)
+    if len(pick) > 1:
+        # Ticked boxes arrive as pick=live&pick=3: the stable address says them in one.
+        return see_other(f"/teams/{team_id}/scenarios/compare?period_id={period_id}&pick={query}")
+    names = {p.label: p.name for p in comparison.plans}
+    scenarios = [p for p in comparison.plans if p.scenario_id is not None]
+    live = len(scenarios) < len(comparison.plans)
+    heading = (
+        f"Comparing the live plan and {counted(len(scenarios), 'scenario')}"
+        if live
+        else f"Comparing {counted(len(scenarios), 'scenario')}"
+    )
+    address = f"/teams/{team_id}/scenarios/compare?period_id={period_id}&pick={query}"
+    context = {
+        "comparison": comparison,
+        "unsaved": True,
+        "team": team,
+        "period": period,
+        "heading": heading,
+        "solved_at": comparison.plans[0].created_at.strftime("%Y-%m-%d %H:%M"),
+        "address": address,
+        "export_path": f"/teams/{team_id}/scenarios/compare/export",
+        "export_query": f"period_id={period_id}&pick={query}",
+        "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
+    }
+    return render(templates, request, "plans/compare.html", context)
+
+
+@router.get("/teams/{team_id}/scenarios/compare/export.{fmt}")
+def export_scenario_comparison(
+    team_id: PathId,
+    fmt: ExportFormat,
+    session: SessionDep,
+    settings: SettingsDep,
+    period_id: QueryId = None,
+    pick: list[str] = Query(default_factory=list),
+) -> Response:
+    comparison = _picked_comparison(session, settings, team_id, period_id, pick)
+    picks = "-".join(picks_of(comparison))
+    return comparison_export(comparison, fmt, f"comparison-team-{team_id}-{picks}-not-saved")
+
+
+def _picked_comparison(
+    session: SessionDep,
+    settings: SettingsDep,
+    team_id: int,
+    period_id: int | None,
+    pick: list[str],
+) -> Comparison:
+    if period_id is None:
+        raise InputError("period_id: choose the period to compare plans in.", field="period_id")
+    return compare_picks(
+        session,
+        team_id=team_id,
+        period_id=period_id,
+        picks=parse_picks(pick),
+        resolution=settings.resolution_days,
+    )
 
 
 def _read_changes(

@@ -336,3 +336,45 @@ def test_save_again_after_a_colleagues_change_keeps_both(
     expect(tab_a.locator(f"#effort-{gangway}")).to_have_value("15")
     expect(tab_a.locator(f"#value-{gangway}")).to_have_value("26")
     tab_b.close()
+
+
+@pytest.mark.browser
+def test_compare_the_live_plan_and_two_scenarios_without_saving(
+    app_page: Page, live_server: LiveServer
+) -> None:
+    page = app_page
+    team_id, _, period = set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    quick_add(page, "Buoy sensors", "8", "42")
+    quick_add(page, "Fuel dock permits", "3", "12")
+    found = re.search(r"period_id=(\d+)", page.url)
+    assert found, page.url
+    scenarios = f"{live_server.url}/teams/{team_id}/scenarios?period_id={found.group(1)}"
+    for name, capacity in [("Short week", "6"), ("Ample week", "30")]:
+        page.goto(scenarios)
+        page.get_by_label("Scenario name").fill(name)
+        page.get_by_label("Capacity (days)").fill(capacity)
+        page.get_by_role("button", name="Make and solve scenario").click()
+        expect(page.get_by_role("heading", name=f"Scenario: {name}")).to_be_visible()
+    page.goto(scenarios)
+    page.get_by_label("Live plan").check()
+    page.get_by_label("Compare Short week").check()
+    page.get_by_label("Compare Ample week").check()
+    page.get_by_role("button", name="Compare ticked").click()
+    expect(
+        page.get_by_role("heading", name=f"Comparing the live plan and 2 scenarios in {period}")
+    ).to_be_visible()
+    assert re.search(r"/scenarios/compare\?period_id=\d+&pick=live,\d+,\d+$", page.url)
+    screenshot(page, "scenario-comparison")
+    figures = page.locator("table.cmp-figures")
+    expect(figures).to_contain_text("Capacity: 6 days")
+    expect(figures).to_contain_text("Capacity: 30 days")
+    # Columns in the list's order (newest scenario first): the ample week takes everything,
+    # the short week only what 6 days hold.
+    heads = figures.locator("thead th a")
+    expect(heads).to_have_text(["Live plan", "Ample week", "Short week"])
+    matrix = page.locator("table.cmp-matrix")
+    buoy = matrix.locator("tr", has=page.get_by_role("rowheader", name="Buoy sensors"))
+    expect(buoy.locator("td")).to_have_text(["in", "in", "out"])
+    page.get_by_role("link", name="scenarios", exact=True).click()
+    expect(page.get_by_role("checkbox", name="Live plan")).not_to_be_checked()

@@ -1,0 +1,118 @@
+"""Compare a team's live plan and its scenarios in a period, solved now and saved nowhere.
+
+A pick is "live" (the live plan) or a scenario id; two to four picks, each once, make the
+columns of an ordinary comparison (compare.compare_columns). Every column is solved from
+today's live data when the page is drawn, so nothing has to be saved to see two what-ifs side
+by side; saving one freezes it as before.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+from sqlmodel import Session
+
+from server.errors import InputError, LoadlineError
+from server.models import utcnow
+from server.planning.compare import Column, Comparison, check_count, compare_columns
+from server.planning.scenarios import MAX_ID, ScenarioChanges, capture, changes_from_json
+from server.planning.snapshots import Snapshot
+from server.store.periods import get_period
+from server.store.plans import get_scenario
+from server.store.teams import get_team
+from server.wording import possessive
+
+LIVE = "live"
+LIVE_NAME = "Live plan"
+
+
+def parse_picks(raw: Sequence[str]) -> list[str]:
+    """Read `pick=live,3,5` (or repeated `pick=`): "live" or scenario ids, 2 to 4, once each."""
+    parts = [p.strip().lower() for chunk in raw for p in chunk.split(",") if p.strip()]
+    for part in parts:
+        if part != LIVE and not (part.isdigit() and 1 <= int(part) <= MAX_ID):
+            raise InputError(f"pick: “{part}” is neither “{LIVE}” nor a scenario id.", field="pick")
+    picks = [part if part == LIVE else str(int(part)) for part in parts]
+    if len(set(picks)) != len(picks):
+        raise InputError("pick: each plan may be picked only once.", field="pick")
+    try:
+        check_count(len(picks))
+    except InputError as exc:
+        raise InputError(exc.message.replace("plans:", "pick:", 1), field="pick") from exc
+    return picks
+
+
+def picks_of(comparison: Comparison) -> list[str]:
+    """The picks a comparison of them was made from, in its column order."""
+    return [LIVE if p.scenario_id is None else str(p.scenario_id) for p in comparison.plans]
+
+
+def compare_picks(
+    session: Session, *, team_id: int, period_id: int, picks: Sequence[str], resolution: float
+) -> Comparison:
+    """Solve each pick on today's live data and compare them, in the order picked."""
+    team = get_team(session, team_id=team_id)
+    period = get_period(session, period_id=period_id)
+    # Every pick is checked before any is solved, so a refusal names the pick that is wrong.
+    wanted: list[tuple[str, int | None, ScenarioChanges]] = []
+    for pick in picks:
+        if pick == LIVE:
+            wanted.append((LIVE_NAME, None, ScenarioChanges()))
+            continue
+        scenario = get_scenario(session, scenario_id=int(pick))
+        if scenario.team_id != team_id or scenario.period_id != period_id:
+            raise InputError(
+                f"pick: scenario “{scenario.name}” is not one of {possessive(team.name)} "
+                f"scenarios in {period.name}.",
+                field="pick",
+            )
+        wanted.append((scenario.name, scenario.id, changes_from_json(scenario.changes)))
+    solved_at = utcnow()
+    columns = []
+    for name, scenario_id, changes in wanted:
+        snapshot = _solved(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            changes=changes,
+            resolution=resolution,
+            name=name,
+            scenario_name=None if scenario_id is None else name,
+        )
+        columns.append(
+            Column(
+                id=None,
+                name=name,
+                created_at=solved_at,
+                created_by="",
+                inputs=snapshot.inputs_json(),
+                result=snapshot.result_json(),
+                scenario_id=scenario_id,
+            )
+        )
+    return compare_columns(columns)
+
+
+def _solved(
+    session: Session,
+    *,
+    team_id: int,
+    period_id: int,
+    changes: ScenarioChanges,
+    resolution: float,
+    name: str,
+    scenario_name: str | None,
+) -> Snapshot:
+    """One column's snapshot; a plan that cannot be solved is refused naming it."""
+    try:
+        return capture(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            changes=changes,
+            resolution=resolution,
+            scenario_name=scenario_name,
+        )
+    except LoadlineError as exc:
+        what = "the live plan" if scenario_name is None else f"scenario “{name}”"
+        raise InputError(f"pick: {what} cannot be solved: {exc.message}", field="pick") from exc
