@@ -9,6 +9,7 @@ from server.models import Availability, Member, Team
 from server.planning.team_capacity import capacity_of
 from server.routes.preconditions import (
     CONDITIONAL,
+    CONDITIONAL_CREATED,
     CONDITIONAL_DELETE,
     TAGGED,
     TAGGED_CREATED,
@@ -152,14 +153,18 @@ def list_availability(
     "/availability",
     response_model=AvailabilityPublic,
     status_code=status.HTTP_201_CREATED,
-    responses=TAGGED_CREATED,
+    responses=CONDITIONAL_CREATED,
     description="Set a member's days off (and optional allocation) in a period; replaces any "
-    "earlier row for the same member and period. Days only: never store a reason.",
+    "earlier row for the same member and period. Days only: never store a reason. To replace "
+    "a row only as you read it, send its ETag in If-Match (412 if it changed or is gone).",
 )
 def set_availability(
-    availability_in: AvailabilityCreate, session: SessionDep, etag: ETagDep
+    availability_in: AvailabilityCreate, session: SessionDep, condition: IfMatchDep
 ) -> AvailabilityPublic:
-    return etag(_availability(store.set_availability(session, availability_in=availability_in)))
+    db_row = store.set_availability(
+        session, availability_in=availability_in, based_on=condition.based_on
+    )
+    return condition(_availability(db_row))
 
 
 @router.get("/availability/{availability_id}", response_model=AvailabilityPublic, responses=TAGGED)

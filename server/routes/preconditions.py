@@ -194,3 +194,4 @@ TAGGED: dict[int | str, dict[str, Any]] = {200: {"headers": _ETAG_HEADER}}
 TAGGED_CREATED: dict[int | str, dict[str, Any]] = {201: {"headers": _ETAG_HEADER}}
 CONDITIONAL: dict[int | str, dict[str, Any]] = {**TAGGED, **_PRECONDITION_ERRORS}
 CONDITIONAL_DELETE: dict[int | str, dict[str, Any]] = dict(_PRECONDITION_ERRORS)
+CONDITIONAL_CREATED: dict[int | str, dict[str, Any]] = {**TAGGED_CREATED, **_PRECONDITION_ERRORS}

@@ -353,3 +353,58 @@ def test_the_api_docs_describe_if_match_412_and_etag(client: TestClient) -> None
     for path in ["/teams", "/members", "/availability", "/periods", "/scenarios"]:
         created = spec["paths"][f"/api/v1{path}"]["post"]["responses"]["201"]
         assert "ETag" in created["headers"], path
+
+
+def test_the_days_off_upsert_replaces_a_row_only_as_read_when_if_match_is_sent(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # POST /availability replaces the member's row for the period: If-Match guards that too.
+    etag = client.get(f"/api/v1/availability/{workspace.availability}").headers["etag"]
+    body = {"member_id": workspace.member, "period_id": workspace.period}
+    colleague = client.patch(f"/api/v1/availability/{workspace.availability}", json={"days_off": 4})
+    assert colleague.status_code == 200
+    before = snapshot()
+    stale = client.post(
+        "/api/v1/availability", json=body | {"days_off": 1}, headers={"If-Match": etag}
+    )
+    assert stale.status_code == 412, stale.text
+    assert error_fields(stale) == ["If-Match"]
+    assert "now 4 days off" in stale.json()["detail"]["message"]
+    assert stale.headers["etag"] == colleague.headers["etag"]
+    assert snapshot() == before
+    fresh = client.post(
+        "/api/v1/availability",
+        json=body | {"days_off": 1},
+        headers={"If-Match": colleague.headers["etag"]},
+    )
+    assert fresh.status_code == 201, fresh.text
+    assert fresh.json()["days_off"] == 1
+    assert fresh.json()["id"] == workspace.availability  # replaced, not added
+    assert fresh.headers["etag"] not in (etag, colleague.headers["etag"])
+    malformed = client.post("/api/v1/availability", json=body, headers={"If-Match": "abc"})
+    assert malformed.status_code == 400
+    assert error_fields(malformed) == ["If-Match"]
+
+
+def test_the_days_off_upsert_with_if_match_refuses_a_row_deleted_since(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    url = f"/api/v1/availability/{workspace.availability}"
+    etag = client.get(url).headers["etag"]
+    assert client.delete(url).status_code == 204
+    before = snapshot()
+    body = {"member_id": workspace.member, "period_id": workspace.period, "days_off": 2}
+    refused = client.post("/api/v1/availability", json=body, headers={"If-Match": etag})
+    assert refused.status_code == 412, refused.text
+    assert "none recorded" in refused.json()["detail"]["message"]
+    assert snapshot() == before
+    unconditional = client.post("/api/v1/availability", json=body)
+    assert unconditional.status_code == 201
+
+
+def test_the_api_docs_describe_if_match_on_the_days_off_upsert(client: TestClient) -> None:
+    operation = client.get("/openapi.json").json()["paths"]["/api/v1/availability"]["post"]
+    headers = [p["name"] for p in operation["parameters"] if p["in"] == "header"]
+    assert headers == ["If-Match"]
+    assert "Precondition Failed" in operation["responses"]["412"]["description"]
+    assert "ETag" in operation["responses"]["201"]["headers"]
