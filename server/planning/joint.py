@@ -15,7 +15,7 @@ Rules, matching the single-team plans where they can:
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from sqlmodel import Session, col, select
 
@@ -60,6 +60,7 @@ class JointPlan:
     unplannable: tuple[str, ...]  # titles left out because a team has no capacity
     blocked: tuple[str, ...]  # titles left out because a need lies outside the period
     message: str | None  # why no joint plan could be made
+    titles: dict[int, str] = field(default_factory=dict)  # every initiative of the period
 
 
 def _joint_needs(
@@ -172,6 +173,7 @@ def joint_plan_for(session: Session, *, period_id: int, resolution: float = 0.5)
         unplannable=tuple(unplannable),
         blocked=tuple(r.row.title for r in records if (r.row.id or 0) in blocked),
         message=message,
+        titles={r.row.id or 0: r.row.title for r in records},
     )
 
 

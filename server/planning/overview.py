@@ -32,6 +32,15 @@ class TeamSummary:
 
 
 @dataclass(frozen=True)
+class JointChange:
+    """How the joint plan differs from one team's own plan, over that team's initiatives."""
+
+    team: Team
+    takes_in: tuple[str, ...]  # titles the joint plan chooses and the team's own plan does not
+    leaves_out: tuple[str, ...]  # titles the team's own plan chooses and the joint plan does not
+
+
+@dataclass(frozen=True)
 class PeriodOverview:
     period: Period
     teams: tuple[TeamSummary, ...]
@@ -48,6 +57,36 @@ class PeriodOverview:
                 if any(name == summary.team.name for name, _ in shared.efforts)
             }
         return out
+
+    @property
+    def joint_changes(self) -> tuple[JointChange, ...]:
+        """Per team with an own plan: what the joint plan takes in and leaves out of it.
+
+        Only initiatives in the joint problem count (one a team without capacity works on is
+        in neither), in the period's order of initiatives.
+        """
+        selection = self.joint.selection
+        if selection is None:
+            return ()
+        joint = set(selection.chosen)
+        out = []
+        for summary in self.teams:
+            if summary.feasible is None:
+                continue
+            team_key = str(summary.team.id)
+            mine = [item.key for item in self.joint.items if team_key in item.efforts]
+            own = {str(i) for i in summary.chosen_ids}
+            titles = self.joint.titles
+            takes_in = [k for k in mine if k in joint and k not in own]
+            leaves_out = [k for k in mine if k in own and k not in joint]
+            out.append(
+                JointChange(
+                    team=summary.team,
+                    takes_in=tuple(titles[int(k)] for k in takes_in),
+                    leaves_out=tuple(titles[int(k)] for k in leaves_out),
+                )
+            )
+        return tuple(out)
 
 
 def _summary(session: Session, team: Team, period_id: int, resolution: float) -> TeamSummary:
@@ -150,6 +189,15 @@ def overview_json(overview: PeriodOverview) -> dict[str, Any]:
                     "chosen_in_own_plans": alone.get(s.id, {}),
                 }
                 for s in joint.shared
+            ],
+            "changes_by_team": [
+                {
+                    "team_id": change.team.id,
+                    "name": change.team.name,
+                    "takes_in": list(change.takes_in),
+                    "leaves_out": list(change.leaves_out),
+                }
+                for change in overview.joint_changes
             ],
             "left_out_no_capacity": list(joint.unplannable),
             "left_out_blocked": list(joint.blocked),

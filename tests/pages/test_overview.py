@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import itertools
+import re
 
 import numpy as np
 import pytest
@@ -254,3 +255,86 @@ def test_a_team_whose_marks_cannot_be_planned_is_named_by_titles(
     assert "“Paper tickets”" in text
     assert "“Phone tickets”" in text
     assert "initiative '" not in text
+
+
+# Harbour's own plan takes the shared berth (its 4 days fit beside the quay); Lighthouse's own
+# plan leaves it out (its 8 days crowd out two better rows). The joint plan must honour both.
+CHANGE_HARBOUR = {"Quay": (6.0, 20.0), "Depot": (4.0, 15.0)}
+CHANGE_LIGHTHOUSE = {"Beam": (5.0, 30.0), "Cable": (5.0, 30.0)}
+CHANGE_SHARED = ("Shared berth", {"Harbour": 4.0, "Lighthouse": 8.0}, 50.0)
+
+
+def _best(items: dict[str, tuple[dict[str, float], float]], days: dict[str, float]) -> set[str]:
+    """Brute force: the one most valuable set whose effort fits every team's days."""
+    best, winners = -1.0, []
+    for size in range(len(items) + 1):
+        for subset in itertools.combinations(items, size):
+            if any(sum(items[t][0].get(team, 0) for t in subset) > days[team] for team in days):
+                continue
+            total = sum(items[t][1] for t in subset)
+            if total > best:
+                best, winners = total, [set(subset)]
+            elif total == best:
+                winners.append(set(subset))
+    assert len(winners) == 1, "the example must have one best plan"
+    return winners[0]
+
+
+def test_the_overview_lists_what_the_joint_plan_changes_per_team(
+    form_client: TestClient, session: Session
+) -> None:
+    period = make_period(session)
+    harbour = _team(session, "Harbour", period)
+    lighthouse = _team(session, "Lighthouse", period)
+    for team, rows in ((harbour, CHANGE_HARBOUR), (lighthouse, CHANGE_LIGHTHOUSE)):
+        for title, (effort, value) in rows.items():
+            make_initiative(session, team, period, title, effort, value)
+    title, efforts, value = CHANGE_SHARED
+    create_initiative(
+        session,
+        initiative_in=InitiativeCreate(
+            team_id=harbour.id or 0,
+            period_id=period.id,
+            title=title,
+            effort=EffortIn(likely=efforts["Harbour"]),
+            other_efforts=[TeamEffortIn(team_id=lighthouse.id or 0, likely=efforts["Lighthouse"])],
+            value=value,
+        ),
+    )
+    everything = {t: ({"Harbour": e}, v) for t, (e, v) in CHANGE_HARBOUR.items()}
+    everything |= {t: ({"Lighthouse": e}, v) for t, (e, v) in CHANGE_LIGHTHOUSE.items()}
+    everything[title] = (efforts, value)
+    joint = _best(everything, {"Harbour": 10.0, "Lighthouse": 10.0})
+    expected = {}
+    for team in ("Harbour", "Lighthouse"):
+        mine = {t: (e, v) for t, (e, v) in everything.items() if team in e}
+        own = _best(mine, {team: 10.0})  # a team's own plan sees only its own share
+        expected[team] = (
+            sorted((joint & set(mine)) - own),
+            sorted((own - joint) & set(mine)),
+        )
+    assert expected["Harbour"] == (["Depot"], ["Shared berth"])  # the example does differ
+    assert expected["Lighthouse"] == ([], [])
+
+    body = form_client.get(
+        f"/periods/{period.id}/overview", headers={"Accept": "application/json"}
+    ).json()
+    listed = {
+        c["name"]: (sorted(c["takes_in"]), sorted(c["leaves_out"]))
+        for c in body["joint"]["changes_by_team"]
+    }
+    assert listed == expected
+    html = form_client.get(f"/periods/{period.id}/overview").text
+
+    def said(element_id: str) -> str:
+        found = re.search(f'<li id="{element_id}">(.*?)</li>', html, re.S)
+        assert found, element_id
+        return " ".join(re.sub(r"<[^>]+>", "", found.group(1)).split())
+
+    assert said(f"joint-change-{harbour.id}") == (
+        "Harbour: takes in “Depot”, which its own plan leaves out; "
+        "leaves out “Shared berth”, which its own plan takes."
+    )
+    assert said(f"joint-change-{lighthouse.id}") == (
+        "Lighthouse: the same initiatives as its own plan."
+    )
