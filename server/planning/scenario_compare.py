@@ -48,9 +48,11 @@ def picks_of(comparison: Comparison) -> list[str]:
 
 
 def compare_picks(
-    session: Session, *, team_id: int, period_id: int, picks: Sequence[str], resolution: float
+    session: Session, *, team_id: int, period_id: int, pick: Sequence[str], resolution: float
 ) -> Comparison:
-    """Solve each pick on today's live data and compare them, in the order picked."""
+    """Solve each pick (`pick=` as sent, see parse_picks) on today's live data and compare
+    them, in the order picked."""
+    picks = parse_picks(pick)
     team = get_team(session, team_id=team_id)
     period = get_period(session, period_id=period_id)
     # Every pick is checked before any is solved, so a refusal names the pick that is wrong.

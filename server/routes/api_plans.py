@@ -14,7 +14,7 @@ from server.deps import SessionDep, SettingsDep
 from server.models import NAME_MAX, Publication, SavedPlan, Scenario
 from server.planning import exports
 from server.planning.compare import Comparison, compare, parse_plan_ids
-from server.planning.scenario_compare import compare_picks, parse_picks
+from server.planning.scenario_compare import compare_picks
 from server.planning.scenarios import (
     MAX_ID,
     RowId,
@@ -508,7 +508,7 @@ def compare_scenarios(
         session,
         team_id=team_id,
         period_id=period_id,
-        picks=parse_picks(pick),
+        pick=pick,
         resolution=settings.resolution_days,
     )
 

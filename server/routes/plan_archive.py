@@ -32,7 +32,7 @@ from server.planning.compare import (
     parse_plan_ids,
     single_curve_chart,
 )
-from server.planning.scenario_compare import compare_picks, parse_picks, picks_of
+from server.planning.scenario_compare import compare_picks, picks_of
 from server.planning.scenarios import (
     LISTED_FIGURES,
     MAX_ID,
@@ -542,7 +542,7 @@ def _picked_comparison(
         session,
         team_id=team_id,
         period_id=period_id,
-        picks=parse_picks(pick),
+        pick=pick,
         resolution=settings.resolution_days,
     )
 

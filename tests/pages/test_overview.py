@@ -40,6 +40,29 @@ def _team(session: Session, name: str, period: Period) -> Team:
     return team
 
 
+def _shared(
+    session: Session,
+    period: Period,
+    harbour: Team,
+    lighthouse: Team,
+    shared: tuple[str, dict[str, float], float],
+) -> int:
+    """A Harbour initiative that also spends Lighthouse's days; its id."""
+    title, efforts, value = shared
+    created = create_initiative(
+        session,
+        initiative_in=InitiativeCreate(
+            team_id=harbour.id or 0,
+            period_id=period.id,
+            title=title,
+            effort=EffortIn(likely=efforts["Harbour"]),
+            other_efforts=[TeamEffortIn(team_id=lighthouse.id or 0, likely=efforts["Lighthouse"])],
+            value=value,
+        ),
+    )
+    return created.row.id or 0
+
+
 def build(session: Session) -> tuple[Period, Team, Team, dict[str, int]]:
     period = make_period(session)
     harbour = _team(session, "Harbour", period)
@@ -51,23 +74,7 @@ def build(session: Session) -> tuple[Period, Team, Team, dict[str, int]]:
             make_initiative(session, harbour, period, title, effort, value, either_or=either).row.id
             or 0
         )
-    title, efforts, value = SHARED
-    ids[title] = (
-        create_initiative(
-            session,
-            initiative_in=InitiativeCreate(
-                team_id=harbour.id or 0,
-                period_id=period.id,
-                title=title,
-                effort=EffortIn(likely=efforts["Harbour"]),
-                other_efforts=[
-                    TeamEffortIn(team_id=lighthouse.id or 0, likely=efforts["Lighthouse"])
-                ],
-                value=value,
-            ),
-        ).row.id
-        or 0
-    )
+    ids[SHARED[0]] = _shared(session, period, harbour, lighthouse, SHARED)
     for title, effort, value in LIGHTHOUSE:
         needs = [ids[SHARED[0]]] if title == "Fog horn" else []
         ids[title] = (
@@ -289,18 +296,8 @@ def test_the_overview_lists_what_the_joint_plan_changes_per_team(
     for team, rows in ((harbour, CHANGE_HARBOUR), (lighthouse, CHANGE_LIGHTHOUSE)):
         for title, (effort, value) in rows.items():
             make_initiative(session, team, period, title, effort, value)
+    _shared(session, period, harbour, lighthouse, CHANGE_SHARED)
     title, efforts, value = CHANGE_SHARED
-    create_initiative(
-        session,
-        initiative_in=InitiativeCreate(
-            team_id=harbour.id or 0,
-            period_id=period.id,
-            title=title,
-            effort=EffortIn(likely=efforts["Harbour"]),
-            other_efforts=[TeamEffortIn(team_id=lighthouse.id or 0, likely=efforts["Lighthouse"])],
-            value=value,
-        ),
-    )
     everything = {t: ({"Harbour": e}, v) for t, (e, v) in CHANGE_HARBOUR.items()}
     everything |= {t: ({"Lighthouse": e}, v) for t, (e, v) in CHANGE_LIGHTHOUSE.items()}
     everything[title] = (efforts, value)
