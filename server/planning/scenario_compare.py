@@ -24,6 +24,7 @@ from server.wording import possessive
 
 LIVE = "live"
 LIVE_NAME = "Live plan"
+_SHOWN_CHARS = 40  # of a pick that is not one, in the refusal
 
 
 def parse_picks(raw: Sequence[str]) -> list[str]:
@@ -31,7 +32,10 @@ def parse_picks(raw: Sequence[str]) -> list[str]:
     parts = [p.strip().lower() for chunk in raw for p in chunk.split(",") if p.strip()]
     for part in parts:
         if part != LIVE and not (part.isdigit() and 1 <= int(part) <= MAX_ID):
-            raise InputError(f"pick: “{part}” is neither “{LIVE}” nor a scenario id.", field="pick")
+            shown = part if len(part) <= _SHOWN_CHARS else f"{part[:_SHOWN_CHARS]}…"
+            raise InputError(
+                f"pick: “{shown}” is neither “{LIVE}” nor a scenario id.", field="pick"
+            )
     picks = [part if part == LIVE else str(int(part)) for part in parts]
     if len(set(picks)) != len(picks):
         raise InputError("pick: each plan may be picked only once.", field="pick")

@@ -32,7 +32,7 @@ from server.planning.compare import (
     parse_plan_ids,
     single_curve_chart,
 )
-from server.planning.scenario_compare import compare_picks, picks_of
+from server.planning.scenario_compare import compare_picks, parse_picks, picks_of
 from server.planning.scenarios import (
     LISTED_FIGURES,
     MAX_ID,
@@ -477,6 +477,14 @@ def compare_scenarios_page(
 ) -> Response:
     """The live plan and scenarios picked, solved now side by side; nothing is saved."""
     team = get_team(session, team_id=team_id)
+    if len(pick) > 1 and period_id is not None:
+        # Ticked boxes arrive as pick=live&pick=3: the stable address says them in one.
+        try:
+            query = ",".join(parse_picks(pick))
+        except InputError:
+            pass  # refused below, with the boxes kept ticked
+        else:
+            return see_other(_address_of(team_id, period_id, query))
     try:
         comparison = _picked_comparison(session, settings, team_id, period_id, pick)
     except (InputError, NotFoundError) as exc:
@@ -486,11 +494,7 @@ def compare_scenarios_page(
         context |= {"ticked": _ticked(pick), "errors": {"pick": text[:1].upper() + text[1:]}}
         return render(templates, request, "plans/scenarios.html", context, status_code=422)
     period = get_period(session, period_id=period_id or 0)
-    picks = picks_of(comparison)
-    query = ",".join(picks)
-    if len(pick) > 1:
-        # Ticked boxes arrive as pick=live&pick=3: the stable address says them in one.
-        return see_other(f"/teams/{team_id}/scenarios/compare?period_id={period_id}&pick={query}")
+    query = ",".join(picks_of(comparison))
     names = {p.label: p.name for p in comparison.plans}
     scenarios = [p for p in comparison.plans if p.scenario_id is not None]
     live = len(scenarios) < len(comparison.plans)
@@ -499,7 +503,7 @@ def compare_scenarios_page(
         if live
         else f"Comparing {counted(len(scenarios), 'scenario')}"
     )
-    address = f"/teams/{team_id}/scenarios/compare?period_id={period_id}&pick={query}"
+    address = _address_of(team_id, period_id or 0, query)
     context = {
         "comparison": comparison,
         "unsaved": True,
@@ -527,6 +531,11 @@ def export_scenario_comparison(
     comparison = _picked_comparison(session, settings, team_id, period_id, pick)
     picks = "-".join(picks_of(comparison))
     return comparison_export(comparison, fmt, f"comparison-team-{team_id}-{picks}-not-saved")
+
+
+def _address_of(team_id: int, period_id: int, query: str) -> str:
+    """The stable address of a comparison of picks (query: the picks, comma-separated)."""
+    return f"/teams/{team_id}/scenarios/compare?period_id={period_id}&pick={query}"
 
 
 def _picked_comparison(

@@ -107,6 +107,7 @@ def test_the_columns_follow_live_data_when_asked_again(
         ("live,-3", "“-3”"),
         ("live,99999999999", "“99999999999”"),
         ("", "at least 2"),
+        ("live," + "x" * 300, "“" + "x" * 40 + "…” is neither"),
     ],
 )
 def test_bad_picks_are_refused_naming_pick(
