@@ -35,21 +35,6 @@ def share_percent(value: float | None) -> str:
     return "–" if value is None else f"{number(value * 100)} %"
 
 
-def audit_value(value: Any) -> str:
-    """A stored value of the audit trail in words: no float noise, lists and records joined."""
-    if value is None:
-        return "–"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.10g}"
-    if isinstance(value, list):
-        return "; ".join(audit_value(item) for item in value) or "none"
-    if isinstance(value, dict):
-        return ", ".join(f"{str(k).replace('_', ' ')} {audit_value(v)}" for k, v in value.items())
-    return str(value)
-
-
 # Errors not tied to one input: shown without a field label.
 _FORM_WIDE = {"form", "body", "version"}
 
@@ -90,7 +75,6 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["error_line"] = error_line
     env.filters["counted"] = counted
     env.filters["form_number"] = form_number
-    env.filters["audit_value"] = audit_value
     env.globals["STATE_LABELS"] = STATE_LABELS
     env.globals["may"] = may
     env.trim_blocks = True

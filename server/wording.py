@@ -4,6 +4,7 @@ in quotes."""
 from __future__ import annotations
 
 from decimal import ROUND_HALF_UP, Decimal
+from typing import Any
 
 _HUNDREDTH = Decimal("0.01")
 
@@ -53,3 +54,18 @@ def day_word(value: float | None) -> str:
 def in_days(value: float | None) -> str:
     """A number of days with its unit: "1 day", "12.5 days"."""
     return f"{days(value)} {day_word(value)}"
+
+
+def audit_value(value: Any) -> str:
+    """A stored value of the audit trail in words: no float noise, lists and records joined."""
+    if value is None:
+        return "–"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:.10g}"
+    if isinstance(value, list):
+        return "; ".join(audit_value(item) for item in value) or "none"
+    if isinstance(value, dict):
+        return ", ".join(f"{str(k).replace('_', ' ')} {audit_value(v)}" for k, v in value.items())
+    return str(value)

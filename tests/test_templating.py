@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from server.templating import audit_value, day_word, days, form_number, in_days, share_percent
+from server.templating import day_word, days, form_number, in_days, share_percent
+from server.wording import audit_value
 
 
 @pytest.mark.parametrize(

@@ -16,7 +16,7 @@ from sqlmodel import Session, col, select
 
 from server.models import AuditEntry, Initiative, Member, Period
 from server.planning.scenarios import changes_from_json, changes_in_words
-from server.wording import STATE_LABELS, in_days, quoted
+from server.wording import STATE_LABELS, audit_value, in_days, quoted
 
 # Field names as the pages label them.
 FIELD_LABELS = {
@@ -184,7 +184,7 @@ def _scenario_changes(value: Any, names: Names, entry: AuditEntry) -> str:
     try:
         changes = changes_from_json(value)
     except (ValidationError, TypeError, ValueError):
-        return _fallback(value)
+        return audit_value(value)
     # Members unquoted, as the words kept by a scenario's deletion name them.
     members = {
         member_id: names.members.get(member_id, f"a removed member (id {member_id})")
@@ -199,7 +199,7 @@ def _scenario_changes(value: Any, names: Names, entry: AuditEntry) -> str:
 
 def _availability_kept(value: Any, names: Names) -> str:
     if not isinstance(value, list):
-        return _fallback(value)
+        return audit_value(value)
     rows = []
     for row in value:
         if not isinstance(row, dict):
@@ -220,26 +220,12 @@ def _share(value: Any) -> str:
     return f"share {_percent_of_share(value)}" if isinstance(value, int | float) else "–"
 
 
-def _fallback(value: Any) -> str:
-    if value is None:
-        return "–"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.10g}"
-    if isinstance(value, list):
-        return "; ".join(_fallback(item) for item in value) or "none"
-    if isinstance(value, dict):
-        return ", ".join(f"{str(k).replace('_', ' ')} {_fallback(v)}" for k, v in value.items())
-    return str(value)
-
-
 def _dates(value: list[Any]) -> str:
     return ", ".join(str(item) for item in value) or "none"
 
 
 def _numeric(show: Callable[[float], str]) -> Callable[[Any], str]:
-    return lambda value: show(value) if isinstance(value, int | float) else _fallback(value)
+    return lambda value: show(value) if isinstance(value, int | float) else audit_value(value)
 
 
 _PLAIN: dict[str, Callable[[Any], str]] = {
@@ -252,11 +238,13 @@ _PLAIN: dict[str, Callable[[Any], str]] = {
     "reserve_pct": _numeric(lambda v: f"{_number(v)} %"),
     "focus_factor": _numeric(_number),
     "value": _numeric(_number),
-    "state": lambda v: STATE_LABELS.get(v, _fallback(v)) if isinstance(v, str) else _fallback(v),
-    "either_or": lambda v: "none" if v in (None, "") else _fallback(v),
-    "notes": lambda v: "none" if v in (None, "") else _fallback(v),
-    "effort": lambda v: effort_words(v) if isinstance(v, dict) else _fallback(v),
-    "non_working_dates": lambda v: _dates(v) if isinstance(v, list) else _fallback(v),
+    "state": lambda v: (
+        STATE_LABELS.get(v, audit_value(v)) if isinstance(v, str) else audit_value(v)
+    ),
+    "either_or": lambda v: "none" if v in (None, "") else audit_value(v),
+    "notes": lambda v: "none" if v in (None, "") else audit_value(v),
+    "effort": lambda v: effort_words(v) if isinstance(v, dict) else audit_value(v),
+    "non_working_dates": lambda v: _dates(v) if isinstance(v, list) else audit_value(v),
 }
 
 
@@ -281,7 +269,7 @@ def value_words(key: str, value: Any, names: Names, entry: AuditEntry) -> str:
         return _scenario_changes(value, names, entry)
     if key == "availability":
         return _availability_kept(value, names)
-    return _fallback(value)
+    return audit_value(value)
 
 
 def _pairs(
