@@ -65,3 +65,19 @@ class StaleVersionError(ConflictError):
 
     def detail(self) -> dict[str, Any]:
         return {**super().detail(), "current": self.current}
+
+
+class AlreadyStoredError(ConflictError):
+    """A create-only write found the row already stored; carries its values.
+
+    `found` is the sentence naming what is stored, without advice: the caller that asked for
+    create-only (an If-None-Match: * on the API) says what to do instead.
+    """
+
+    def __init__(self, found: str, *, current: dict[str, Any]) -> None:
+        super().__init__(f"{found} Nothing was saved.")
+        self.found = found
+        self.current = current
+
+    def detail(self) -> dict[str, Any]:
+        return {**super().detail(), "current": self.current}

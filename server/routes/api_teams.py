@@ -9,10 +9,11 @@ from server.models import Availability, Member, Team
 from server.planning.team_capacity import capacity_of
 from server.routes.preconditions import (
     CONDITIONAL,
-    CONDITIONAL_CREATED,
     CONDITIONAL_DELETE,
+    CONDITIONAL_UPSERT,
     TAGGED,
     TAGGED_CREATED,
+    CreateOnlyDep,
     ETagDep,
     IfMatchDep,
     entity_tag,
@@ -153,16 +154,23 @@ def list_availability(
     "/availability",
     response_model=AvailabilityPublic,
     status_code=status.HTTP_201_CREATED,
-    responses=CONDITIONAL_CREATED,
+    responses=CONDITIONAL_UPSERT,
     description="Set a member's days off (and optional allocation) in a period; replaces any "
     "earlier row for the same member and period. Days only: never store a reason. To replace "
-    "a row only as you read it, send its ETag in If-Match (412 if it changed or is gone).",
+    "a row only as you read it, send its ETag in If-Match (412 if it changed or is gone); to "
+    "write only when no row is stored yet, send If-None-Match: * (412 if one is).",
 )
 def set_availability(
-    availability_in: AvailabilityCreate, session: SessionDep, condition: IfMatchDep
+    availability_in: AvailabilityCreate,
+    session: SessionDep,
+    condition: IfMatchDep,
+    only_create: CreateOnlyDep,
 ) -> AvailabilityPublic:
     db_row = store.set_availability(
-        session, availability_in=availability_in, based_on=condition.based_on
+        session,
+        availability_in=availability_in,
+        based_on=condition.based_on,
+        create_only=only_create,
     )
     return condition(_availability(db_row))
 

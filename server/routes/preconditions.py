@@ -7,6 +7,10 @@ capacity settings in a period) answer a single-row GET and every successful writ
 refuses the write when the row has changed since (`refuse_if_changed`), and `if_match` turns
 that refusal into 412 Precondition Failed, naming the stored values and carrying their ETag.
 No If-Match, or `If-Match: *`, writes without a condition, as before.
+
+An upsert (the days-off POST) also reads `If-None-Match: *` (RFC 9110, section 13.1.2): write
+only when no row is stored yet, so two people entering the same member's days at once cannot
+silently replace each other's; a stored row makes it 412.
 """
 
 from __future__ import annotations
@@ -19,11 +23,12 @@ from fastapi import Depends, Header, Request, Response
 from pydantic import BaseModel
 from sqlmodel import SQLModel
 
-from server.errors import LoadlineError, StaleVersionError
+from server.errors import AlreadyStoredError, LoadlineError, StaleVersionError
 from server.routes.responses import ErrorBody, ErrorDetail
 from server.store._common import fingerprint
 
 HEADER = "If-Match"
+NONE_MATCH_HEADER = "If-None-Match"
 _ENTITY_TAG = re.compile(r'(W/)?"([\x21\x23-\x7e\x80-\xff]*)"')
 _SHOWN_CHARS = 60
 
@@ -31,6 +36,10 @@ IF_MATCH_HELP = (
     "The ETag you read (quotes included), so the write is refused with 412 if someone "
     "changed the row since. Several tags may be listed, comma-separated; `*` or no header "
     "writes without a condition (the last write wins). Clients should send it."
+)
+IF_NONE_MATCH_HELP = (
+    "`*` to create the row only when none is stored yet (412 with the stored values "
+    "otherwise). Entity tags are not accepted here."
 )
 ETAG_HELP = "The row's entity tag: a fingerprint of its stored values. Send it back in If-Match."
 
@@ -72,9 +81,9 @@ class PreconditionFailedError(StaleVersionError):
 
     status_code = 412
 
-    def __init__(self, message: str, *, current: dict[str, Any]) -> None:
+    def __init__(self, message: str, *, current: dict[str, Any], header: str = HEADER) -> None:
         super().__init__(message, current=current)
-        self.field = HEADER
+        self.field = header
 
     def headers(self) -> dict[str, str]:
         return {"ETag": entity_tag(fingerprint(self.current))}
@@ -165,7 +174,37 @@ def if_match(
         raise PreconditionFailedError(message, current=exc.current) from exc
 
 
+def create_only(
+    request: Request,
+    if_none_match_header: Annotated[
+        str | None, Header(alias=NONE_MATCH_HEADER, description=IF_NONE_MATCH_HELP)
+    ] = None,
+) -> Iterator[bool]:
+    """Whether an upsert may only create (If-None-Match: *); a stored row becomes 412."""
+    values = request.headers.getlist(NONE_MATCH_HEADER)
+    text = ", ".join(values).strip(" \t")
+    if values and text != "*":
+        shown = text if len(text) <= _SHOWN_CHARS else f"{text[:_SHOWN_CHARS]}…"
+        raise LoadlineError(
+            f"{NONE_MATCH_HEADER}: only * is understood on this write (create the row only "
+            f"when none is stored), got {shown!r}. To replace a row as you read it, send its "
+            f"ETag in {HEADER} instead.",
+            field=NONE_MATCH_HEADER,
+        )
+    try:
+        yield bool(values)
+    except AlreadyStoredError as exc:
+        message = (
+            f"{exc.found} Nothing was saved: {NONE_MATCH_HEADER}: * writes only when there is "
+            f"none. Read the stored row and send its ETag in {HEADER} to replace it."
+        )
+        raise PreconditionFailedError(
+            message, current=exc.current, header=NONE_MATCH_HEADER
+        ) from exc
+
+
 ETagDep = Annotated[ETagged, Depends(etagged)]
+CreateOnlyDep = Annotated[bool, Depends(create_only)]
 IfMatchDep = Annotated[Precondition, Depends(if_match)]
 
 
@@ -194,4 +233,19 @@ TAGGED: dict[int | str, dict[str, Any]] = {200: {"headers": _ETAG_HEADER}}
 TAGGED_CREATED: dict[int | str, dict[str, Any]] = {201: {"headers": _ETAG_HEADER}}
 CONDITIONAL: dict[int | str, dict[str, Any]] = {**TAGGED, **_PRECONDITION_ERRORS}
 CONDITIONAL_DELETE: dict[int | str, dict[str, Any]] = dict(_PRECONDITION_ERRORS)
-CONDITIONAL_CREATED: dict[int | str, dict[str, Any]] = {**TAGGED_CREATED, **_PRECONDITION_ERRORS}
+# The days-off upsert reads both headers: If-Match to replace a row as read, If-None-Match: *
+# to write only a new one.
+CONDITIONAL_UPSERT: dict[int | str, dict[str, Any]] = {
+    **TAGGED_CREATED,
+    400: {
+        "model": BadRequestBody,
+        "description": f"The {HEADER} or {NONE_MATCH_HEADER} header is malformed (detail.field "
+        "names it), or the body could not be read.",
+    },
+    412: {
+        "model": ErrorBody,
+        "description": f"Precondition Failed: the row changed since the ETag sent in {HEADER}, "
+        f"or {NONE_MATCH_HEADER}: * was sent and a row is stored. Nothing was stored; "
+        "detail.current holds the stored values and the ETag header their tag.",
+    },
+}

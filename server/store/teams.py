@@ -7,7 +7,7 @@ from typing import Any
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, col, func, select
 
-from server.errors import ConflictError, InputError
+from server.errors import AlreadyStoredError, ConflictError, InputError
 from server.models import (
     Availability,
     EffortLine,
@@ -504,9 +504,11 @@ def set_availability(
     availability_in: AvailabilityCreate,
     actor: str = "",
     based_on: BasedOn = None,
+    create_only: bool = False,
 ) -> Availability:
     """Create or replace a member's availability in a period (one row per member and period);
-    `based_on`: see `refuse_if_changed`."""
+    `based_on`: see `refuse_if_changed`. create_only refuses to replace a stored row
+    (AlreadyStoredError), after the based_on check."""
     db_member = get_member(session, member_id=availability_in.member_id)
     period = get_or_404(session, Period, availability_in.period_id, "period")
     _check_days_off(period, availability_in.days_off)
@@ -522,6 +524,12 @@ def set_availability(
         f"{possessive(db_member.name)} days off in {period.name} were",
         _availability_words(before) if before else "none recorded",
     )
+    if create_only and before is not None:
+        raise AlreadyStoredError(
+            f"{possessive(db_member.name)} days off in {period.name} are already recorded: "
+            f"{_availability_words(before)}.",
+            current=before,
+        )
     db_row = found or Availability(
         member_id=availability_in.member_id, period_id=availability_in.period_id
     )

@@ -402,9 +402,73 @@ def test_the_days_off_upsert_with_if_match_refuses_a_row_deleted_since(
     assert unconditional.status_code == 201
 
 
-def test_the_api_docs_describe_if_match_on_the_days_off_upsert(client: TestClient) -> None:
+def test_the_api_docs_describe_both_conditions_on_the_days_off_upsert(client: TestClient) -> None:
     operation = client.get("/openapi.json").json()["paths"]["/api/v1/availability"]["post"]
     headers = [p["name"] for p in operation["parameters"] if p["in"] == "header"]
-    assert headers == ["If-Match"]
+    assert headers == ["If-Match", "If-None-Match"]
     assert "Precondition Failed" in operation["responses"]["412"]["description"]
+    assert "If-None-Match: *" in operation["responses"]["412"]["description"]
+    assert "If-None-Match" in operation["responses"]["400"]["description"]
     assert "ETag" in operation["responses"]["201"]["headers"]
+
+
+def test_the_days_off_upsert_with_if_none_match_star_never_replaces_a_stored_row(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # Two people entering the same member's days at once: the second learns of the first.
+    url = f"/api/v1/availability/{workspace.availability}"
+    stored = client.patch(url, json={"days_off": 3})
+    assert stored.status_code == 200
+    body = {"member_id": workspace.member, "period_id": workspace.period, "days_off": 1}
+    before = snapshot()
+
+    refused = client.post("/api/v1/availability", json=body, headers={"If-None-Match": "*"})
+
+    assert refused.status_code == 412, refused.text
+    assert error_fields(refused) == ["If-None-Match"]
+    detail = refused.json()["detail"]
+    assert "already recorded: 3 days off" in detail["message"]
+    assert "Nothing was saved" in detail["message"]
+    assert detail["current"]["days_off"] == 3
+    assert refused.headers["etag"] == stored.headers["etag"]
+    assert snapshot() == before
+    # A current If-Match does not lift it: the row is still there, so create-only refuses.
+    both = client.post(
+        "/api/v1/availability",
+        json=body,
+        headers={"If-None-Match": "*", "If-Match": stored.headers["etag"]},
+    )
+    assert both.status_code == 412
+    assert error_fields(both) == ["If-None-Match"]
+    assert snapshot() == before
+
+
+def test_the_days_off_upsert_with_if_none_match_star_creates_when_no_row_is_stored(
+    client: TestClient, workspace: Workspace
+) -> None:
+    assert client.delete(f"/api/v1/availability/{workspace.availability}").status_code == 204
+    body = {"member_id": workspace.member, "period_id": workspace.period, "days_off": 2}
+
+    created = client.post("/api/v1/availability", json=body, headers={"If-None-Match": "*"})
+
+    assert created.status_code == 201, created.text
+    assert created.json()["days_off"] == 2
+    assert created.headers["etag"] == created.json()["etag"]
+    again = client.post(
+        "/api/v1/availability", json=body | {"days_off": 5}, headers={"If-None-Match": "*"}
+    )
+    assert again.status_code == 412
+    assert client.get(f"/api/v1/availability/{created.json()['id']}").json()["days_off"] == 2
+
+
+@pytest.mark.parametrize("value", ['"0123456789abcdef"', 'W/"0123456789abcdef"', "*, *", "none"])
+def test_if_none_match_other_than_star_is_400_naming_the_header(
+    client: TestClient, workspace: Workspace, value: str, snapshot: Callable[[], Snapshot]
+) -> None:
+    body = {"member_id": workspace.member, "period_id": workspace.period, "days_off": 1}
+    before = snapshot()
+    refused = client.post("/api/v1/availability", json=body, headers={"If-None-Match": value})
+    assert refused.status_code == 400, refused.text
+    assert error_fields(refused) == ["If-None-Match"]
+    assert refused.json()["detail"]["message"].startswith("If-None-Match: only * is understood")
+    assert snapshot() == before
