@@ -93,3 +93,86 @@ def test_a_refused_period_change_opens_on_an_error_summary(
     assert "#f-weekmask" in links
     for href in links:
         assert parse_html(response.text).by_id((href or "#").removeprefix("#")) is not None
+
+
+def _summary_links_resolve(text: str) -> dict[str, str]:
+    """The team page's error summary: autofocus, and every link lands on a field of the page."""
+    root = parse_html(text)
+    summary = root.by_id("error-summary")
+    assert summary is not None, text[:500]
+    assert "autofocus" in summary.attrs
+    links = {a.get("href") or "": " ".join(a.text().split()) for a in summary.find_all("a")}
+    for href in links:
+        assert root.by_id(href.removeprefix("#")) is not None, href
+    return links
+
+
+def test_a_refused_save_on_the_team_page_opens_on_an_error_summary(
+    form_client: TestClient, session: Session
+) -> None:
+    # The team page holds five forms; a refused one is re-shown far down the page, so the
+    # summary at the top names the problem and links to the field, without any script.
+    setup = build(session)
+    member = make_member(session, setup.team, "Noor")
+    set_days_off(session, member, setup.period, 0)
+    team, period = setup.team.id, str(setup.period.id)
+    cases = [
+        (
+            f"/teams/{team}/members",
+            {"name": "", "share": "150", "period_id": period},
+            {"#f-name", "#f-share"},
+        ),
+        (
+            f"/teams/{team}/members/{member.id}",
+            {"name": "Noor", "share": "0", "period_id": period},
+            {f"#m{member.id}-f-share"},
+        ),
+        (
+            f"/teams/{team}/settings",
+            {"name": "Harbour", "spread_pct": "-3", "period_id": period},
+            {"#team-f-spread_pct"},
+        ),
+        (
+            f"/teams/{team}/capacity",
+            {"focus_factor": "1.5", "reserve_pct": "100", "period_id": period},
+            {"#f-focus_factor", "#f-reserve_pct"},
+        ),
+        (
+            f"/teams/{team}/availability",
+            {"member_id": str(member.id), "period_id": period, "days_off": "70", "share": ""},
+            {f"#off-{member.id}"},
+        ),
+    ]
+    for url, data, expected in cases:
+        response = post_form(form_client, url, data)
+        assert response.status_code == 422, (url, response.text[:300])
+        links = _summary_links_resolve(response.text)
+        assert expected <= set(links), (url, links)
+        heading = parse_html(response.text).by_id("error-summary-h").text()
+        assert heading.startswith("Not saved: "), heading
+        for typed in data.values():
+            assert f'value="{typed}"' in response.text, (url, typed)
+    names = _summary_links_resolve(
+        post_form(form_client, f"/teams/{team}/availability", cases[-1][1]).text
+    )
+    assert names[f"#off-{member.id}"].startswith("Noor: days off: ")
+
+
+def test_a_refused_team_delete_opens_on_a_summary_saying_nothing_was_deleted(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)  # the team owns initiatives: deleting it needs the second tick
+    response = post_form(form_client, f"/teams/{setup.team.id}/delete", {"confirm": "yes"})
+    assert response.status_code in (409, 422), response.text[:300]
+    root = parse_html(response.text)
+    assert root.by_id("error-summary-h").text().startswith("Not deleted: 1 problem")
+    assert "initiative" in root.by_id("error-summary").text()
+
+
+def test_the_team_page_without_a_refusal_has_no_error_summary(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    page = form_client.get(f"/teams/{setup.team.id}?period_id={setup.period.id}")
+    assert page.status_code == 200
+    assert parse_html(page.text).find(id="error-summary") is None
