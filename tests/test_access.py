@@ -15,6 +15,7 @@ from server.config import Settings
 from server.models import LoginFailure, Team, UserAccount
 from server.store.users import MAX_FAILURES_PER_ACCOUNT
 from tests.conftest import ACCOUNT_PASSWORD, bearer, csrf_token
+from tests.pages.html_tree import parse_html
 
 
 @pytest.fixture
@@ -195,6 +196,10 @@ def test_first_run_page_only_on_loopback_and_only_once(
     form = {"username": "first", "password": "long-enough-pass", "csrf_token": token.group(1)}
     bad = local.post("/setup", data={**form, "password_again": "different-pass"})
     assert bad.status_code == 422
+    summary = parse_html(bad.text).by_id("error-summary")  # the refusal takes the focus
+    assert "autofocus" in summary.attrs
+    assert "Not created: 1 problem" in summary.text()
+    assert {a.get("href") for a in summary.find_all("a")} == {"#f-password_again"}
     assert session.exec(select(func.count()).select_from(UserAccount)).one() == 0
     made = local.post(
         "/setup", data={**form, "password_again": "long-enough-pass"}, follow_redirects=False

@@ -104,3 +104,26 @@ def test_a_refused_curve_step_keeps_its_value_and_the_focus(
         expect(field).to_have_value(typed)
         expect(field).to_have_attribute("aria-invalid", "true")
         expect(field).to_be_focused()
+
+
+@pytest.mark.browser
+def test_a_refused_scenario_starts_at_its_summary_and_links_to_the_field(
+    app_page: Page, live_server: LiveServer
+) -> None:
+    page = app_page
+    team_id, _, _ = set_up_team(page, live_server.url)
+    period_id = re.search(r"period_id=(\d+)", page.url).group(1)  # type: ignore[union-attr]
+    page.goto(f"{live_server.url}/teams/{team_id}/scenarios?period_id={period_id}")
+    form = page.locator(f"form[action='/teams/{team_id}/scenarios']")
+    form.get_by_label("Scenario name").fill("Long leave")
+    days_off = form.locator("input[name^='days_off.']").first
+    days_off.fill("999")
+    form.get_by_role("button", name="Make and solve scenario").click()
+    summary = page.locator("#error-summary")
+    expect(summary).to_be_focused()
+    expect(summary).to_contain_text("days off")
+    expect(form.get_by_label("Scenario name")).to_have_value("Long leave")
+    screenshot(page, "scenario-error-summary")
+    summary.get_by_role("link").first.click()
+    expect(form.locator("input[name^='days_off.']").first).to_be_focused()
+    expect(form.locator("input[name^='days_off.']").first).to_have_value("999")

@@ -5,6 +5,7 @@ from __future__ import annotations
 from fastapi.testclient import TestClient
 from sqlmodel import Session
 
+from tests.conftest import csrf_token
 from tests.factories import make_member, set_days_off
 from tests.pages.html_tree import parse_html
 from tests.pages.test_plan_pages import HX, build, edit_url, post_form, row_fields
@@ -95,8 +96,8 @@ def test_a_refused_period_change_opens_on_an_error_summary(
         assert parse_html(response.text).by_id((href or "#").removeprefix("#")) is not None
 
 
-def _summary_links_resolve(text: str) -> dict[str, str]:
-    """The team page's error summary: autofocus, and every link lands on a field of the page."""
+def summary_links(text: str) -> dict[str, str]:
+    """A page's error summary: autofocus, and every link lands on a field of the page."""
     root = parse_html(text)
     summary = root.by_id("error-summary")
     assert summary is not None, text[:500]
@@ -146,15 +147,13 @@ def test_a_refused_save_on_the_team_page_opens_on_an_error_summary(
     for url, data, expected in cases:
         response = post_form(form_client, url, data)
         assert response.status_code == 422, (url, response.text[:300])
-        links = _summary_links_resolve(response.text)
+        links = summary_links(response.text)
         assert expected <= set(links), (url, links)
         heading = parse_html(response.text).by_id("error-summary-h").text()
         assert heading.startswith("Not saved: "), heading
         for typed in data.values():
             assert f'value="{typed}"' in response.text, (url, typed)
-    names = _summary_links_resolve(
-        post_form(form_client, f"/teams/{team}/availability", cases[-1][1]).text
-    )
+    names = summary_links(post_form(form_client, f"/teams/{team}/availability", cases[-1][1]).text)
     assert names[f"#off-{member.id}"].startswith("Noor: days off: ")
 
 
@@ -176,3 +175,37 @@ def test_the_team_page_without_a_refusal_has_no_error_summary(
     page = form_client.get(f"/teams/{setup.team.id}?period_id={setup.period.id}")
     assert page.status_code == 200
     assert parse_html(page.text).find(id="error-summary") is None
+
+
+def test_a_refused_new_team_opens_on_the_summary_of_its_form(form_client: TestClient) -> None:
+    response = post_form(form_client, "/teams", {"name": "", "spread_pct": "-4"})
+    assert response.status_code == 422
+    links = summary_links(response.text)
+    assert {"#team-f-name", "#team-f-spread_pct"} <= set(links), links
+    assert 'value="-4"' in response.text
+
+
+def test_a_refused_account_opens_on_a_summary_and_keeps_the_name(
+    form_client: TestClient,
+) -> None:
+    response = post_form(
+        form_client, "/users", {"username": "newcomer", "password": "short", "role": "editor"}
+    )
+    assert response.status_code == 422, response.text[:300]
+    assert "#f-password" in summary_links(response.text)
+    assert 'value="newcomer"' in response.text
+    assert "newcomer" not in form_client.get("/api/v1/users").text
+
+
+def test_a_refused_sign_in_opens_on_its_summary_not_on_the_name(
+    anonymous_client: TestClient,
+) -> None:
+    page = anonymous_client.get("/login")
+    token = csrf_token(anonymous_client, "/login")
+    response = anonymous_client.post(
+        "/login", data={"username": "editor", "password": "wrong-password", "csrf_token": token}
+    )
+    assert response.status_code in (401, 422), response.text[:300]
+    assert "#f-password" in summary_links(response.text)
+    assert "autofocus" not in parse_html(response.text).by_id("f-username").attrs
+    assert "autofocus" in parse_html(page.text).by_id("f-username").attrs
