@@ -41,6 +41,7 @@ from server.routes.fragments import (
     not_a_page,
     page_above,
 )
+from server.routes.preconditions import NotModified
 from server.security import RequestGuard
 from server.templating import configure_templates, error_line
 from server.validation import api_errors, field_and_message
@@ -137,6 +138,10 @@ def _add_error_handlers(app: FastAPI) -> None:
         if _fragment_for(request):
             return error_fragment(request, str(exc.detail), exc.status_code)
         return await http_exception_handler(request, exc)
+
+    @app.exception_handler(NotModified)
+    async def _not_modified(request: Request, exc: NotModified) -> Response:
+        return Response(status_code=304, headers={"ETag": exc.etag})
 
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError) -> Response:

@@ -11,8 +11,9 @@ from server.models import Period
 from server.routes.preconditions import (
     CONDITIONAL,
     CONDITIONAL_DELETE,
-    TAGGED,
     TAGGED_CREATED,
+    TAGGED_READ,
+    ConditionalReadDep,
     ETagDep,
     IfMatchDep,
     entity_tag,
@@ -53,8 +54,8 @@ def create_period(period_in: PeriodCreate, session: SessionDep, etag: ETagDep) -
     return etag(period_public(store.create_period(session, period_in=period_in)))
 
 
-@router.get("/periods/{period_id}", response_model=PeriodPublic, responses=TAGGED)
-def read_period(period_id: int, session: SessionDep, etag: ETagDep) -> PeriodPublic:
+@router.get("/periods/{period_id}", response_model=PeriodPublic, responses=TAGGED_READ)
+def read_period(period_id: int, session: SessionDep, etag: ConditionalReadDep) -> PeriodPublic:
     return etag(period_public(store.get_period(session, period_id=period_id)))
 
 

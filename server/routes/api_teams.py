@@ -13,6 +13,8 @@ from server.routes.preconditions import (
     CONDITIONAL_UPSERT,
     TAGGED,
     TAGGED_CREATED,
+    TAGGED_READ,
+    ConditionalReadDep,
     CreateOnlyDep,
     ETagDep,
     IfMatchDep,
@@ -71,8 +73,8 @@ def create_team(team_in: TeamCreate, session: SessionDep, etag: ETagDep) -> Team
     return etag(_team(store.create_team(session, team_in=team_in)))
 
 
-@router.get("/teams/{team_id}", response_model=TeamPublic, responses=TAGGED)
-def read_team(team_id: int, session: SessionDep, etag: ETagDep) -> TeamPublic:
+@router.get("/teams/{team_id}", response_model=TeamPublic, responses=TAGGED_READ)
+def read_team(team_id: int, session: SessionDep, etag: ConditionalReadDep) -> TeamPublic:
     return etag(_team(store.get_team(session, team_id=team_id)))
 
 
@@ -120,8 +122,8 @@ def create_member(member_in: MemberCreate, session: SessionDep, etag: ETagDep) -
     return etag(_member(store.create_member(session, member_in=member_in)))
 
 
-@router.get("/members/{member_id}", response_model=MemberPublic, responses=TAGGED)
-def read_member(member_id: int, session: SessionDep, etag: ETagDep) -> MemberPublic:
+@router.get("/members/{member_id}", response_model=MemberPublic, responses=TAGGED_READ)
+def read_member(member_id: int, session: SessionDep, etag: ConditionalReadDep) -> MemberPublic:
     return etag(_member(store.get_member(session, member_id=member_id)))
 
 
@@ -175,9 +177,11 @@ def set_availability(
     return condition(_availability(db_row))
 
 
-@router.get("/availability/{availability_id}", response_model=AvailabilityPublic, responses=TAGGED)
+@router.get(
+    "/availability/{availability_id}", response_model=AvailabilityPublic, responses=TAGGED_READ
+)
 def read_availability(
-    availability_id: int, session: SessionDep, etag: ETagDep
+    availability_id: int, session: SessionDep, etag: ConditionalReadDep
 ) -> AvailabilityPublic:
     return etag(_availability(store.get_availability(session, availability_id=availability_id)))
 

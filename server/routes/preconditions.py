@@ -11,6 +11,11 @@ No If-Match, or `If-Match: *`, writes without a condition, as before.
 An upsert (the days-off POST) also reads `If-None-Match: *` (RFC 9110, section 13.1.2): write
 only when no row is stored yet, so two people entering the same member's days at once cannot
 silently replace each other's; a stored row makes it 412.
+
+A single-row GET whose ETag covers its whole answer (team, member, days-off row, period) reads
+If-None-Match too: when it names the current tag (weak comparison, RFC 9110 section 8.8.3.2)
+or is `*`, the answer is 304 Not Modified with the ETag and no body. Answers computed from
+more than the tagged row (capacity, a solved scenario) never answer 304.
 """
 
 from __future__ import annotations
@@ -41,6 +46,10 @@ IF_NONE_MATCH_HELP = (
     "`*` to create the row only when none is stored yet (412 with the stored values "
     "otherwise). Entity tags are not accepted here."
 )
+IF_NONE_MATCH_READ_HELP = (
+    "The ETag of the copy you hold (quotes included; W/ allowed), or `*`: when it is still "
+    "current the answer is 304 Not Modified with no body."
+)
 ETAG_HELP = "The row's entity tag: a fingerprint of its stored values. Send it back in If-Match."
 
 
@@ -63,17 +72,25 @@ def tagged_public(model: type[PublicT], row: SQLModel, row_fingerprint: str) -> 
 
 
 class BadIfMatchError(LoadlineError):
-    """The If-Match header cannot be read."""
+    """An If-Match or If-None-Match header cannot be read."""
 
     status_code = 400
 
-    def __init__(self, value: str, problem: str) -> None:
+    def __init__(self, value: str, problem: str, header: str = HEADER) -> None:
         shown = value if len(value) <= _SHOWN_CHARS else f"{value[:_SHOWN_CHARS]}…"
         super().__init__(
-            f"{HEADER}: {problem}; expected * or entity tags in double quotes as the ETag "
+            f"{header}: {problem}; expected * or entity tags in double quotes as the ETag "
             f'header sends them, such as "0123456789abcdef", got {shown!r}.',
-            field=HEADER,
+            field=header,
         )
+
+
+class NotModified(Exception):  # noqa: N818 - a 304 answer, not an error
+    """The client's copy is current: answer 304 with this ETag and no body."""
+
+    def __init__(self, etag: str) -> None:
+        super().__init__(etag)
+        self.etag = etag
 
 
 class PreconditionFailedError(StaleVersionError):
@@ -89,6 +106,28 @@ class PreconditionFailedError(StaleVersionError):
         return {"ETag": entity_tag(fingerprint(self.current))}
 
 
+def _entity_tags(text: str, header: str) -> list[tuple[bool, str]]:
+    """Each (weak, opaque tag) of a comma-separated list of entity tags; * is handled before."""
+    tags: list[tuple[bool, str]] = []
+    pos = 0
+    while pos < len(text):
+        if text[pos] in " \t,":
+            pos += 1
+            continue
+        found = _ENTITY_TAG.match(text, pos)
+        if found is None:
+            problem = "* must stand alone" if text[pos] == "*" else "not an entity tag"
+            raise BadIfMatchError(text, problem, header)
+        tags.append((bool(found.group(1)), found.group(2)))
+        pos = found.end()
+        rest = text[pos:].lstrip(" \t")
+        if rest and not rest.startswith(","):
+            raise BadIfMatchError(text, "entity tags must be separated by commas", header)
+    if not tags:
+        raise BadIfMatchError(text, "no entity tag", header)
+    return tags
+
+
 def parse_if_match(values: list[str]) -> tuple[frozenset[str] | None, bool]:
     """The strong tags an If-Match asks for (None: no condition) and whether it held weak ones.
 
@@ -99,28 +138,24 @@ def parse_if_match(values: list[str]) -> tuple[frozenset[str] | None, bool]:
     text = ", ".join(values)
     if text.strip(" \t") == "*":
         return None, False
-    strong: set[str] = set()
-    weak = False
-    pos = 0
-    while pos < len(text):
-        if text[pos] in " \t,":
-            pos += 1
-            continue
-        found = _ENTITY_TAG.match(text, pos)
-        if found is None:
-            problem = "* must stand alone" if text[pos] == "*" else "not an entity tag"
-            raise BadIfMatchError(text, problem)
-        if found.group(1):
-            weak = True
-        else:
-            strong.add(found.group(2))
-        pos = found.end()
-        rest = text[pos:].lstrip(" \t")
-        if rest and not rest.startswith(","):
-            raise BadIfMatchError(text, "entity tags must be separated by commas")
-    if not strong and not weak:
-        raise BadIfMatchError(text, "no entity tag")
-    return frozenset(strong), weak
+    tags = _entity_tags(text, HEADER)
+    strong = frozenset(tag for weak, tag in tags if not weak)
+    return strong, len(strong) < len(tags)
+
+
+def none_match(values: list[str], etag: str) -> bool:
+    """Whether If-None-Match holds `etag` (quoted, as sent) or is *: the copy is current.
+
+    Weak comparison: W/"x" and "x" name the same copy (a proxy that compresses may weaken
+    the tag it passes on). No header never matches; a malformed one is BadIfMatchError.
+    """
+    if not values:
+        return False
+    text = ", ".join(values)
+    if text.strip(" \t") == "*":
+        return True
+    current = etag.removeprefix("W/").strip('"')
+    return any(tag == current for _, tag in _entity_tags(text, NONE_MATCH_HEADER))
 
 
 class ETagged:
@@ -143,8 +178,33 @@ class Precondition(ETagged):
         self.weak = weak
 
 
+class ConditionalRead(ETagged):
+    """A single-row GET: tagged as usual, 304 when If-None-Match holds the current tag."""
+
+    def __init__(self, response: Response, if_none_match: list[str]) -> None:
+        super().__init__(response)
+        self._if_none_match = if_none_match
+
+    def __call__(self, body: TaggedT) -> TaggedT:
+        if none_match(self._if_none_match, body.etag):
+            raise NotModified(body.etag)
+        return super().__call__(body)
+
+
 def etagged(response: Response) -> ETagged:
     return ETagged(response)
+
+
+def conditional_read(
+    request: Request,
+    response: Response,
+    if_none_match_header: Annotated[
+        str | None, Header(alias=NONE_MATCH_HEADER, description=IF_NONE_MATCH_READ_HELP)
+    ] = None,
+) -> ConditionalRead:
+    values = request.headers.getlist(NONE_MATCH_HEADER)
+    none_match(values, '""')  # a malformed header is refused before any work (400)
+    return ConditionalRead(response, values)
 
 
 def if_match(
@@ -204,6 +264,7 @@ def create_only(
 
 
 ETagDep = Annotated[ETagged, Depends(etagged)]
+ConditionalReadDep = Annotated[ConditionalRead, Depends(conditional_read)]
 CreateOnlyDep = Annotated[bool, Depends(create_only)]
 IfMatchDep = Annotated[Precondition, Depends(if_match)]
 
@@ -230,6 +291,19 @@ _PRECONDITION_ERRORS: dict[int | str, dict[str, Any]] = {
 }
 
 TAGGED: dict[int | str, dict[str, Any]] = {200: {"headers": _ETAG_HEADER}}
+TAGGED_READ: dict[int | str, dict[str, Any]] = {
+    **TAGGED,
+    304: {
+        "description": f"Not Modified: the {NONE_MATCH_HEADER} sent holds the current ETag "
+        "(or is *). No body; the ETag header repeats the tag.",
+        "headers": _ETAG_HEADER,
+    },
+    400: {
+        "model": BadRequestBody,
+        "description": f"The {NONE_MATCH_HEADER} header is malformed "
+        f"(detail.field is {NONE_MATCH_HEADER}).",
+    },
+}
 TAGGED_CREATED: dict[int | str, dict[str, Any]] = {201: {"headers": _ETAG_HEADER}}
 CONDITIONAL: dict[int | str, dict[str, Any]] = {**TAGGED, **_PRECONDITION_ERRORS}
 CONDITIONAL_DELETE: dict[int | str, dict[str, Any]] = dict(_PRECONDITION_ERRORS)

@@ -22,6 +22,7 @@ from server.deps import SessionDep, TemplatesDep
 from server.planning.compare import single_curve_chart
 from server.planning.published_view import published_view_of
 from server.planning.snapshots import view_of
+from server.routes.preconditions import BadIfMatchError, none_match
 from server.store import plans as store
 
 router = APIRouter(include_in_schema=False)
@@ -41,6 +42,14 @@ PUBLISHED_HEADERS = {
 }
 
 
+def _still_current(request: Request, etag: str) -> bool:
+    """The browser's copy is this page (a malformed If-None-Match is just no match here)."""
+    try:
+        return none_match(request.headers.getlist("If-None-Match"), etag)
+    except BadIfMatchError:
+        return False
+
+
 def _page(
     templates: TemplatesDep,
     request: Request,
@@ -54,7 +63,7 @@ def _page(
     headers = dict(PUBLISHED_HEADERS)
     if status_code == 200:
         headers["ETag"] = etag
-        if request.headers.get("if-none-match") == etag:
+        if _still_current(request, etag):
             return Response(status_code=304, headers=headers)
     return Response(body, status_code=status_code, media_type="text/html", headers=headers)
 

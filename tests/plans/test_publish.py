@@ -77,6 +77,14 @@ def test_published_page_is_frozen_read_only_and_leads_nowhere(
     not_modified = other_browser.get(link["url"], headers={"If-None-Match": again.headers["etag"]})
     assert not_modified.status_code == 304
     assert not_modified.content == b""
+    # A proxy that compresses may weaken the tag (W/); a garbled header is just no match.
+    weakened = other_browser.get(
+        link["url"], headers={"If-None-Match": f"W/{again.headers['etag']}"}
+    )
+    assert weakened.status_code == 304
+    garbled = other_browser.get(link["url"], headers={"If-None-Match": "not a tag"})
+    assert garbled.status_code == 200
+    assert garbled.content == response.content
 
 
 def test_published_page_never_solves_or_reads_live_data(
