@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any, TypeVar
 
 from sqlalchemy.exc import IntegrityError
@@ -68,19 +68,34 @@ def get_or_404(session: Session, model: type[RowT], row_id: int | None, label: s
     return row
 
 
-def commit_or_conflict(session: Session, message: str, field: str) -> None:
+# Looks the rows a write refers to up again (raising NotFoundError for one that is gone).
+Recheck = Callable[[Session], object] | None
+
+
+def _refused(session: Session, message: str, field: str, recheck: Recheck) -> ConflictError:
+    """The refusal of a write the database turned down; nothing of it is stored.
+
+    A row it refers to may have been deleted by another writer since the write looked it up
+    (a foreign key, not a clash): `recheck` then raises the NotFoundError the same request
+    gets once the deletion is done, rather than a clash message that is not true.
+    """
+    session.rollback()
+    if recheck is not None:
+        recheck(session)
+    return ConflictError(message, field=field)
+
+
+def commit_or_conflict(session: Session, message: str, field: str, recheck: Recheck = None) -> None:
     """Commit; a unique-constraint clash becomes a ConflictError and nothing is stored."""
     try:
         session.commit()
     except IntegrityError as exc:
-        session.rollback()
-        raise ConflictError(message, field=field) from exc
+        raise _refused(session, message, field, recheck) from exc
 
 
-def flush_or_conflict(session: Session, message: str, field: str) -> None:
+def flush_or_conflict(session: Session, message: str, field: str, recheck: Recheck = None) -> None:
     """Flush (to learn a new row's id before its audit entry); a clash becomes a ConflictError."""
     try:
         session.flush()
     except IntegrityError as exc:
-        session.rollback()
-        raise ConflictError(message, field=field) from exc
+        raise _refused(session, message, field, recheck) from exc

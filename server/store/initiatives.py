@@ -190,10 +190,16 @@ def refused_title_clash(
     session is rolled back (nothing of this transaction stays) and the check runs again, so
     the refusal is the one the check gives when it sees the clash first (should the other row
     be gone again by then, the titles of the first place are named). An IntegrityError of
-    another constraint is raised again as it was.
+    another constraint is a NotFoundError when the team or period went meanwhile, else raised
+    again as it was.
     """
     session.rollback()
     if not _is_title_index(exc):
+        # A team or period deleted since the write looked it up: the 404 of asking again.
+        for team_id, period_id, _ in wanted[:1]:
+            get_or_404(session, Team, team_id, "team")
+            if period_id is not None:
+                get_or_404(session, Period, period_id, "period")
         raise exc
     refusal = title_clash(session, wanted, ignore_id=ignore_id)
     if refusal is not None:

@@ -364,7 +364,12 @@ def set_capacity_settings(
     after = _settings_values(db_row)
     session.add(db_row)
     message = "Capacity settings changed at the same time; try again."
-    flush_or_conflict(session, message, "team_id")
+
+    def team_and_period_still_there(again: Session) -> None:
+        get_or_404(again, Team, team_id, "team")
+        get_period(again, period_id=period_id)
+
+    flush_or_conflict(session, message, "team_id", team_and_period_still_there)
     if before != after:
         audit.record(
             session,
@@ -378,6 +383,6 @@ def set_capacity_settings(
             before=before,
             after=after,
         )
-    commit_or_conflict(session, message, "team_id")
+    commit_or_conflict(session, message, "team_id", team_and_period_still_there)
     session.refresh(db_row)
     return db_row

@@ -37,8 +37,10 @@ from server.store import audit
 from server.store._common import (
     BasedOn,
     and_list,
+    commit_or_conflict,
     fingerprint,
     first_named,
+    flush_or_conflict,
     get_or_404,
     refuse_if_changed,
 )
@@ -103,7 +105,13 @@ def create_scenario(
         created_by=current_actor.get() or actor,
     )
     session.add(db_scenario)
-    session.flush()
+    message = "The scenario could not be stored; try again."
+
+    def team_and_period_still_there(again: Session) -> None:
+        get_team(again, team_id=team_id)
+        get_period(again, period_id=period_id)
+
+    flush_or_conflict(session, message, "team_id", team_and_period_still_there)
     audit.record(
         session,
         actor=actor,
@@ -115,7 +123,7 @@ def create_scenario(
         after={"name": name, "changes": changes},
     )
     if commit:
-        session.commit()
+        commit_or_conflict(session, message, "team_id", team_and_period_still_there)
         session.refresh(db_scenario)
     return db_scenario
 

@@ -330,7 +330,11 @@ def create_member(session: Session, *, member_in: MemberCreate, actor: str = "")
     db_member = Member(**member_in.model_dump())
     session.add(db_member)
     message = "This team already has a member with that name."
-    flush_or_conflict(session, message, "name")
+
+    def team_still_there(again: Session) -> None:
+        get_team(again, team_id=member_in.team_id)
+
+    flush_or_conflict(session, message, "name", team_still_there)
     audit.record(
         session,
         actor=actor,
@@ -342,7 +346,7 @@ def create_member(session: Session, *, member_in: MemberCreate, actor: str = "")
         f"({_share(db_member.allocation)})",
         after=_member_values(db_member),
     )
-    commit_or_conflict(session, message, "name")
+    commit_or_conflict(session, message, "name", team_still_there)
     session.refresh(db_member)
     return db_member
 
@@ -537,7 +541,12 @@ def set_availability(
     db_row.allocation = availability_in.allocation
     session.add(db_row)
     message = "Availability for this member and period already exists."
-    flush_or_conflict(session, message, "member_id")
+
+    def member_and_period_still_there(again: Session) -> None:
+        get_member(again, member_id=availability_in.member_id)
+        get_or_404(again, Period, availability_in.period_id, "period")
+
+    flush_or_conflict(session, message, "member_id", member_and_period_still_there)
     after = _availability_values(db_row)
     if before != after:
         _record_availability(
@@ -548,7 +557,7 @@ def set_availability(
             after=after,
             actor=actor,
         )
-    commit_or_conflict(session, message, "member_id")
+    commit_or_conflict(session, message, "member_id", member_and_period_still_there)
     session.refresh(db_row)
     return db_row
 
