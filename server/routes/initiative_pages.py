@@ -176,6 +176,7 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
         "periods": period_store.list_periods(session),
         "states": INITIATIVE_STATES,
         "candidates": [r for r in others if r.row.id != row.id],
+        "team_names": names,
         "form": stored | {"version": str(row.version)},
         "shown": stored,  # the stored values the form is based on (`shown_<field>`)
         "errors": {},

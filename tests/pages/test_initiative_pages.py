@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from dataclasses import dataclass
 from typing import Any
 
@@ -501,3 +502,48 @@ def test_a_refused_add_opens_on_the_summary_and_a_good_page_has_none(
     assert response.status_code == 422
     links = _summary_links(response.text)
     assert links["#f-value"] == "Value score: Enter a number."
+
+
+def _needs_choices(html: str) -> dict[str, tuple[str, bool]]:
+    """The Needs tick boxes: value -> (label text, ticked)."""
+    group = parse_html(html).by_id("f-needs")
+    assert group.tag == "fieldset"
+    return {
+        box.get("value") or "": (" ".join(label.text().split()), "checked" in box.attrs)
+        for label in group.find_all("label")
+        for box in label.find_all("input")
+    }
+
+
+def test_needs_are_tick_boxes_that_tell_one_title_apart_by_period_and_team(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    # One plain click on a multiple select drops every other choice; tick boxes keep them.
+    harbour = session.get(Team, stored.team)
+    assert harbour is not None
+    sprint_2 = make_period(session, "Sprint 2", dt.date(2027, 3, 15), dt.date(2027, 3, 26))
+    again = make_initiative(session, harbour, sprint_2, "Quay wall", effort=2)
+    beacons = make_team(session, "Beacons")
+    beacon = make_initiative(session, beacons, None, "Beacon", effort=1, needs=[stored.quay])
+    choices = _needs_choices(form_client.get(f"/initiatives/{beacon.row.id}/edit").text)
+    assert choices[str(stored.quay)] == ("Quay wall · Sprint 1 · Harbour", True)
+    assert str(again.row.id) not in choices  # another team's work is offered only when needed
+    own = _needs_choices(form_client.get(f"/initiatives/{stored.crane}/edit").text)
+    assert own[str(stored.quay)] == ("Quay wall · Sprint 1", True)
+    assert own[str(again.row.id)] == ("Quay wall · Sprint 2", False)
+    # Two ticked boxes arrive as two values, and both are stored.
+    url = f"/initiatives/{stored.crane}"
+    form = Form(parse(form_client.get(f"{url}/edit").text), url)
+    data = {
+        name: form.value(name)
+        for name in ("title", "effort.likely", "effort.low", "effort.high", "value", "state")
+    }
+    data |= {
+        "period_id": str(stored.period),
+        "version": "2",
+        "confidence": "80",
+        "either_or": "Lifting",
+        "needs": [str(stored.quay), str(again.row.id)],
+    }
+    assert _post(form_client, url, data).status_code == 303
+    assert sorted(_record(session, stored.crane).needs) == sorted([stored.quay, again.row.id])
