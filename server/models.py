@@ -69,7 +69,9 @@ class Member(SQLModel, table=True):
     )
 
     id: int | None = Field(default=None, primary_key=True)
-    team_id: int = _fk("team.id", "CASCADE")
+    # RESTRICT, as for every row below that goes with its team, member or period: the store
+    # deletes it itself after listing it in the audit entry (migration 0006).
+    team_id: int = _fk("team.id", "RESTRICT")
     name: str = Field(max_length=NAME_MAX)
     # Share of the member's working time that belongs to this team (0 < share <= 1).
     allocation: float = Field(default=1.0)
@@ -95,7 +97,7 @@ class Availability(SQLModel, table=True):
     __table_args__ = (UniqueConstraint("member_id", "period_id", name="uq_availability"),)
 
     id: int | None = Field(default=None, primary_key=True)
-    member_id: int = _fk("member.id", "CASCADE")
+    member_id: int = _fk("member.id", "RESTRICT")
     # RESTRICT: a period is deleted only once nothing refers to it (store.periods.delete_period).
     period_id: int = _fk("period.id", "RESTRICT")
     days_off: float = Field(default=0.0)
@@ -109,8 +111,8 @@ class CapacitySettings(SQLModel, table=True):
     __table_args__ = (UniqueConstraint("team_id", "period_id", name="uq_capacity_settings"),)
 
     id: int | None = Field(default=None, primary_key=True)
-    team_id: int = _fk("team.id", "CASCADE")
-    period_id: int = _fk("period.id", "CASCADE")
+    team_id: int = _fk("team.id", "RESTRICT")
+    period_id: int = _fk("period.id", "RESTRICT")
     focus_factor: float = Field(default=0.7)
     reserve_pct: float = Field(default=15.0)
 
@@ -206,7 +208,7 @@ class Scenario(SQLModel, table=True):
 
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=TITLE_MAX)
-    team_id: int = _fk("team.id", "CASCADE")
+    team_id: int = _fk("team.id", "RESTRICT")
     period_id: int = _fk("period.id", "RESTRICT")
     # The what-if settings, as planning.plans.PlanOptions fields (JSON-ready).
     changes: dict[str, Any] = Field(default_factory=dict, sa_column=Column(JSON, nullable=False))

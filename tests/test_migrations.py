@@ -308,3 +308,73 @@ def _delete_the_newest_initiative_and_add_two(engine: Engine) -> tuple[int, int]
             )
         )
     return after, newest
+
+
+def _team_with_belongings(engine: Engine) -> None:
+    """Team 3 with a member (days off in period 1), capacity settings in a period 2 that
+    nothing else uses, and a scenario."""
+    with engine.begin() as conn:
+        conn.execute(
+            text(
+                "INSERT INTO team (id, name, default_spread, created_at) "
+                "VALUES (3, 'Quayside', 0, '2026-01-01')"
+            )
+        )
+        conn.execute(
+            text("INSERT INTO member (id, team_id, name, allocation) VALUES (30, 3, 'Ola', 1)")
+        )
+        conn.execute(
+            text("INSERT INTO availability (member_id, period_id, days_off) VALUES (30, 1, 2)")
+        )
+        conn.execute(
+            text(
+                "INSERT INTO period (id, name, kind, start_date, end_date, weekmask, "
+                "non_working_dates) VALUES "
+                "(2, 'Sprint 2', 'sprint', '2027-03-15', '2027-03-26', '1111100', '[]')"
+            )
+        )
+        conn.execute(
+            text(
+                "INSERT INTO capacity_settings (team_id, period_id, focus_factor, reserve_pct) "
+                "VALUES (3, 2, 0.7, 15)"
+            )
+        )
+        conn.execute(
+            text(
+                "INSERT INTO scenario (id, name, team_id, period_id, changes, created_at, "
+                "created_by) VALUES (30, 'Lean', 3, 1, '{}', '2026-01-01', '')"
+            )
+        )
+
+
+def test_0006_keeps_what_goes_with_a_team_from_going_unlisted(empty_settings: Settings) -> None:
+    """Members, days off, capacity settings and scenarios went with their team, member or
+    period by ON DELETE CASCADE, so one added while the store listed them went unlisted."""
+    migrate.upgrade(empty_settings, "0002")
+    _insert_at_0002(empty_settings)
+    migrate.upgrade(empty_settings)
+    engine = make_engine(empty_settings)
+    try:
+        _team_with_belongings(engine)
+        for statement in (
+            "DELETE FROM team WHERE id = 3",  # its member, settings and scenario hold it
+            "DELETE FROM member WHERE id = 30",  # its days off hold it
+            "DELETE FROM period WHERE id = 2",  # team 3's capacity settings hold it
+        ):
+            with pytest.raises(IntegrityError), engine.begin() as conn:
+                conn.execute(text(statement))
+    finally:
+        engine.dispose()
+    tables = ("member", "availability", "scenario", "capacity_settings")
+    assert [_count(empty_settings, t) for t in tables] == [1, 1, 1, 1]
+    migrate.downgrade(empty_settings, "0005")  # the cascades are back
+    engine = make_engine(empty_settings)
+    try:
+        with engine.begin() as conn:
+            conn.execute(text("DELETE FROM team WHERE id = 3"))
+            conn.execute(text("DELETE FROM period WHERE id = 2"))
+    finally:
+        engine.dispose()
+    assert [_count(empty_settings, t) for t in tables] == [0, 0, 0, 0]
+    migrate.upgrade(empty_settings)
+    assert _revision(empty_settings) == _head()

@@ -266,6 +266,12 @@ def _refuse_period_delete(session: Session, db_period: Period) -> None:
         raise refusal
 
 
+def _settings_in(session: Session, period_id: int) -> list[CapacitySettings]:
+    return list(
+        session.exec(select(CapacitySettings).where(CapacitySettings.period_id == period_id))
+    )
+
+
 def delete_period(
     session: Session, *, period_id: int, actor: str = "", based_on: BasedOn = None
 ) -> None:
@@ -274,14 +280,13 @@ def delete_period(
     Initiatives, availability entries, scenarios and saved plans refer to it through foreign
     keys ON DELETE RESTRICT, so the database refuses too when another writer adds one between
     the check and the commit; the refusal is the same. The teams' capacity settings of the
-    period go with it; the audit entry keeps them. `based_on`: see `refuse_if_changed`.
+    period go with it; the audit entry keeps them (settings stored meanwhile are refused the
+    same way: that key is RESTRICT too). `based_on`: see `refuse_if_changed`.
     """
     db_period = get_period(session, period_id=period_id)
     _refuse_if_period_changed(db_period, based_on)
     _refuse_period_delete(session, db_period)
-    settings = list(
-        session.exec(select(CapacitySettings).where(CapacitySettings.period_id == period_id))
-    )
+    settings = _settings_in(session, period_id)
     audit.record(
         session,
         actor=actor,
@@ -301,16 +306,23 @@ def delete_period(
             ],
         },
     )
-    for row in settings:
-        session.delete(row)
-    session.delete(db_period)
     try:
+        for row in settings:
+            session.delete(row)
+        session.flush()  # before the period: its key is RESTRICT
+        session.delete(db_period)
         session.commit()
     except IntegrityError as exc:  # another writer made a row that refers to the period
         session.rollback()
-        refusal = period_delete_refusal(session, get_period(session, period_id=period_id))
-        if refusal is None:
-            raise
+        db_period = get_period(session, period_id=period_id)
+        refusal = period_delete_refusal(session, db_period)
+        if refusal is None:  # capacity settings stored since they were listed (RESTRICT)
+            refusal = ConflictError(
+                f"Period “{db_period.name}” was changed while it was being deleted: a team's "
+                "focus factor and reserve were set for it. Nothing was deleted; look at the "
+                "period again and delete it again if it should still go.",
+                field="period_id",
+            )
         raise refusal from exc
 
 

@@ -2,14 +2,16 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
 from sqlalchemy.exc import IntegrityError
-from sqlmodel import Session, col, func, select
+from sqlmodel import Session, col, delete, func, select
 
 from server.errors import AlreadyStoredError, ConflictError, InputError
 from server.models import (
     Availability,
+    CapacitySettings,
     EffortLine,
     Initiative,
     Member,
@@ -183,6 +185,49 @@ def _owned(session: Session, team_id: int) -> list[Initiative]:
     return list(session.exec(select(Initiative).where(Initiative.team_id == team_id)))
 
 
+@dataclass(frozen=True)
+class _Belongings:
+    """The rows that go with a team: its members and their days-off rows, its capacity
+    settings and its scenarios (the store deletes them; their foreign keys are RESTRICT)."""
+
+    members: list[Member]
+    availability: list[Availability]
+    settings: list[CapacitySettings]
+    scenarios: list[Scenario]
+
+    def delete(self, session: Session) -> None:
+        """Delete exactly the rows listed, those that refer to others first (days off to
+        members, members to the team): a row added since stays, and holds its key."""
+        for model, rows in (
+            (Availability, self.availability),
+            (Member, self.members),
+            (CapacitySettings, self.settings),
+            (Scenario, self.scenarios),
+        ):
+            if rows:
+                ids = [row.id for row in rows]
+                session.exec(delete(model).where(col(model.id).in_(ids)))
+
+
+def _belongings(session: Session, team_id: int) -> _Belongings:
+    members = list_members(session, team_id=team_id)
+    member_ids = [m.id for m in members]
+    return _Belongings(
+        members=members,
+        availability=list(
+            session.exec(
+                select(Availability)
+                .where(col(Availability.member_id).in_(member_ids))
+                .order_by(Availability.member_id, Availability.period_id)
+            )
+        ),
+        settings=list(
+            session.exec(select(CapacitySettings).where(CapacitySettings.team_id == team_id))
+        ),
+        scenarios=list(session.exec(select(Scenario).where(Scenario.team_id == team_id))),
+    )
+
+
 def delete_team(
     session: Session,
     *,
@@ -195,20 +240,22 @@ def delete_team(
 
     Refused in any case while another team's initiative needs one of the team's initiatives
     or carries effort for the team: the database would drop that need or effort line from an
-    initiative nobody asked to change. The database refuses too (initiative.team_id,
-    effort_line.team_id and initiative_need.needed_id are ON DELETE RESTRICT) when another
-    writer makes such a row between the check and the commit; the refusal is then the same,
-    or, for initiatives added meanwhile, says the team changed. `based_on`: see
-    `refuse_if_changed`.
+    initiative nobody asked to change. Its members (with their days off), capacity settings
+    and scenarios go with it, each listed in the audit entry. The database refuses too (every
+    foreign key to the team or a member is ON DELETE RESTRICT) when another writer makes such
+    a row between the check and the commit; the refusal is then the same, or says what was
+    added meanwhile. `based_on`: see `refuse_if_changed`.
     """
     db_team = get_team(session, team_id=team_id)
     _refuse_if_team_changed(db_team, based_on)
     owned = _owned(session, team_id)
     _refuse_team_delete(session, db_team, owned, with_initiatives=with_initiatives)
-    members = list_members(session, team_id=team_id)
-    scenarios = session.exec(select(Scenario).where(Scenario.team_id == team_id)).all()
-    # The database cascades members, availability, capacity settings and scenarios; the entry
-    # keeps what went with the team (the initiatives' own values are in their earlier entries).
+    belongings = _belongings(session, team_id)
+    days_off: dict[int | None, list[dict[str, Any]]] = {m.id: [] for m in belongings.members}
+    for row in belongings.availability:
+        days_off[row.member_id].append(_availability_values(row) | {"period_id": row.period_id})
+    # The entry keeps what went with the team (the initiatives' own values are in their
+    # earlier entries).
     audit.record(
         session,
         actor=actor,
@@ -216,12 +263,24 @@ def delete_team(
         entity="team",
         entity_id=team_id,
         team_id=team_id,
-        summary=f"Deleted team “{db_team.name}”" + _gone_with(len(owned), len(scenarios)),
+        summary=f"Deleted team “{db_team.name}”"
+        + _gone_with(len(owned), len(belongings.scenarios)),
         before=_team_values(db_team)
         | {
-            "members": [{"name": m.name, "allocation": m.allocation} for m in members],
+            "members": [
+                {"name": m.name, "allocation": m.allocation, "availability": days_off[m.id]}
+                for m in belongings.members
+            ],
             "initiatives": [{"id": i.id, "title": i.title} for i in owned],
-            "scenarios": [{"name": s.name, "changes": s.changes} for s in scenarios],
+            "scenarios": [{"name": s.name, "changes": s.changes} for s in belongings.scenarios],
+            "capacity_settings": [
+                {
+                    "period_id": row.period_id,
+                    "focus_factor": row.focus_factor,
+                    "reserve_pct": row.reserve_pct,
+                }
+                for row in belongings.settings
+            ],
         },
     )
     # Only initiatives asked for go: any the team has without that, the database refuses.
@@ -232,6 +291,7 @@ def delete_team(
         for db_initiative in doomed:
             session.delete(db_initiative)
         session.flush()
+        belongings.delete(session)
         session.delete(db_team)
         session.commit()
     except IntegrityError as exc:  # another writer made a row that needs the team
@@ -241,21 +301,42 @@ def delete_team(
             session, db_team, _owned(session, team_id), with_initiatives=with_initiatives
         )
         if refusal is None:
+            added = _added_meanwhile(session, team_id, owned_ids, belongings)
             refusal = ConflictError(
-                f"Team “{db_team.name}” was changed while it was being deleted: "
-                f"{_added_meanwhile(session, team_id, owned_ids)}. Nothing was deleted; look at "
-                "the team again and delete it again if it should still go.",
+                f"Team “{db_team.name}” was changed while it was being deleted: {added}. "
+                "Nothing was deleted; look at the team again and delete it again if it should "
+                "still go.",
                 field="team_id",
             )
         raise refusal from exc
 
 
-def _added_meanwhile(session: Session, team_id: int, owned_ids: list[int]) -> str:
+def _added_meanwhile(
+    session: Session, team_id: int, owned_ids: list[int], listed: _Belongings
+) -> str:
     """What the team gained since its deletion was checked, in words."""
-    added = [row for row in _owned(session, team_id) if row.id not in set(owned_ids)]
+    known = set(owned_ids)
+    added = [quoted(row.title) for row in _owned(session, team_id) if row.id not in known]
+    now = _belongings(session, team_id)
+    members = {m.id: m.name for m in now.members}
+    had = {
+        "members": {m.id for m in listed.members},
+        "availability": {r.id for r in listed.availability},
+        "settings": {r.id for r in listed.settings},
+        "scenarios": {r.id for r in listed.scenarios},
+    }
+    added += [f"member {m.name}" for m in now.members if m.id not in had["members"]]
+    added += [
+        f"days off of {members.get(r.member_id, 'a member')}"
+        for r in now.availability
+        if r.id not in had["availability"]
+    ]
+    if any(r.id not in had["settings"] for r in now.settings):
+        added.append("capacity settings")
+    added += [f"scenario {quoted(r.name)}" for r in now.scenarios if r.id not in had["scenarios"]]
     if not added:
-        return "someone else changed its initiatives"
-    named = and_list(first_named([quoted(row.title) for row in added]))
+        return "someone else changed its initiatives or members"
+    named = and_list(first_named(added))
     return f"{named} {'was' if len(added) == 1 else 'were'} added to it"
 
 
@@ -394,18 +475,23 @@ def update_member(
     return db_member
 
 
+def _days_off_rows(session: Session, member_id: int) -> list[Availability]:
+    return list(session.exec(select(Availability).where(Availability.member_id == member_id)))
+
+
 def delete_member(
     session: Session, *, member_id: int, actor: str = "", based_on: BasedOn = None
 ) -> None:
-    """Remove a member and their availability; `based_on`: see `refuse_if_changed`."""
+    """Remove a member and their availability; `based_on`: see `refuse_if_changed`.
+
+    The days-off rows go first, each listed in the entry; one recorded by another writer
+    meanwhile makes the database refuse (availability.member_id is RESTRICT): nothing goes.
+    """
     db_member = get_member(session, member_id=member_id)
     _refuse_if_member_changed(db_member, based_on)
     team_name = get_team(session, team_id=db_member.team_id).name
-    # The database cascades the member's availability; the entry keeps it, as days.
-    kept = [
-        {"period_id": row.period_id, "days_off": row.days_off, "allocation": row.allocation}
-        for row in session.exec(select(Availability).where(Availability.member_id == member_id))
-    ]
+    rows = _days_off_rows(session, member_id)
+    kept = [_availability_values(row) | {"period_id": row.period_id} for row in rows]
     audit.record(
         session,
         actor=actor,
@@ -416,8 +502,20 @@ def delete_member(
         summary=f"Removed member “{db_member.name}” from team “{team_name}”",
         before=_member_values(db_member) | {"availability": kept},
     )
-    session.delete(db_member)
-    session.commit()
+    try:
+        for row in rows:
+            session.delete(row)
+        session.flush()
+        session.delete(db_member)
+        session.commit()
+    except IntegrityError as exc:  # days off recorded for the member since they were listed
+        session.rollback()
+        raise ConflictError(
+            f"{possessive(db_member.name)} days off were recorded while they were being "
+            "removed. Nothing was removed; look at the team again and remove them again if "
+            "they should still go.",
+            field="member_id",
+        ) from exc
 
 
 def list_availability(

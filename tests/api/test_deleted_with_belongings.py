@@ -1,0 +1,159 @@
+"""What goes with a deleted team, member or period is listed in its audit entry and deleted
+by the store; a row another writer adds between that listing and the commit makes the whole
+deletion refused (the foreign keys are RESTRICT), never taken along unlisted."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+import pytest
+from fastapi import FastAPI
+from sqlmodel import Session, func, select
+
+from server.errors import ConflictError
+from server.models import AuditEntry, Availability, CapacitySettings, Member, Period, Scenario, Team
+from server.schemas import AvailabilityCreate, CapacitySettingsIn, MemberCreate
+from server.store import periods as period_store
+from server.store import plans as plan_store
+from server.store import teams as team_store
+from tests.api.conftest import Workspace
+from tests.factories import make_period
+
+
+def _count(session: Session, model: Any, **where: int) -> int:
+    session.expire_all()
+    query = select(func.count()).select_from(model)
+    for column, value in where.items():
+        query = query.where(getattr(model, column) == value)
+    return int(session.exec(query).one())
+
+
+def _entries(session: Session, action: str) -> list[AuditEntry]:
+    session.expire_all()
+    return list(session.exec(select(AuditEntry).where(AuditEntry.action == action)))
+
+
+def _after_listing(
+    monkeypatch: pytest.MonkeyPatch,
+    module: object,
+    name: str,
+    app: FastAPI,
+    write: Callable[[Session], object],
+) -> None:
+    """Patch the listing `module.name`: list as usual, then another writer commits `write`."""
+    original = getattr(module, name)
+
+    def list_then_lose_the_race(*args: Any, **kwargs: Any) -> Any:
+        listed = original(*args, **kwargs)
+        monkeypatch.setattr(module, name, original)
+        with Session(app.state.engine) as other:
+            write(other)
+        return listed
+
+    monkeypatch.setattr(module, name, list_then_lose_the_race)
+
+
+def test_a_team_goes_with_everything_it_had_listed_in_its_entry(
+    session: Session, workspace: Workspace
+) -> None:
+    plan_store.create_scenario(
+        session, team_id=workspace.team, period_id=workspace.period, name="Lean", changes={}
+    )
+    team_store.delete_team(session, team_id=workspace.team, with_initiatives=True)
+    for model, column in (
+        (Member, "team_id"),
+        (CapacitySettings, "team_id"),
+        (Scenario, "team_id"),
+    ):
+        assert _count(session, model, **{column: workspace.team}) == 0
+    assert _count(session, Availability, member_id=workspace.member) == 0
+    (entry,) = _entries(session, "team.delete")
+    before = entry.before or {}
+    assert before["members"] == [
+        {
+            "name": "Ola",
+            "allocation": 1.0,
+            "availability": [{"period_id": workspace.period, "days_off": 2.0, "allocation": None}],
+        }
+    ]
+    assert before["capacity_settings"] == [
+        {"period_id": workspace.period, "focus_factor": 0.7, "reserve_pct": 15.0}
+    ]
+    assert [s["name"] for s in before["scenarios"]] == ["Lean"]
+
+
+@pytest.mark.parametrize("added", ["member", "scenario"])
+def test_a_row_added_to_the_team_while_it_is_deleted_keeps_the_team(
+    app: FastAPI,
+    session: Session,
+    workspace: Workspace,
+    monkeypatch: pytest.MonkeyPatch,
+    added: str,
+) -> None:
+    def add(other: Session) -> None:
+        if added == "member":
+            member_in = MemberCreate(team_id=workspace.team, name="Noor")
+            team_store.create_member(other, member_in=member_in)
+        else:
+            plan_store.create_scenario(
+                other, team_id=workspace.team, period_id=workspace.period, name="Lean", changes={}
+            )
+
+    _after_listing(monkeypatch, team_store, "_belongings", app, add)
+    with pytest.raises(ConflictError) as refused:
+        team_store.delete_team(session, team_id=workspace.team, with_initiatives=True)
+    said = "member Noor was added" if added == "member" else "scenario “Lean” was added"
+    assert refused.value.message == (
+        f"Team “Harbour” was changed while it was being deleted: {said} to it. Nothing was "
+        "deleted; look at the team again and delete it again if it should still go."
+    )
+    assert session.get(Team, workspace.team) is not None
+    assert _count(session, Member, team_id=workspace.team) == (2 if added == "member" else 1)
+    assert _count(session, Scenario, team_id=workspace.team) == (1 if added == "scenario" else 0)
+    assert _count(session, Availability, member_id=workspace.member) == 1
+    assert _entries(session, "team.delete") == []
+
+
+def test_days_off_recorded_while_the_member_is_removed_keep_the_member(
+    app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    later = make_period(session, "Sprint 2")
+
+    def record(other: Session) -> None:
+        row = AvailabilityCreate(member_id=workspace.member, period_id=later.id or 0, days_off=1)
+        team_store.set_availability(other, availability_in=row)
+
+    _after_listing(monkeypatch, team_store, "_days_off_rows", app, record)
+    with pytest.raises(ConflictError) as refused:
+        team_store.delete_member(session, member_id=workspace.member)
+    assert refused.value.message.startswith("Ola's days off were recorded while they were")
+    assert session.get(Member, workspace.member) is not None
+    assert _count(session, Availability, member_id=workspace.member) == 2
+    assert _entries(session, "member.delete") == []
+
+
+def test_capacity_settings_stored_while_the_period_is_deleted_keep_the_period(
+    app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    empty = make_period(session, "Sprint 9")
+    empty_id = empty.id or 0
+
+    def store(other: Session) -> None:
+        period_store.set_capacity_settings(
+            other,
+            team_id=workspace.other_team,
+            period_id=empty_id,
+            settings_in=CapacitySettingsIn(focus_factor=0.6, reserve_pct=10),
+        )
+
+    _after_listing(monkeypatch, period_store, "_settings_in", app, store)
+    with pytest.raises(ConflictError) as refused:
+        period_store.delete_period(session, period_id=empty_id)
+    assert refused.value.field == "period_id"
+    assert refused.value.message.startswith(
+        "Period “Sprint 9” was changed while it was being deleted: a team's focus factor"
+    )
+    assert session.get(Period, empty_id) is not None
+    assert _count(session, CapacitySettings, period_id=empty_id) == 1
+    assert _entries(session, "period.delete") == []
