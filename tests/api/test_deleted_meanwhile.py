@@ -5,7 +5,6 @@ message that is not true, and nothing of it stored."""
 from __future__ import annotations
 
 from collections.abc import Callable
-from typing import Any
 
 import pytest
 from fastapi import FastAPI
@@ -25,26 +24,7 @@ from server.store import periods as period_store
 from server.store import plans as plan_store
 from server.store import teams as team_store
 from tests.api.conftest import Workspace
-
-
-def _then_delete(
-    monkeypatch: pytest.MonkeyPatch,
-    module: object,
-    name: str,
-    app: FastAPI,
-    deletion: Callable[[Session], None],
-) -> None:
-    """Patch `module.name` to run as usual, then let another writer commit `deletion`."""
-    original = getattr(module, name)
-
-    def look_up_then_lose_the_race(*args: Any, **kwargs: Any) -> Any:
-        found = original(*args, **kwargs)
-        monkeypatch.setattr(module, name, original)
-        with Session(app.state.engine) as other:
-            deletion(other)
-        return found
-
-    monkeypatch.setattr(module, name, look_up_then_lose_the_race)
+from tests.api.races import then_another_writer
 
 
 def _delete_lighthouse(workspace: Workspace) -> Callable[[Session], None]:
@@ -71,7 +51,7 @@ def _refused(session: Session, write: Callable[[], object], field: str) -> str:
 def test_a_member_added_to_a_team_deleted_meanwhile_is_404_not_a_name_clash(
     app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    _then_delete(
+    then_another_writer(
         monkeypatch, team_store, "_check_member_name_free", app, _delete_lighthouse(workspace)
     )
     member_in = MemberCreate(team_id=workspace.other_team, name="Noor")
@@ -87,7 +67,7 @@ def test_days_off_of_a_member_removed_meanwhile_are_404(
     def remove_ola(other: Session) -> None:
         team_store.delete_member(other, member_id=workspace.member)
 
-    _then_delete(monkeypatch, team_store, "_check_days_off", app, remove_ola)
+    then_another_writer(monkeypatch, team_store, "_check_days_off", app, remove_ola)
     row = AvailabilityCreate(member_id=workspace.member, period_id=workspace.period, days_off=3)
     message = _refused(
         session, lambda: team_store.set_availability(session, availability_in=row), "member_id"
@@ -98,7 +78,7 @@ def test_days_off_of_a_member_removed_meanwhile_are_404(
 def test_capacity_settings_of_a_team_deleted_meanwhile_are_404(
     app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    _then_delete(
+    then_another_writer(
         monkeypatch, period_store, "get_capacity_settings", app, _delete_lighthouse(workspace)
     )
     message = _refused(
@@ -117,7 +97,7 @@ def test_capacity_settings_of_a_team_deleted_meanwhile_are_404(
 def test_a_scenario_of_a_team_deleted_meanwhile_is_404(
     app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    _then_delete(monkeypatch, plan_store, "get_period", app, _delete_lighthouse(workspace))
+    then_another_writer(monkeypatch, plan_store, "get_period", app, _delete_lighthouse(workspace))
     message = _refused(
         session,
         lambda: plan_store.create_scenario(
@@ -135,7 +115,7 @@ def test_a_scenario_of_a_team_deleted_meanwhile_is_404(
 def test_an_initiative_of_a_team_deleted_meanwhile_is_404(
     app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    _then_delete(
+    then_another_writer(
         monkeypatch, initiative_store, "_refuse_title_clashes", app, _delete_lighthouse(workspace)
     )
     initiative_in = InitiativeCreate(

@@ -4,7 +4,6 @@ deletion refused (the foreign keys are RESTRICT), never taken along unlisted."""
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from typing import Any
 
 import pytest
@@ -18,6 +17,7 @@ from server.store import periods as period_store
 from server.store import plans as plan_store
 from server.store import teams as team_store
 from tests.api.conftest import Workspace
+from tests.api.races import then_another_writer
 from tests.factories import make_period
 
 
@@ -32,26 +32,6 @@ def _count(session: Session, model: Any, **where: int) -> int:
 def _entries(session: Session, action: str) -> list[AuditEntry]:
     session.expire_all()
     return list(session.exec(select(AuditEntry).where(AuditEntry.action == action)))
-
-
-def _after_listing(
-    monkeypatch: pytest.MonkeyPatch,
-    module: object,
-    name: str,
-    app: FastAPI,
-    write: Callable[[Session], object],
-) -> None:
-    """Patch the listing `module.name`: list as usual, then another writer commits `write`."""
-    original = getattr(module, name)
-
-    def list_then_lose_the_race(*args: Any, **kwargs: Any) -> Any:
-        listed = original(*args, **kwargs)
-        monkeypatch.setattr(module, name, original)
-        with Session(app.state.engine) as other:
-            write(other)
-        return listed
-
-    monkeypatch.setattr(module, name, list_then_lose_the_race)
 
 
 def test_a_team_goes_with_everything_it_had_listed_in_its_entry(
@@ -100,7 +80,7 @@ def test_a_row_added_to_the_team_while_it_is_deleted_keeps_the_team(
                 other, team_id=workspace.team, period_id=workspace.period, name="Lean", changes={}
             )
 
-    _after_listing(monkeypatch, team_store, "_belongings", app, add)
+    then_another_writer(monkeypatch, team_store, "_belongings", app, add)
     with pytest.raises(ConflictError) as refused:
         team_store.delete_team(session, team_id=workspace.team, with_initiatives=True)
     said = "member Noor was added" if added == "member" else "scenario “Lean” was added"
@@ -124,7 +104,7 @@ def test_days_off_recorded_while_the_member_is_removed_keep_the_member(
         row = AvailabilityCreate(member_id=workspace.member, period_id=later.id or 0, days_off=1)
         team_store.set_availability(other, availability_in=row)
 
-    _after_listing(monkeypatch, team_store, "_days_off_rows", app, record)
+    then_another_writer(monkeypatch, team_store, "_days_off_rows", app, record)
     with pytest.raises(ConflictError) as refused:
         team_store.delete_member(session, member_id=workspace.member)
     assert refused.value.message.startswith("Ola's days off were recorded while they were")
@@ -147,7 +127,7 @@ def test_capacity_settings_stored_while_the_period_is_deleted_keep_the_period(
             settings_in=CapacitySettingsIn(focus_factor=0.6, reserve_pct=10),
         )
 
-    _after_listing(monkeypatch, period_store, "_settings_in", app, store)
+    then_another_writer(monkeypatch, period_store, "_settings_in", app, store)
     with pytest.raises(ConflictError) as refused:
         period_store.delete_period(session, period_id=empty_id)
     assert refused.value.field == "period_id"
