@@ -64,6 +64,8 @@ _LAYOUTS: dict[int, tuple[str, ...]] = {
 _DELIMITERS = (("\t", "tab"), (";", "semicolon"), (",", "comma"))
 _FORMULA = re.compile(r"^(?:[=@]|[+-][A-Za-z_]+\()")
 _DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+\s*$")
+# "2,500" or "1,000,000": a thousands separator as often as a decimal comma; never guessed.
+_THOUSANDS_LIKE = re.compile(r"^\s*[+-]?\d{1,3}(?:,\d{3})+\s*$")
 
 
 @dataclass(frozen=True)
@@ -81,6 +83,19 @@ class PastedRow:
     @property
     def ok(self) -> bool:
         return self.initiative_in is not None and not self.errors
+
+    @property
+    def read_effort(self) -> str:
+        """The effort as it will be stored, in days ("" while the row is refused)."""
+        if self.initiative_in is None:
+            return ""
+        e = self.initiative_in.effort
+        parts = (e.low, e.likely, e.high) if e.low is not None else (e.likely,)
+        return "/".join(f"{part:g}" for part in parts if part is not None)
+
+    @property
+    def read_value(self) -> str:
+        return f"{self.initiative_in.value:g}" if self.initiative_in is not None else ""
 
 
 @dataclass(frozen=True)
@@ -261,6 +276,20 @@ def _parse_row(
     for name, cell in (("title", title), ("effort", effort_text), ("value", value_text)):
         if _FORMULA.match(cell) and name not in errors:
             errors[name] = "Looks like a spreadsheet formula; paste the values instead."
+    if decimal_comma:
+        for name, cell in (("effort", effort_text), ("value", value_text)):
+            ambiguous = [part for part in cell.split("/") if _THOUSANDS_LIKE.match(part)]
+            if ambiguous and name not in errors:
+                shown = ambiguous[0].strip()
+                whole = shown.replace(",", "")
+                if shown.count(",") > 1:
+                    errors[name] = f"“{shown}”: write {whole}, without the commas."
+                else:
+                    point = f"{float(shown.replace(',', '.')):g}"
+                    errors[name] = (
+                        f"“{shown}” could be {whole} or {point}: write {whole} without the "
+                        f"comma, or {point} with a point."
+                    )
     state = STATE_WORDS.get(" ".join(state_text.lower().split()))
     if state is None:
         errors["state"] = f"“{state_text}” is not a state; use candidate, pinned or ruled out."

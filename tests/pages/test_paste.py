@@ -283,3 +283,37 @@ def test_a_one_row_preview_offers_to_add_this_initiative(
     root = parse_html(post_form(form_client, f"{base}/preview", fields, **HX).text)
     assert root.by_id("paste-add").text() == "Add this initiative"  # not "these 1 initiatives"
     assert "1 row ready" in root.by_id("paste-preview").text()
+
+
+def test_a_comma_before_three_digits_is_never_guessed() -> None:
+    # In tab- or semicolon-separated text "2,5" is a decimal comma, but "2,500" is as often
+    # a thousands separator: reading it as 2.5 stored a value 1,000 times too small.
+    result = _parse(
+        "Big value\t3\t2,500\nBig effort\t1,500\t40\nRange\t1/1,000/4\t2\nFine\t2,5\t1,25\n"
+    )
+    rows = {r.title: r for r in result.rows}
+    assert rows["Big value"].errors == {
+        "value": "“2,500” could be 2500 or 2.5: write 2500 without the comma, or 2.5 with a point."
+    }
+    assert set(rows["Big effort"].errors) == {"effort"}
+    assert "“1,000” could be 1000 or 1: write 1000" in rows["Range"].errors["effort"]
+    millions = _parse("Big\t2\t1,000,000\n").rows[0]
+    assert millions.errors == {"value": "“1,000,000”: write 1000000, without the commas."}
+    assert rows["Fine"].ok
+    assert (rows["Fine"].read_effort, rows["Fine"].read_value) == ("2.5", "1.25")
+    semicolons = _parse("Gate;1,000;4\n")
+    assert set(semicolons.rows[0].errors) == {"effort"}
+    quoted = _parse('Gate,"1,000",4\n')  # comma-separated: a quoted 1,000 is not a number
+    assert not quoted.rows[0].ok
+
+
+def test_the_preview_shows_what_a_decimal_comma_is_read_as(
+    form_client: TestClient, session: Session
+) -> None:
+    setup = build(session)
+    fields = {"text": "Gate\t2,5\t10\n", "period_id": str(setup.period.id)}
+    preview = post_form(form_client, f"/teams/{setup.team.id}/plan/paste/preview", fields, **HX)
+    assert preview.status_code == 200, preview.text[:300]
+    line = parse_html(preview.text).by_id("paste-line-1")
+    assert "2,5 = 2.5" in " ".join(line.text().split())
+    assert "10 =" not in line.text()  # read as typed: nothing added
