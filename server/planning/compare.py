@@ -12,7 +12,7 @@ import bisect
 import datetime as dt
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 from pydantic import BaseModel
@@ -273,6 +273,9 @@ class SeriesLine:
 class TableRow:
     capacity: float
     values: list[float | None]  # per series; None where no plan fits (pinned work)
+    # Per series: the capacity lies past the end of its curve, where nothing was computed
+    # (more days could still buy more), so no value is shown.
+    past_end: list[bool] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -290,6 +293,11 @@ class CurvesChart:
     title: str
     description: str
     missing: list[str]  # labels of plans that have no curve
+
+    @property
+    def past_any_end(self) -> bool:
+        """Whether a row of the table lies past the end of some plan's curve."""
+        return any(any(row.past_end) for row in self.rows)
 
 
 def nice_step(span: float, target_ticks: int = 5) -> float:
@@ -376,7 +384,14 @@ def curves_chart(
         | {round(c.capacity, 6) for c in comparison_curves}
         | {round(x_max, 6)}
     )
-    rows = [TableRow(capacity=g, values=[value_at(c, g) for c in comparison_curves]) for g in grid]
+    rows = [
+        TableRow(
+            capacity=g,
+            values=[value_at(c, g) for c in comparison_curves],
+            past_end=[g > c.capacity_days[-1] + 1e-9 for c in comparison_curves],
+        )
+        for g in grid
+    ]
     labels = [c.label for c in comparison_curves]
     missing = [label for label in names if label not in labels]
     parts = []

@@ -21,6 +21,7 @@ from server.planning.compare import (
     value_at,
 )
 from server.store import plans as store
+from tests.pages.html_tree import parse_html
 from tests.pages.parsed_page import parse
 from tests.plans.conftest import Workspace, counts, edit, error_fields, error_text, save_live
 
@@ -257,6 +258,15 @@ def test_curves_chart_draws_every_curve_inside_the_plot_as_a_rising_step_line() 
             i = int(np.searchsorted(np.array(curve.capacity_days), row.capacity, side="right")) - 1
             assert value == (curve.values[i] if i >= 0 else None)
     assert any(row.values[1] is None for row in chart.rows)  # B starts at 1 day (pinned work)
+    # Past 4 days B's curve was not computed: those rows say so rather than repeat its last
+    # value (more days could buy more). A's curve reaches 6 days, the table's end.
+    assert [row.past_end for row in chart.rows if row.capacity > 4] == [[False, True]] * len(
+        [row for row in chart.rows if row.capacity > 4]
+    )
+    assert any(row.capacity > 4 for row in chart.rows)
+    assert all(row.past_end == [False, False] for row in chart.rows if row.capacity <= 4)
+    assert chart.past_any_end
+    assert not curves_chart([a], {"A": "Baseline"}).past_any_end
     assert "A (Baseline): value 9" in chart.description
     assert nice_step(7.3) == 2
     assert nice_step(430) == 100
@@ -288,3 +298,18 @@ def test_an_initiative_renamed_between_saves_shows_each_plans_frozen_title(
     assert row.saved_as == [("A", "Stop alerts")]
     page = form_client.get(f"/compare?plans={first['id']},{second['id']}")
     assert "Stop alerts (SMS) (saved in A as “Stop alerts”)" in parse(page.text).text()
+
+
+def test_the_curve_table_shows_no_value_past_a_shorter_curve(
+    workspace: Workspace, client: TestClient
+) -> None:
+    long = save_live(client, workspace, "Roomy", changes={"capacity_days": 40})
+    short = save_live(client, workspace, "Tight", changes={"capacity_days": 4})
+    page = parse_html(client.get(f"/compare?plans={long['id']},{short['id']}").text)
+    end = max(short["result"]["curve"]["capacity_days"])
+    rows = page.find("table", cls="cmp-data").find("tbody").find_all("tr")
+    past = [row for row in rows if float(row.find("th").text().split()[0]) > end + 1e-9]
+    assert past, "the table reaches past the tight plan's curve"
+    for row in past:
+        assert row.find_all("td")[1].text().strip() == "–"
+    assert page.by_id("past-curve-note") is not None
