@@ -8,7 +8,16 @@ from fastapi.templating import Jinja2Templates
 from jinja2 import pass_context
 
 from server.access import allowed
-from server.wording import STATE_LABELS, counted, day_word, days, in_days, possessive
+from server.wording import (
+    STATE_LABELS,
+    against_p50,
+    counted,
+    day_word,
+    days,
+    in_days,
+    ordinal,
+    possessive,
+)
 
 
 def number(value: float | None) -> str:
@@ -75,6 +84,8 @@ def configure_templates(templates: Jinja2Templates) -> None:
     env.filters["error_line"] = error_line
     env.filters["counted"] = counted
     env.filters["form_number"] = form_number
+    env.filters["ordinal"] = ordinal
+    env.filters["against_p50"] = against_p50
     env.globals["STATE_LABELS"] = STATE_LABELS
     env.globals["may"] = may
     env.trim_blocks = True

@@ -56,6 +56,33 @@ def in_days(value: float | None) -> str:
     return f"{days(value)} {day_word(value)}"
 
 
+def ordinal(value: float) -> str:
+    """A percentile in words, its figure as `days` writes it: 80 -> "80th", 1 -> "1st",
+    22 -> "22nd", 13 -> "13th", 97.5 -> "97.5th"."""
+    text = days(value)
+    if not text.isdigit():
+        return f"{text}th"
+    n = int(text)
+    suffix = "th" if n % 100 in (11, 12, 13) else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{text}{suffix}"
+
+
+def against_p50(value_given_up: float) -> str:
+    """What planning at a confidence level does to the value, against the P50 plan.
+
+    Above P50 the efforts are safer and the plan is worth less; below it they are optimistic
+    (under their medians) and the plan is worth more, which is no saving.
+    """
+    if value_given_up > 0:
+        return f"gives up {days(value_given_up)} value"
+    if value_given_up < 0:
+        return (
+            f"adds {days(-value_given_up)} value, on efforts below their medians: an "
+            "optimistic plan"
+        )
+    return "gives up no value"
+
+
 def audit_value(value: Any) -> str:
     """A stored value of the audit trail in words: no float noise, lists and records joined."""
     if value is None:

@@ -7,7 +7,7 @@ from pydantic import ValidationError
 
 from server.schemas import InitiativeCreate
 from server.validation import field_and_message
-from server.wording import counted, possessive
+from server.wording import against_p50, counted, ordinal, possessive
 
 
 @pytest.mark.parametrize(
@@ -40,3 +40,34 @@ def test_a_range_bound_reads_as_people_write_numbers() -> None:
 def test_a_name_ending_in_s_takes_an_apostrophe_only(name: str, expected: str) -> None:
     """ "Fares and Payments's share" read on the plan page."""
     assert possessive(name) == expected
+
+
+@pytest.mark.parametrize(
+    ("value", "expected"),
+    [
+        (1, "1st"),
+        (2, "2nd"),
+        (3, "3rd"),
+        (4, "4th"),
+        (11, "11th"),
+        (12, "12th"),
+        (13, "13th"),
+        (21, "21st"),
+        (22, "22nd"),
+        (50, "50th"),
+        (80, "80th"),
+        (97.5, "97.5th"),
+        (99, "99th"),
+    ],
+)
+def test_a_percentile_takes_its_english_ordinal(value: float, expected: str) -> None:
+    assert ordinal(value) == expected
+
+
+def test_planning_below_p50_adds_value_and_says_it_is_optimistic() -> None:
+    assert against_p50(12.5) == "gives up 12.5 value"
+    assert against_p50(0) == "gives up no value"
+    below = against_p50(-50)
+    assert below.startswith("adds 50 value")
+    assert "optimistic" in below
+    assert "-" not in below

@@ -25,6 +25,7 @@ from server.planning.scenarios import (
 )
 from server.planning.snapshots import inputs_of, solve_live
 from tests.factories import make_member, make_team
+from tests.pages.html_tree import parse_html
 from tests.pages.parsed_page import Form, ids_are_unique_and_labels_point_at_fields, parse
 from tests.plans.conftest import (
     EXPECTED_CAPACITY,
@@ -403,3 +404,26 @@ def test_a_scenario_name_is_refused_in_the_schemas_words(
         )
         assert response.status_code == 422
         assert message in parse(response.text).text()
+
+
+def test_a_plan_below_p50_says_its_ordinal_and_that_it_adds_value(
+    workspace: Workspace, form_client: TestClient
+) -> None:
+    # Reported: "the 1th percentile ... so the extra certainty costs -50 value".
+    made = form_client.post(
+        f"/teams/{workspace.team_id}/scenarios",
+        data={
+            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
+            "period_id": str(workspace.period_id),
+            "name": "Hopeful",
+            "confidence": "P21",
+        },
+        follow_redirects=False,
+    )
+    assert made.status_code == 303, made.text[:300]
+    page = form_client.get(made.headers["location"]).text
+    text = " ".join(parse_html(page).text().split())
+    assert "each effort at the 21st percentile of its estimate" in text
+    assert "21th" not in text
+    sentence = text.split("The P50 plan would be worth", 1)[1].split(".")[0]
+    assert "-" not in sentence
