@@ -125,15 +125,17 @@ def parse_plan_ids(raw: Sequence[str]) -> list[int]:
     return ids
 
 
-def check_count(count: int) -> None:
-    """Two to four plans; the message says which way the choice is off."""
+def check_count(count: int, *, field: str = "plans", things: str = "plans") -> None:
+    """Two to four `things`; the message says which way the choice is off."""
     if count < MIN_PLANS:
         raise InputError(
-            f"plans: choose at least {MIN_PLANS} plans to compare ({count} chosen).", field="plans"
+            f"{field}: choose at least {MIN_PLANS} {things} to compare ({count} chosen).",
+            field=field,
         )
     if count > MAX_PLANS:
         raise InputError(
-            f"plans: choose at most {MAX_PLANS} plans to compare ({count} chosen).", field="plans"
+            f"{field}: choose at most {MAX_PLANS} {things} to compare ({count} chosen).",
+            field=field,
         )
 
 

@@ -219,8 +219,9 @@ def build_chart(
     days = curve.capacity_days
     values = curve.values
     x_low = 0.0
-    x_high = max(days[-1], capacity_days, 1e-9)
-    y_high = max(max(values), 1e-9) * 1.08
+    # An empty plan (every value 0) or no capacity still gets axes of plain round numbers.
+    x_high = max(days[-1], capacity_days) if max(days[-1], capacity_days) > 0 else 1.0
+    y_high = (max(values) if max(values) > 0 else 1.0) * 1.08
     plot_w = WIDTH - LEFT - RIGHT
     plot_h = HEIGHT - TOP - BOTTOM
     x_scale = plot_w / (x_high - x_low)

@@ -39,10 +39,7 @@ def parse_picks(raw: Sequence[str]) -> list[str]:
     picks = [part if part == LIVE else str(int(part)) for part in parts]
     if len(set(picks)) != len(picks):
         raise InputError("pick: each plan may be picked only once.", field="pick")
-    try:
-        check_count(len(picks))
-    except InputError as exc:
-        raise InputError(exc.message.replace("plans:", "pick:", 1), field="pick") from exc
+    check_count(len(picks), field="pick", things="of the live plan and the scenarios")
     return picks
 
 

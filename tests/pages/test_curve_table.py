@@ -223,3 +223,18 @@ def test_probing_takes_one_solve_per_step(session: Session) -> None:
     steps = brute_breakpoints(COUPLED, 25.0)
     assert probed.solves <= len(steps) + 1
     assert probed.curve.capacity_days == tuple(k * RESOLUTION for k in range(51))
+
+
+@pytest.mark.parametrize(
+    ("days", "values", "today"),
+    [((0.0, 10.0), (0.0, 0.0), 10.0), ((0.0,), (0.0,), 0.0), ((0.0, 4.0), (0.0, 7.0), 0.0)],
+)
+def test_an_empty_plan_or_no_capacity_gets_axes_of_plain_numbers(
+    days: tuple[float, ...], values: tuple[float, ...], today: float
+) -> None:
+    # Reported: an empty plan's value axis read "5e-10" and "1e-09".
+    chart = curve_chart.build_chart(Curve(days, values), today)
+    labels = [tick.label for tick in (*chart.x_ticks, *chart.y_ticks)]
+    assert labels
+    assert not [label for label in labels if "e" in label], labels
+    assert float(chart.y_ticks[0].label) == 0

@@ -229,7 +229,11 @@ def test_a_refused_pick_reshows_the_scenarios_with_the_boxes_ticked(
     before = counts(session)
     refused = form_client.get(_page_url(workspace, str(tight)))
     assert refused.status_code == 422
-    assert "Choose at least 2 plans to compare (1 chosen)." in refused.text
+    # The list holds the live plan and scenarios, not saved plans: the message says so.
+    assert (
+        "Choose at least 2 of the live plan and the scenarios to compare (1 chosen)."
+        in refused.text
+    )
     assert f'value="{tight}" id="pick-{tight}" checked' in refused.text
     assert f'value="{forced}" id="pick-{forced}" checked' not in refused.text
     assert 'aria-describedby="pick-error"' in refused.text
