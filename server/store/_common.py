@@ -4,19 +4,38 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Callable, Mapping, Sequence
+import unicodedata
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any, TypeVar
 
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session, SQLModel
 
 from server.errors import ConflictError, NotFoundError, StaleVersionError
+from server.selector.set_names import name_key
 
 RowT = TypeVar("RowT", bound=SQLModel)
 
 # What an edit is based on: one fingerprint (a form's `based_on`), a set of them (the
 # entity tags of an If-Match header, any of which may match), or None (no condition).
 BasedOn = str | frozenset[str] | None
+
+
+def name_clash_key(name: str) -> str:
+    """How names of teams, members and periods are compared to refuse a second of one name:
+    `name_key` (case, accents typed either way, full-width letters, runs of spaces), with
+    invisible format characters (zero-width spaces and joiners) left out, so two names that
+    read the same on a page cannot both be stored."""
+    return name_key("".join(ch for ch in name if unicodedata.category(ch) != "Cf"))
+
+
+def same_name(rows: Iterable[RowT], name: str, row_id: int | None) -> RowT | None:
+    """The first of `rows` (with `name` and `id`) other than `row_id` whose name clashes."""
+    wanted = name_clash_key(name)
+    for row in rows:
+        if name_clash_key(row.name) == wanted and row.id != row_id:  # type: ignore[attr-defined]
+            return row
+    return None
 
 
 def and_list(parts: Sequence[str]) -> str:

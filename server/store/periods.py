@@ -36,6 +36,7 @@ from server.store._common import (
     flush_or_conflict,
     get_or_404,
     refuse_if_changed,
+    same_name,
 )
 from server.validation import field_and_message
 from server.wording import counted
@@ -55,8 +56,8 @@ def get_period(session: Session, *, period_id: int) -> Period:
 
 
 def _check_name_free(session: Session, name: str, period_id: int | None) -> None:
-    clash = session.exec(select(Period).where(func.lower(Period.name) == name.lower())).first()
-    if clash is not None and clash.id != period_id:
+    clash = same_name(session.exec(select(Period)), name, period_id)
+    if clash is not None:
         raise ConflictError(f"A period named “{clash.name}” already exists.", field="name")
 
 

@@ -37,6 +37,7 @@ from server.store._common import (
     flush_or_conflict,
     get_or_404,
     refuse_if_changed,
+    same_name,
 )
 from server.store.initiatives import delete_needs_among, needs_from_outside
 from server.store.periods import period_working_days
@@ -52,8 +53,8 @@ def get_team(session: Session, *, team_id: int) -> Team:
 
 
 def _check_name_free(session: Session, name: str, team_id: int | None = None) -> None:
-    clash = session.exec(select(Team).where(func.lower(Team.name) == name.lower())).first()
-    if clash is not None and clash.id != team_id:
+    clash = same_name(session.exec(select(Team)), name, team_id)
+    if clash is not None:
         raise ConflictError(f"A team named “{clash.name}” already exists.", field="name")
 
 
@@ -377,9 +378,10 @@ def get_member(session: Session, *, member_id: int) -> Member:
 def _check_member_name_free(
     session: Session, team_id: int, name: str, member_id: int | None
 ) -> None:
-    query = select(Member).where(Member.team_id == team_id, func.lower(Member.name) == name.lower())
-    clash = session.exec(query).first()
-    if clash is not None and clash.id != member_id:
+    clash = same_name(
+        session.exec(select(Member).where(Member.team_id == team_id)), name, member_id
+    )
+    if clash is not None:
         raise ConflictError(f"This team already has a member named “{clash.name}”.", field="name")
 
 
