@@ -130,3 +130,23 @@ def test_a_refused_scenario_starts_at_its_summary_and_links_to_the_field(
     summary.get_by_role("link").first.click()
     expect(form.locator("input[name^='days_off.']").first).to_be_focused()
     expect(form.locator("input[name^='days_off.']").first).to_have_value("999")
+
+
+@pytest.mark.browser
+def test_a_title_without_spaces_does_not_push_the_pages_sideways(
+    app_page: Page, live_server: LiveServer
+) -> None:
+    # Reported: a 200-character title made the initiatives page 4,454 px wide.
+    page = app_page
+    page.set_viewport_size({"width": 1280, "height": 900})
+    team_id, _, _ = set_up_team(page, live_server.url)
+    long_title = "Breakwater" * 20
+    quick_add(page, long_title, "2", "5")
+    plan_address = page.url
+    period_id = re.search(r"period_id=(\d+)", plan_address).group(1)  # type: ignore[union-attr]
+    listing = f"{live_server.url}/teams/{team_id}/initiatives?period={period_id}"
+    for address in (plan_address, listing):
+        page.goto(address)
+        assert long_title in page.content()
+        width = page.evaluate("document.documentElement.scrollWidth")
+        assert width <= 1280, (address, width)
