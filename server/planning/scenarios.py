@@ -172,7 +172,29 @@ def changes_from_options(options: PlanOptions) -> ScenarioChanges:
 def check_for_team(
     session: Session, *, team_id: int, period_id: int, changes: ScenarioChanges
 ) -> None:
-    """Refuse changes that name members or initiatives outside the team's plan."""
+    """Refuse changes that name members or initiatives outside the team's plan, and a set
+    capacity beside changes it would make count for nothing."""
+    overridden = [
+        label
+        for label, changed in (
+            ("focus factor", changes.focus_factor is not None),
+            ("reserve", changes.reserve_pct is not None),
+            ("days off", bool(changes.days_off)),
+        )
+        if changed
+    ]
+    if changes.capacity_days is not None and overridden:
+        named = (
+            " and ".join(overridden)
+            if len(overridden) < 3
+            else "focus factor, reserve and days off"
+        )
+        raise InputError(
+            f"capacity_days: a capacity in days replaces the one computed from members' days "
+            f"off, focus factor and reserve, so the {named} set here would change nothing. "
+            "Leave the capacity empty to use them, or leave them empty.",
+            field="capacity_days",
+        )
     get_team(session, team_id=team_id)
     period = get_period(session, period_id=period_id)
     members = {m.id: m for m in list_members(session, team_id=team_id)}

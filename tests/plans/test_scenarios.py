@@ -234,6 +234,9 @@ def test_parse_changes_form_reads_levels_and_keeps_blanks_live() -> None:
         ({"days_off": {"1": -2}}, "days_off"),
         ({"forced_in": [1], "forced_out": [1]}, "forced_out"),
         ({"unknown": 1}, "unknown"),
+        # A set capacity replaces the computed one: these beside it would change nothing.
+        ({"capacity_days": 50, "focus_factor": 0.5}, "capacity_days"),
+        ({"capacity_days": 50, "reserve_pct": 10}, "capacity_days"),
     ],
 )
 def test_api_refuses_bad_scenario_values_naming_the_field(
@@ -427,3 +430,40 @@ def test_a_plan_below_p50_says_its_ordinal_and_that_it_adds_value(
     assert "21th" not in text
     sentence = text.split("The P50 plan would be worth", 1)[1].split(".")[0]
     assert "-" not in sentence
+
+
+def test_a_capacity_beside_days_off_is_refused_on_the_form_with_everything_kept(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    # Reported: capacity 50 days and focus factor 0.5 were stored and the focus factor listed
+    # as changed, though the capacity made it count for nothing.
+    before = counts(session)
+    ola = workspace.members[0].id
+    typed = {"capacity_days": "50", "focus_factor": "0.5", f"days_off.{ola}": "3"}
+    refused = form_client.post(
+        f"/teams/{workspace.team_id}/scenarios",
+        data={
+            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
+            "period_id": str(workspace.period_id),
+            "name": "Both",
+            **typed,
+        },
+    )
+    assert refused.status_code == 422
+    text = " ".join(parse_html(refused.text).by_id("error-summary").text().split())
+    assert "focus factor and days off set here would change nothing" in text
+    for value in typed.values():
+        assert f'value="{value}"' in refused.text
+    assert counts(session) == before
+    saved = form_client.post(
+        "/api/v1/plans",
+        json={
+            "name": "Both",
+            "team_id": workspace.team_id,
+            "period_id": workspace.period_id,
+            "changes": {"capacity_days": 50, "reserve_pct": 10},
+        },
+    )
+    assert saved.status_code == 422
+    assert error_fields(saved) == ["capacity_days"]
+    assert counts(session) == before
