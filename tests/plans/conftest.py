@@ -139,6 +139,17 @@ def error_text(response: httpx.Response) -> str:
     return " ".join(str(item.get("msg") or item.get("message")) for item in error_items(response))
 
 
+def post_scenario_form(
+    client: TestClient, team_id: int, period_id: int, **fields: str
+) -> httpx.Response:
+    """Send the new-scenario form as a browser would (redirects not followed)."""
+    return client.post(
+        f"/teams/{team_id}/scenarios",
+        data={"csrf_token": client.csrf, "period_id": str(period_id), **fields},  # type: ignore[attr-defined]
+        follow_redirects=False,
+    )
+
+
 def save_live(client: TestClient, ws: Workspace, name: str = "Baseline", **body: object) -> dict:
     response = client.post(
         "/api/v1/plans",

@@ -9,7 +9,7 @@ from sqlmodel import Session
 from tests.factories import make_member, make_team
 from tests.pages.html_tree import parse_html
 from tests.pages.test_refused_forms import summary_links
-from tests.plans.conftest import Workspace, counts, save_live
+from tests.plans.conftest import Workspace, counts, post_scenario_form, save_live
 
 
 def _post(client: TestClient, url: str, data: dict[str, str]):
@@ -21,11 +21,7 @@ def _heading(text: str) -> str:
 
 
 def _new_scenario(client: TestClient, ws: Workspace, **fields: str) -> int:
-    made = client.post(
-        f"/teams/{ws.team_id}/scenarios",
-        data={"csrf_token": client.csrf, "period_id": str(ws.period_id), **fields},  # type: ignore[attr-defined]
-        follow_redirects=False,
-    )
+    made = post_scenario_form(client, ws.team_id, ws.period_id, **fields)
     assert made.status_code == 303, made.text[:300]
     return int(made.headers["location"].rsplit("/", 1)[1])
 

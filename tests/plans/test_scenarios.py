@@ -34,6 +34,7 @@ from tests.plans.conftest import (
     counts,
     error_fields,
     error_text,
+    post_scenario_form,
 )
 
 RESOLUTION = 0.5
@@ -413,15 +414,8 @@ def test_a_plan_below_p50_says_its_ordinal_and_that_it_adds_value(
     workspace: Workspace, form_client: TestClient
 ) -> None:
     # Reported: "the 1th percentile ... so the extra certainty costs -50 value".
-    made = form_client.post(
-        f"/teams/{workspace.team_id}/scenarios",
-        data={
-            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
-            "period_id": str(workspace.period_id),
-            "name": "Hopeful",
-            "confidence": "P21",
-        },
-        follow_redirects=False,
+    made = post_scenario_form(
+        form_client, workspace.team_id, workspace.period_id, name="Hopeful", confidence="P21"
     )
     assert made.status_code == 303, made.text[:300]
     page = form_client.get(made.headers["location"]).text
@@ -440,14 +434,8 @@ def test_a_capacity_beside_days_off_is_refused_on_the_form_with_everything_kept(
     before = counts(session)
     ola = workspace.members[0].id
     typed = {"capacity_days": "50", "focus_factor": "0.5", f"days_off.{ola}": "3"}
-    refused = form_client.post(
-        f"/teams/{workspace.team_id}/scenarios",
-        data={
-            "csrf_token": form_client.csrf,  # type: ignore[attr-defined]
-            "period_id": str(workspace.period_id),
-            "name": "Both",
-            **typed,
-        },
+    refused = post_scenario_form(
+        form_client, workspace.team_id, workspace.period_id, name="Both", **typed
     )
     assert refused.status_code == 422
     text = " ".join(parse_html(refused.text).by_id("error-summary").text().split())
