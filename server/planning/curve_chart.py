@@ -220,8 +220,8 @@ def build_chart(
     values = curve.values
     x_low = 0.0
     # An empty plan (every value 0) or no capacity still gets axes of plain round numbers.
-    x_high = max(days[-1], capacity_days) if max(days[-1], capacity_days) > 0 else 1.0
-    y_high = (max(values) if max(values) > 0 else 1.0) * 1.08
+    x_high = max(days[-1], capacity_days) or 1.0
+    y_high = (max(values) or 1.0) * 1.08
     plot_w = WIDTH - LEFT - RIGHT
     plot_h = HEIGHT - TOP - BOTTOM
     x_scale = plot_w / (x_high - x_low)

@@ -27,6 +27,7 @@ from server.planning.snapshots import (
 )
 from server.schemas import DaysOff, FocusFactor, ReservePct
 from server.selector.risk import EstimateError, validate_confidence
+from server.store._common import and_list
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period, period_working_days
 from server.store.teams import get_team, list_members
@@ -184,14 +185,10 @@ def check_for_team(
         if changed
     ]
     if changes.capacity_days is not None and overridden:
-        named = (
-            " and ".join(overridden)
-            if len(overridden) < 3
-            else "focus factor, reserve and days off"
-        )
         raise InputError(
             f"capacity_days: a capacity in days replaces the one computed from members' days "
-            f"off, focus factor and reserve, so the {named} set here would change nothing. "
+            f"off, focus factor and reserve, so the {and_list(overridden)} set here would "
+            "change nothing. "
             "Leave the capacity empty to use them, or leave them empty.",
             field="capacity_days",
         )

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import re
 from collections.abc import Iterator
+from dataclasses import dataclass
 from typing import Annotated, Any, Protocol, TypeVar
 
 from fastapi import Depends, Header, Request, Response
@@ -143,19 +144,28 @@ def parse_if_match(values: list[str]) -> tuple[frozenset[str] | None, bool]:
     return strong, len(strong) < len(tags)
 
 
-def none_match(values: list[str], etag: str) -> bool:
-    """Whether If-None-Match holds `etag` (quoted, as sent) or is *: the copy is current.
+@dataclass(frozen=True)
+class NoneMatch:
+    """What an If-None-Match names: any current copy (*), or these opaque tags."""
 
-    Weak comparison: W/"x" and "x" name the same copy (a proxy that compresses may weaken
-    the tag it passes on). No header never matches; a malformed one is BadIfMatchError.
-    """
+    any_copy: bool
+    tags: frozenset[str]
+
+    def holds(self, etag: str) -> bool:
+        """Whether the copy tagged `etag` (quoted, as sent) is named. Weak comparison: W/"x"
+        and "x" name the same copy (a proxy that compresses may weaken the tag it passes on)."""
+        return self.any_copy or etag.removeprefix("W/").strip('"') in self.tags
+
+
+def parse_if_none_match(values: list[str]) -> NoneMatch | None:
+    """The If-None-Match of a request (None: no header); a malformed one is BadIfMatchError."""
     if not values:
-        return False
+        return None
     text = ", ".join(values)
     if text.strip(" \t") == "*":
-        return True
-    current = etag.removeprefix("W/").strip('"')
-    return any(tag == current for _, tag in _entity_tags(text, NONE_MATCH_HEADER))
+        return NoneMatch(any_copy=True, tags=frozenset())
+    tags = frozenset(tag for _, tag in _entity_tags(text, NONE_MATCH_HEADER))
+    return NoneMatch(any_copy=False, tags=tags)
 
 
 class ETagged:
@@ -181,12 +191,12 @@ class Precondition(ETagged):
 class ConditionalRead(ETagged):
     """A single-row GET: tagged as usual, 304 when If-None-Match holds the current tag."""
 
-    def __init__(self, response: Response, if_none_match: list[str]) -> None:
+    def __init__(self, response: Response, if_none_match: NoneMatch | None) -> None:
         super().__init__(response)
         self._if_none_match = if_none_match
 
     def __call__(self, body: TaggedT) -> TaggedT:
-        if none_match(self._if_none_match, body.etag):
+        if self._if_none_match is not None and self._if_none_match.holds(body.etag):
             raise NotModified(body.etag)
         return super().__call__(body)
 
@@ -202,9 +212,10 @@ def conditional_read(
         str | None, Header(alias=NONE_MATCH_HEADER, description=IF_NONE_MATCH_READ_HELP)
     ] = None,
 ) -> ConditionalRead:
-    values = request.headers.getlist(NONE_MATCH_HEADER)
-    none_match(values, '""')  # a malformed header is refused before any work (400)
-    return ConditionalRead(response, values)
+    # Read before any work, so a malformed header is refused (400) before the row is read.
+    return ConditionalRead(
+        response, parse_if_none_match(request.headers.getlist(NONE_MATCH_HEADER))
+    )
 
 
 def if_match(

@@ -22,7 +22,7 @@ from server.deps import SessionDep, TemplatesDep
 from server.planning.compare import single_curve_chart
 from server.planning.published_view import published_view_of
 from server.planning.snapshots import view_of
-from server.routes.preconditions import BadIfMatchError, none_match
+from server.routes.preconditions import NONE_MATCH_HEADER, BadIfMatchError, parse_if_none_match
 from server.store import plans as store
 
 router = APIRouter(include_in_schema=False)
@@ -45,9 +45,10 @@ PUBLISHED_HEADERS = {
 def _still_current(request: Request, etag: str) -> bool:
     """The browser's copy is this page (a malformed If-None-Match is just no match here)."""
     try:
-        return none_match(request.headers.getlist("If-None-Match"), etag)
+        wanted = parse_if_none_match(request.headers.getlist(NONE_MATCH_HEADER))
     except BadIfMatchError:
         return False
+    return wanted is not None and wanted.holds(etag)
 
 
 def _page(
