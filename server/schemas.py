@@ -19,6 +19,7 @@ from pydantic import (
     model_validator,
 )
 
+from server.capacity import working_days
 from server.models import NAME_MAX, NOTES_MAX, TITLE_MAX
 from server.text_rules import VISIBLE_TEXT, WEEKMASK
 
@@ -129,14 +130,25 @@ class PeriodFields(_Strict):
     @model_validator(mode="after")
     def _dates_make_sense(self) -> PeriodFields:
         if self.end_date < self.start_date:
-            raise ValueError("end_date: the period ends before it starts")
+            raise ValueError("end_date: The period ends before it starts.")
         if (self.end_date - self.start_date).days + 1 > MAX_PERIOD_DAYS:
-            raise ValueError(f"end_date: a period may span at most {MAX_PERIOD_DAYS} days")
+            raise ValueError(f"end_date: A period may span at most {MAX_PERIOD_DAYS} days.")
         for day in self.non_working_dates:
             if not self.start_date <= day <= self.end_date:
-                raise ValueError(f"non_working_dates: {day.isoformat()} is outside the period")
+                raise ValueError(f"non_working_dates: {day.isoformat()} is outside the period.")
         if "1" not in self.weekmask:
-            raise ValueError("weekmask: at least one weekday must be a working day")
+            raise ValueError("weekmask: At least one weekday must be a working day.")
+        if not working_days(self.start_date, self.end_date, self.non_working_dates, self.weekmask):
+            # No capacity can come of it: say which input took the last working day away.
+            if working_days(self.start_date, self.end_date, (), self.weekmask):
+                raise ValueError(
+                    "non_working_dates: Every working day of the period is listed as a day "
+                    "off; a period needs at least one working day."
+                )
+            raise ValueError(
+                f"end_date: {self.start_date.isoformat()} to {self.end_date.isoformat()} has "
+                "no working day in the working week; a period needs at least one."
+            )
         self.non_working_dates = sorted(set(self.non_working_dates))
         return self
 
@@ -244,12 +256,12 @@ class EffortIn(_Strict):
     def _ordered(self) -> EffortIn:
         if (self.low is None) != (self.high is None):
             missing = "high" if self.high is None else "low"
-            raise ValueError(f"{missing}: give low and high together, or neither")
+            raise ValueError(f"{missing}: Give low and high together, or neither.")
         if self.low is not None and self.high is not None:
             if self.low > self.likely:
-                raise ValueError("low: the low estimate is above the likely one")
+                raise ValueError("low: The low estimate is above the likely one.")
             if self.likely > self.high:
-                raise ValueError("high: the high estimate is below the likely one")
+                raise ValueError("high: The high estimate is below the likely one.")
         return self
 
 
@@ -260,7 +272,7 @@ class TeamEffortIn(EffortIn):
 def own_effort_refusal(given: int, owner: int) -> str:
     """Why an initiative's own effort may not name another team (field effort.team_id)."""
     return (
-        f"effort is the owning team's, so its team_id is {owner} or left out; give team "
+        f"The effort is the owning team's, so its team_id is {owner} or left out; give team "
         f"{given}'s effort in other_efforts."
     )
 

@@ -119,6 +119,44 @@ def test_shortening_a_period_below_someones_days_off_is_refused(
     assert error_fields(client.patch(url, json={"weekmask": "0000001"})) == ["weekmask"]
 
 
+@pytest.mark.parametrize(
+    ("change", "field"),
+    [
+        ({"start_date": "2027-03-20", "end_date": "2027-03-21"}, "end_date"),  # Sat and Sun
+        (
+            {
+                "end_date": "2027-03-19",
+                "non_working_dates": [f"2027-03-{day}" for day in range(15, 20)],
+            },
+            "non_working_dates",
+        ),
+        ({"end_date": "2027-03-20", "weekmask": "0000001"}, "end_date"),  # Mon to Sat, Sundays
+    ],
+    ids=["weekend", "all days off", "mask misses the span"],
+)
+def test_a_period_without_a_working_day_is_refused(
+    client: TestClient,
+    workspace: Workspace,
+    snapshot: Callable[[], Snapshot],
+    change: dict[str, object],
+    field: str,
+) -> None:
+    # A period with no working day gives no capacity to plan with, whichever input emptied it.
+    before = snapshot()
+    created = client.post("/api/v1/periods", json=SPRINT_2 | change)
+    assert created.status_code == 422, created.text
+    assert error_fields(created) == [field]
+    assert "at least one working day" in error_text(created) or "needs at least one" in (
+        error_text(created)
+    )
+    assert snapshot() == before
+    url = f"/api/v1/periods/{workspace.period}"
+    moved = client.patch(url, json={"start_date": "2027-03-06", "end_date": "2027-03-07"})
+    assert moved.status_code == 422
+    assert error_fields(moved) == ["end_date"]
+    assert snapshot() == before
+
+
 def _audit_actions(client: TestClient) -> list[str]:
     return [e["action"] for e in client.get("/api/v1/audit").json()]
 

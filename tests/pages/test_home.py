@@ -166,6 +166,11 @@ def test_adding_a_period(form_client: TestClient, session: Session) -> None:
         ({"non_working_dates": "2027-04-01"}, "non_working_dates", "outside the period"),
         ({"non_working_dates": "2027-03-40"}, "non_working_dates", "date"),
         ({"weekmask": "11111"}, "weekmask", "seven digits"),
+        (
+            {"start_date": "2027-03-20", "end_date": "2027-03-21", "non_working_dates": ""},
+            "end_date",
+            "no working day",
+        ),
         ({"kind": "month"}, "kind", "sprint"),
         ({"name": "p" * 81}, "name", "80 characters at most"),
     ],

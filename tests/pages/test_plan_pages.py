@@ -794,8 +794,14 @@ def test_cached_rows_match_fresh_rendering(form_client: TestClient, session: Ses
 
 
 def test_a_period_without_working_days_says_so(form_client: TestClient, session: Session) -> None:
+    # Refused when typed now; a period stored before that rule (or restored from an older
+    # workspace export) still reaches the plan page, which explains it.
     team = make_team(session)
-    weekend = make_period(session, "Weekend", dt.date(2027, 3, 6), dt.date(2027, 3, 7))
+    weekend = Period(
+        name="Weekend", kind="sprint", start_date=dt.date(2027, 3, 6), end_date=dt.date(2027, 3, 7)
+    )
+    session.add(weekend)
+    session.commit()
     _capacity(session, team, weekend, 2)
     make_initiative(session, team, weekend, "Quay wall", 3, 10)
     text = page(form_client, f"/teams/{team.id}/plan?period_id={weekend.id}").text()
