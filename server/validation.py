@@ -16,6 +16,7 @@ _PREFIXED = re.compile(
     r"^(?:Value error, )?(?P<field>[a-z_]+(?:\.[a-z_]+)*): (?P<message>.+)$", re.DOTALL
 )
 _LOCATION_WORDS = {"body", "query", "path", "form"}
+REQUIRED_MESSAGE = "This field is required."
 
 
 def field_and_message(error: Mapping[str, Any]) -> tuple[str, str]:
@@ -30,7 +31,7 @@ def field_and_message(error: Mapping[str, Any]) -> tuple[str, str]:
         return "body", "The body is not valid JSON."
     field = ".".join(location) or "body"
     if error.get("type") == "missing":
-        message = "This field is required."
+        message = REQUIRED_MESSAGE
     elif error.get("type") == "extra_forbidden":
         message = "This field is not recognised."
     elif error.get("type") in {"float_parsing", "int_parsing", "float_type", "int_type"}:

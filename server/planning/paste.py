@@ -26,7 +26,7 @@ from server.errors import InputError
 from server.schemas import InitiativeCreate
 from server.store import audit
 from server.store.initiatives import TitlesInUse, create_initiatives, title_key
-from server.validation import parse_form
+from server.validation import REQUIRED_MESSAGE, parse_form
 from server.wording import counted
 
 MAX_ROWS = 500
@@ -118,6 +118,12 @@ class PasteResult:
 # An effort typed in one field ("5" or "3/5/8") that is not a number: say what is accepted.
 EFFORT_TEXT_RULE = "Enter a number of days, or low/likely/high such as 3/5/8."
 _NOT_A_NUMBER = {"Enter a number.", "Enter a finite number."}
+# A blank cell, said about the cell: a pasted row has cells, not form fields.
+_EMPTY_CELL = {
+    "effort": f"The effort cell is empty. {EFFORT_TEXT_RULE}",
+    "likely": "The likely cell is empty. Enter a number of days.",
+    "value": "The value cell is empty. Enter a number.",
+}
 
 
 def effort_text_message(message: str) -> str:
@@ -162,7 +168,7 @@ def _split(text: str) -> tuple[list[tuple[int, list[str]]], str, str]:
                 rows.append((reader.line_num, trimmed))
     except csv.Error as exc:  # e.g. an unclosed quote
         raise InputError(
-            f"text: line {reader.line_num} could not be read ({exc}).", field="text"
+            f"text: Line {reader.line_num} could not be read ({exc}).", field="text"
         ) from exc
     return rows, delimiter, name
 
@@ -265,7 +271,7 @@ def _parse_row(
     else:
         parts = [by_column.get(name, "") for name in ("low", "likely", "high")]
         effort_text = "/".join(parts) if parts[0] or parts[2] else parts[1]
-        effort = {"likely": _number_text(parts[1], decimal_comma)}
+        effort = {"likely": _number_text(parts[1], decimal_comma)} if parts[1] else {}
         if parts[0] or parts[2]:
             effort |= {
                 "low": _number_text(parts[0], decimal_comma) or None,
@@ -306,6 +312,8 @@ def _parse_row(
     for name, message in refused.items():
         field = _field_of(name)
         one_cell = field == "effort" and "effort" in columns
+        if message == REQUIRED_MESSAGE:
+            message = _EMPTY_CELL.get(field if one_cell or field != "effort" else "likely", message)
         errors.setdefault(field, effort_text_message(message) if one_cell else message)
     key = title_key(title)
     clash = titles_in_use.clash(title) if key and titles_in_use is not None else None

@@ -102,11 +102,24 @@ def test_errors_name_the_line_and_the_field() -> None:
     assert errors[1] == {}
     assert errors[2] == {"effort": "Enter a number of days, or low/likely/high such as 3/5/8."}
     assert "above 0" in errors[3]["effort"]
-    assert errors[4] == {"value": "This field is required."}
+    assert errors[4] == {"value": "The value cell is empty. Enter a number."}
     assert "not a state" in errors[5]["state"]
     assert "formula" in errors[6]["title"]
     assert "low estimate is above the likely one" in errors[7]["effort"]
     assert errors[8] == {"title": "The same title as line 1."}
+
+
+def test_empty_cells_are_named_as_cells_in_every_layout() -> None:
+    # One effort cell, then low/likely/high cells: a blank is called empty, not "required"
+    # and not "not a number".
+    one_cell = {row.line: row.errors for row in _parse("Gate\t\t3\n").rows}
+    assert one_cell[1] == {
+        "effort": "The effort cell is empty. Enter a number of days, or low/likely/high such "
+        "as 3/5/8."
+    }
+    three = _parse("title,low,likely,high,value\nGate,1,,3,4\nCrane,,,,4\n")
+    for row in three.rows:
+        assert row.errors == {"effort": "The likely cell is empty. Enter a number of days."}
 
 
 def test_block_level_problems() -> None:
