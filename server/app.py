@@ -128,6 +128,14 @@ def _error_page(
     )
 
 
+def _where_sent(request: Request, field: str) -> str:
+    """The part of the request a refused field came in, as FastAPI's own "loc" names it."""
+    head = field.split(".")[0]
+    if head in request.path_params:
+        return "path"
+    return "query" if head in request.query_params else "body"
+
+
 def _add_error_handlers(app: FastAPI) -> None:
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException) -> Response:
@@ -161,7 +169,7 @@ def _add_error_handlers(app: FastAPI) -> None:
             # The same shape as request validation errors: a list naming each field.
             field = exc.field or "body"
             error = {
-                "loc": ["body", field],
+                "loc": [_where_sent(request, field), field],
                 "msg": exc.message,
                 "type": "value_error",
                 "field": field,

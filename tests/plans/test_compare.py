@@ -139,6 +139,8 @@ def test_bad_comparisons_are_refused(
     api = client.get(f"/api/v1/compare?{query}")
     assert api.status_code == status, api.text
     assert error_fields(api) == [field]
+    if status == 422:  # named where it was sent, as FastAPI names its own query errors
+        assert [item["loc"] for item in api.json()["detail"]] == [["query", field]]
     if status == 404:
         assert "999" in error_text(api)
     # The page answers every refusal with the saved-plans list again (422), unknown ids too.
