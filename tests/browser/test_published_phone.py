@@ -1,4 +1,5 @@
-"""A published plan and its saved plan page read on a phone: nothing wider than the screen."""
+"""Pages read on a phone: nothing wider than the screen (published, saved and live plans, the
+changes list)."""
 
 from __future__ import annotations
 
@@ -79,6 +80,44 @@ def test_published_and_saved_plan_pages_fit_a_390_px_screen(
         page.goto(f"{live_server.url}/plans/{plan_id}")
         widths = _widths(page)
         screenshot(page, "saved-plan-390")
+        assert widths["scroll"] <= widths["view"], widths
+    finally:
+        context.close()
+
+
+def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
+    browser: Browser, live_server: LiveServer, watch: Any
+) -> None:
+    context = browser.new_context(viewport=PHONE)
+    try:
+        sign_in(context, live_server)
+        page = context.new_page()
+        page.set_default_timeout(WAIT_MS)
+        watch(page)
+        engine = make_engine(live_server.settings)
+        with Session(engine) as session:
+            team_id = list_teams(session)[0].id
+        engine.dispose()
+        page.goto(f"{live_server.url}/teams/{team_id}/plan")
+        assert page.locator(".plan-row").count() > 0
+        widths = _widths(page)
+        screenshot(page, "live-plan-390")
+        assert widths["scroll"] <= widths["view"], widths
+        # Each field of a row is on the screen, labelled by its column's name.
+        row = page.locator(".plan-row").first
+        for field in ("Effort (days)", "Value", "State"):
+            cell = row.locator(f'td[data-label="{field}"]')
+            box = cell.bounding_box()
+            assert box is not None, field
+            assert box["x"] >= 0, (field, box)
+            assert box["x"] + box["width"] <= PHONE["width"] + 0.5, (field, box)
+        quick = page.locator("#quick-add-button").bounding_box()
+        assert quick is not None
+        assert quick["x"] + quick["width"] <= PHONE["width"] + 0.5, quick
+
+        page.goto(f"{live_server.url}/audit")
+        assert page.locator("table.audit tbody tr").count() > 0
+        widths = _widths(page)
         assert widths["scroll"] <= widths["view"], widths
     finally:
         context.close()
