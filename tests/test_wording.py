@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import re
+from pathlib import Path
+
 import pytest
 from pydantic import ValidationError
 
@@ -71,3 +74,20 @@ def test_planning_below_p50_adds_value_and_says_it_is_optimistic() -> None:
     assert below.startswith("adds 50 value")
     assert "optimistic" in below
     assert "-" not in below
+
+
+# A refusal raised as "field: message": the page strips the field and shows the message alone,
+# so the message is a sentence. The selector's own messages ("key field: ...") and the command
+# line's "loadline: ..." follow their own conventions and are not scanned.
+_LOWERCASE_REFUSAL = re.compile(r"(?:InputError|ValueError)\(\s*f?\"[a-z_.]+: [a-z]")
+
+
+def test_every_field_refusal_starts_as_a_sentence() -> None:
+    server = Path(__file__).parents[1] / "server"
+    found = [
+        f"{path.relative_to(server)}: {match.group(0)}"
+        for path in server.rglob("*.py")
+        if "selector" not in path.parts and path.name != "cli.py"
+        for match in _LOWERCASE_REFUSAL.finditer(path.read_text(encoding="utf-8"))
+    ]
+    assert found == []

@@ -120,7 +120,7 @@ def parse_plan_ids(raw: Sequence[str]) -> list[int]:
             raise InputError(f"plans: “{part}” is not a plan id.", field="plans")
         ids.append(int(part))
     if len(set(ids)) != len(ids):
-        raise InputError("plans: each plan may appear only once.", field="plans")
+        raise InputError("plans: Each plan may appear only once.", field="plans")
     check_count(len(ids))
     return ids
 

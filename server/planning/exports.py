@@ -351,7 +351,7 @@ class ImportedPlan:
 
 
 def _fail(line: int, column: str, message: str) -> InputError:
-    return InputError(f"csv: line {line}, {column}: {message}", field="csv")
+    return InputError(f"csv: Line {line}, {column}: {message}", field="csv")
 
 
 def _float(line: int, column: str, raw: str, *, required: bool) -> float | None:
@@ -382,7 +382,7 @@ def _preamble(rows: list[tuple[int, list[str]]]) -> tuple[dict[str, str], int]:
             )
         values[restore(row[0]).strip()] = restore(row[1])
     raise InputError(
-        "csv: no empty row after the summary block; this is not a Loadline plan export.",
+        "csv: No empty row after the summary block; this is not a Loadline plan export.",
         field="csv",
     )
 
@@ -420,22 +420,25 @@ def parse_plan_csv(text: str) -> ImportedPlan:
     try:
         raw_rows = list(csv.reader(io.StringIO(text, newline="")))
     except csv.Error as exc:
-        raise InputError(f"csv: the file cannot be read as CSV ({exc}).", field="csv") from exc
+        raise InputError(f"csv: The file cannot be read as CSV ({exc}).", field="csv") from exc
     numbered = [(i + 1, row) for i, row in enumerate(raw_rows)]
     summary, start = _preamble(numbered)
     if "capacity_days" not in summary:
-        raise InputError("csv: the summary block has no capacity_days row.", field="csv")
+        raise InputError("csv: The summary block has no capacity_days row.", field="csv")
     capacity = _float(0, "capacity_days", summary["capacity_days"], required=True) or 0.0
     if not MIN_CAPACITY_DAYS <= capacity <= MAX_CAPACITY_DAYS:
         raise InputError(
-            f"csv: capacity_days must be from {MIN_CAPACITY_DAYS:g} to {MAX_CAPACITY_DAYS:g}.",
+            f"csv: The capacity_days value must be from {MIN_CAPACITY_DAYS:g} to "
+            f"{MAX_CAPACITY_DAYS:g}.",
             field="csv",
         )
     confidence = _float(0, "confidence", summary.get("confidence", ""), required=False)
     if confidence is not None and not 0 < confidence < 1:
-        raise InputError("csv: confidence must be between 0 and 1 (e.g. 0.8).", field="csv")
+        raise InputError(
+            "csv: The confidence value must be between 0 and 1 (e.g. 0.8).", field="csv"
+        )
     if start >= len(numbered):
-        raise InputError("csv: the initiative header row is missing.", field="csv")
+        raise InputError("csv: The initiative header row is missing.", field="csv")
     header_line, header = numbered[start]
     columns = [restore(c).strip().lower() for c in header]
     missing = [c for c in REQUIRED_COLUMNS if c not in columns]
@@ -450,7 +453,7 @@ def parse_plan_csv(text: str) -> ImportedPlan:
     body = [(line, row) for line, row in numbered[start + 1 :] if any(c.strip() for c in row)]
     if len(body) > MAX_IMPORT_ROWS:
         raise InputError(
-            f"csv: at most {MAX_IMPORT_ROWS} initiatives per import (got {len(body)}).",
+            f"csv: At most {MAX_IMPORT_ROWS} initiatives per import (got {len(body)}).",
             field="csv",
         )
     rows: list[ImportedRow] = []
@@ -518,10 +521,10 @@ def parse_plan_csv(text: str) -> ImportedPlan:
             raise _fail(row.line, "needs", f"no row with key {', '.join(unknown)}.")
     cycle = _needs_cycle(rows)
     if cycle:
-        raise InputError(f"csv: needs form a cycle: {' -> '.join(cycle)}.", field="csv")
+        raise InputError(f"csv: Needs form a cycle: {' -> '.join(cycle)}.", field="csv")
     spread = _float(0, "default_spread", summary.get("default_spread", ""), required=False)
     if spread is not None and not 0 <= spread < 1:
-        raise InputError("csv: default_spread must be from 0 to below 1.", field="csv")
+        raise InputError("csv: The default_spread value must be from 0 to below 1.", field="csv")
     return ImportedPlan(
         plan_name=summary.get("plan", "").strip(),
         capacity_days=capacity,

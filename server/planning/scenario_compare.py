@@ -38,7 +38,7 @@ def parse_picks(raw: Sequence[str]) -> list[str]:
             )
     picks = [part if part == LIVE else str(int(part)) for part in parts]
     if len(set(picks)) != len(picks):
-        raise InputError("pick: each plan may be picked only once.", field="pick")
+        raise InputError("pick: Each plan may be picked only once.", field="pick")
     check_count(len(picks), field="pick", things="of the live plan and the scenarios")
     return picks
 
@@ -65,7 +65,7 @@ def compare_picks(
         scenario = get_scenario(session, scenario_id=int(pick))
         if scenario.team_id != team_id or scenario.period_id != period_id:
             raise InputError(
-                f"pick: scenario “{scenario.name}” is not one of {possessive(team.name)} "
+                f"pick: Scenario “{scenario.name}” is not one of {possessive(team.name)} "
                 f"scenarios in {period.name}.",
                 field="pick",
             )

@@ -83,8 +83,8 @@ class ScenarioChanges(BaseModel):
         both = set(self.forced_in) & set(self.forced_out)
         if both:
             listed = ", ".join(str(i) for i in sorted(both))
-            are = "initiative {} is" if len(both) == 1 else "initiatives {} are"
-            raise ValueError(f"forced_out: {are.format(listed)} also forced in")
+            are = "Initiative {} is" if len(both) == 1 else "Initiatives {} are"
+            raise ValueError(f"forced_out: {are.format(listed)} also forced in.")
         return self
 
     def to_json(self) -> dict[str, Any]:
@@ -186,7 +186,7 @@ def check_for_team(
     ]
     if changes.capacity_days is not None and overridden:
         raise InputError(
-            f"capacity_days: a capacity in days replaces the one computed from members' days "
+            f"capacity_days: A capacity in days replaces the one computed from members' days "
             f"off, focus factor and reserve, so the {and_list(overridden)} set here would "
             "change nothing. "
             "Leave the capacity empty to use them, or leave them empty.",
@@ -199,7 +199,7 @@ def check_for_team(
     for member_id, days in changes.days_off.items():
         member = members.get(member_id)
         if member is None:
-            raise InputError(f"days_off: member {member_id} is not on this team.", field="days_off")
+            raise InputError(f"days_off: Member {member_id} is not on this team.", field="days_off")
         if days > limit:
             raise InputError(
                 f"days_off: {days:g} days off for {member.name} is more than the {limit} "

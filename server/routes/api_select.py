@@ -79,7 +79,7 @@ class SelectRequest(BaseModel):
             points = self.curve_to / self.resolution + 1
             if points > MAX_CURVE_POINTS:
                 raise ValueError(
-                    f"curve_to: a curve to {self.curve_to:g} days at a {self.resolution:g}-day "
+                    f"curve_to: A curve to {self.curve_to:g} days at a {self.resolution:g}-day "
                     f"resolution has {points:,.0f} points, more than one request may ask "
                     f"({MAX_CURVE_POINTS:,}); use a nearer curve_to or a coarser resolution"
                 )

@@ -546,7 +546,7 @@ def _picked_comparison(
     pick: list[str],
 ) -> Comparison:
     if period_id is None:
-        raise InputError("period_id: choose the period to compare plans in.", field="period_id")
+        raise InputError("period_id: Choose the period to compare plans in.", field="period_id")
     return compare_picks(
         session,
         team_id=team_id,
@@ -580,7 +580,7 @@ async def create_scenario(
     form = await request.form()
     period_id = _int(form_text(form, "period_id"))
     if period_id is None:
-        raise InputError("period_id: choose a period.", field="period_id")
+        raise InputError("period_id: Choose a period.", field="period_id")
     name, errors = _name(form_text(form, "name"))
     changes, change_errors = _read_changes(session, form, team_id, period_id)
     errors |= change_errors
@@ -792,7 +792,7 @@ async def _uploaded_text(form: FormData) -> str:
         try:
             return raw.decode("utf-8")
         except UnicodeDecodeError as exc:
-            raise InputError("csv: the file is not UTF-8 text.", field="csv") from exc
+            raise InputError("csv: The file is not UTF-8 text.", field="csv") from exc
     return form_text(form, "csv", strip=False)
 
 
@@ -816,7 +816,7 @@ async def _import_from_form(
         if not text.strip():
             raise InputError("Choose an exported plan CSV file.", field="csv")
         if len(text) > MAX_UPLOAD_CHARS:
-            raise InputError("csv: the file is too large.", field="csv")
+            raise InputError("csv: The file is too large.", field="csv")
         parsed = exports.parse_plan_csv(text)
         outcome = store.import_plan(
             session,

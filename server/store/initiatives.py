@@ -261,7 +261,7 @@ def _refuse_repeated_titles(initiatives_in: Sequence[InitiativeCreate]) -> None:
         key = (item.team_id, item.period_id, title_key(item.title))
         if key in first:
             raise InputError(
-                f"title: rows {first[key]} and {number} have the same title “{item.title}”; "
+                f"title: Rows {first[key]} and {number} have the same title “{item.title}”; "
                 "give each initiative its own title.",
                 field="title",
             )
@@ -448,26 +448,26 @@ def _reference_error(
 ) -> InputError | None:
     """The first reference of one initiative that points at nothing, in the order named."""
     if team_id not in refs.teams:
-        return InputError(f"team_id: no team with id {team_id}.", field="team_id")
+        return InputError(f"team_id: No team with id {team_id}.", field="team_id")
     if period_id is not None and period_id not in refs.periods:
-        return InputError(f"period_id: no period with id {period_id}.", field="period_id")
+        return InputError(f"period_id: No period with id {period_id}.", field="period_id")
     seen = {team_id}
     for line in other_efforts:
         if line.team_id in seen:
             return InputError(
-                f"other_efforts: team {line.team_id} is listed twice (or is the owning team).",
+                f"other_efforts: Team {line.team_id} is listed twice (or is the owning team).",
                 field="other_efforts",
             )
         if line.team_id not in refs.teams:
             return InputError(
-                f"other_efforts: no team with id {line.team_id}.", field="other_efforts"
+                f"other_efforts: No team with id {line.team_id}.", field="other_efforts"
             )
         seen.add(line.team_id)
     for needed_id in needs:
         if needed_id == initiative_id:
-            return InputError("needs: an initiative cannot need itself.", field="needs")
+            return InputError("needs: An initiative cannot need itself.", field="needs")
         if needed_id not in refs.initiatives:
-            return InputError(f"needs: no initiative with id {needed_id}.", field="needs")
+            return InputError(f"needs: No initiative with id {needed_id}.", field="needs")
     return None
 
 
@@ -528,8 +528,8 @@ def _check_batch(session: Session, initiatives_in: Sequence[InitiativeCreate]) -
     if len(initiatives_in) == 1:
         raise errors[0][1]
     # Every bad row, by its number in the batch (the first few, then how many more).
-    named = "; ".join(f"row {number}, {error.message}" for number, error in errors[:_LISTED])
-    more = f"; and {counted(len(errors) - _LISTED, 'more row')}" if len(errors) > _LISTED else ""
+    named = " ".join(f"Row {number}, {error.message}" for number, error in errors[:_LISTED])
+    more = f" And {counted(len(errors) - _LISTED, 'more row')}." if len(errors) > _LISTED else ""
     raise InputError(f"{named}{more}", field=errors[0][1].field)
 
 
@@ -863,7 +863,7 @@ def update_initiative(
         cycle = _needs_cycle(session, initiative_id, needs)
         if cycle:
             raise InputError(
-                f"needs: this would make a needs cycle: {_titles(session, cycle)}.", field="needs"
+                f"needs: This would make a needs cycle: {_titles(session, cycle)}.", field="needs"
             )
     # One UPDATE of the row (one version step) however many fields change: no autoflush
     # while the effort lines and needs are queried.

@@ -50,9 +50,9 @@ def find_user(session: Session, *, username: str) -> UserAccount | None:
 def create_user(session: Session, *, username: str, password: str, role: str) -> UserAccount:
     username = username.strip()
     if not username or len(username) > 80:
-        raise InputError("username: give a name of 1 to 80 characters.", field="username")
+        raise InputError("username: Give a name of 1 to 80 characters.", field="username")
     if role not in ROLES:
-        raise InputError(f"role: choose one of {', '.join(ROLES)}.", field="role")
+        raise InputError(f"role: Choose one of {', '.join(ROLES)}.", field="role")
     problem = password_problem(password)
     if problem:
         raise InputError(f"password: {problem}", field="password")
@@ -67,7 +67,7 @@ def create_user(session: Session, *, username: str, password: str, role: str) ->
 
 def set_role(session: Session, *, user_id: int, role: str, disabled: bool) -> UserAccount:
     if role not in ROLES:
-        raise InputError(f"role: choose one of {', '.join(ROLES)}.", field="role")
+        raise InputError(f"role: Choose one of {', '.join(ROLES)}.", field="role")
     db_user = get_user(session, user_id=user_id)
     admins = [u for u in list_users(session) if u.role == "admin" and not u.disabled]
     if db_user in admins and (role != "admin" or disabled) and len(admins) == 1:

@@ -147,7 +147,7 @@ def test_a_batch_may_not_hold_one_title_twice(
     session.rollback()
     assert refused.value.field == "title"
     assert refused.value.message == (
-        "title: rows 1 and 3 have the same title “tide gauge”; give each initiative its own title."
+        "title: Rows 1 and 3 have the same title “tide gauge”; give each initiative its own title."
     )
     assert snapshot() == before
 

@@ -305,15 +305,15 @@ def test_every_bad_row_of_a_batch_is_named_and_nothing_is_stored(session: Sessio
         )
     session.rollback()
     assert refused.value.message == (
-        "row 2, period_id: no period with id 9999.; "
-        "row 4, needs: no initiative with id 8888.; "
-        f"row 5, other_efforts: team {team.id} is listed twice (or is the owning team)."
+        "Row 2, period_id: No period with id 9999. "
+        "Row 4, needs: No initiative with id 8888. "
+        f"Row 5, other_efforts: Team {team.id} is listed twice (or is the owning team)."
     )
     assert refused.value.field == "period_id"  # the first bad row's field
     assert counts(session) == before
     assert session.exec(select(func.count()).select_from(EffortLine)).one() == lines_before
     # One initiative on its own keeps the message without a row number.
-    with pytest.raises(InputError, match=r"^team_id: no team with id 7777\.$"):
+    with pytest.raises(InputError, match=r"^team_id: No team with id 7777\.$"):
         create_initiative(session, initiative_in=good.model_copy(update={"team_id": 7777}))
 
 
@@ -324,9 +324,9 @@ def test_many_bad_rows_are_counted_after_the_first_ten(session: Session) -> None
     )
     with pytest.raises(InputError) as refused:
         create_initiatives(session, initiatives_in=[bad] * 25)
-    assert refused.value.message.count("period_id: no period") == 10
-    assert refused.value.message.startswith("row 1, ")
-    assert refused.value.message.endswith("; and 15 more rows")
+    assert refused.value.message.count("period_id: No period") == 10
+    assert refused.value.message.startswith("Row 1, ")
+    assert refused.value.message.endswith(" And 15 more rows.")
 
 
 def test_rows_committed_between_the_queries_of_one_read_are_skipped(session: Session) -> None:
