@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections import defaultdict
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -1025,6 +1025,7 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
     records = [get_initiative(session, initiative_id=i) for i in dict.fromkeys(initiative_ids)]
     _refuse_needed(session, [record.row for record in records])
     ids = [record.row.id or 0 for record in records]
+    versions = {record.row.id or 0: record.row.version for record in records}
     for record in records:
         audit.record(
             session,
@@ -1048,6 +1049,26 @@ def delete_initiatives(session: Session, *, initiative_ids: Sequence[int], actor
         if refusal is None:
             raise
         raise refusal from exc
+    except StaleDataError as exc:  # changed or deleted by another writer since it was read
+        session.rollback()
+        raise changed_while_deleting(session, versions) from exc
+
+
+def changed_while_deleting(session: Session, versions: Mapping[int, int]) -> ConflictError:
+    """Why deleting initiatives read at `versions` was refused: another writer deleted one of
+    them meanwhile (the 404 a later request would get), or changed one, so the audit entry
+    would not hold what was deleted. Nothing was deleted."""
+    changed = []
+    for initiative_id, version in versions.items():
+        row = get_initiative(session, initiative_id=initiative_id).row
+        if row.version != version:
+            changed.append(f"{quoted(row.title)} (now version {row.version})")
+    return ConflictError(
+        f"Someone else changed {and_list(changed or ['an initiative'])} while it was being "
+        "deleted. Nothing was deleted; look at it again and delete it again if it should "
+        "still go.",
+        field="initiative_id",
+    )
 
 
 def delete_initiative(session: Session, *, initiative_id: int, actor: str = "") -> None:

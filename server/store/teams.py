@@ -6,6 +6,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from sqlalchemy.exc import IntegrityError
+from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, col, delete, func, select
 
 from server.errors import AlreadyStoredError, ConflictError, InputError
@@ -39,7 +40,11 @@ from server.store._common import (
     refuse_if_changed,
     same_name,
 )
-from server.store.initiatives import delete_needs_among, needs_from_outside
+from server.store.initiatives import (
+    changed_while_deleting,
+    delete_needs_among,
+    needs_from_outside,
+)
 from server.store.periods import period_working_days
 from server.wording import counted, in_days, possessive, quoted
 
@@ -287,6 +292,7 @@ def delete_team(
     # Only initiatives asked for go: any the team has without that, the database refuses.
     doomed = owned if with_initiatives else []
     owned_ids = [row.id or 0 for row in doomed]
+    versions = {row.id or 0: row.version for row in doomed}
     try:
         delete_needs_among(session, owned_ids)
         for db_initiative in doomed:
@@ -310,6 +316,9 @@ def delete_team(
                 field="team_id",
             )
         raise refusal from exc
+    except StaleDataError as exc:  # one of its initiatives changed or went meanwhile
+        session.rollback()
+        raise changed_while_deleting(session, versions) from exc
 
 
 def _added_meanwhile(

@@ -4,15 +4,33 @@ deletion refused (the foreign keys are RESTRICT), never taken along unlisted."""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 import pytest
 from fastapi import FastAPI
 from sqlmodel import Session, func, select
 
-from server.errors import ConflictError
-from server.models import AuditEntry, Availability, CapacitySettings, Member, Period, Scenario, Team
-from server.schemas import AvailabilityCreate, CapacitySettingsIn, MemberCreate
+from server.errors import ConflictError, NotFoundError
+from server.models import (
+    AuditEntry,
+    Availability,
+    CapacitySettings,
+    EffortLine,
+    Initiative,
+    Member,
+    Period,
+    Scenario,
+    Team,
+)
+from server.schemas import (
+    AvailabilityCreate,
+    CapacitySettingsIn,
+    InitiativeUpdate,
+    MemberCreate,
+    TeamEffortIn,
+)
+from server.store import initiatives as initiative_store
 from server.store import periods as period_store
 from server.store import plans as plan_store
 from server.store import teams as team_store
@@ -137,3 +155,64 @@ def test_capacity_settings_stored_while_the_period_is_deleted_keep_the_period(
     assert session.get(Period, empty_id) is not None
     assert _count(session, CapacitySettings, period_id=empty_id) == 1
     assert _entries(session, "period.delete") == []
+
+
+def _give_lighthouse_effort(workspace: Workspace) -> Callable[[Session], object]:
+    """Another writer's edit of "Crane rail": two days of Lighthouse's effort (version 2)."""
+    update = InitiativeUpdate(
+        version=1, other_efforts=[TeamEffortIn(team_id=workspace.other_team, likely=2)]
+    )
+    return lambda other: initiative_store.update_initiative(
+        other, initiative_id=workspace.dependant, initiative_in=update
+    )
+
+
+def _lines_of(session: Session, initiative_id: int) -> int:
+    return _count(session, EffortLine, initiative_id=initiative_id)
+
+
+def test_an_initiative_changed_while_it_is_deleted_stays_with_the_change(
+    app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Its entry would list the effort lines read before the change: the new line would go
+    # unlisted, so the deletion is refused instead (it used to fail with a server error).
+    then_another_writer(
+        monkeypatch, initiative_store, "_refuse_needed", app, _give_lighthouse_effort(workspace)
+    )
+    with pytest.raises(ConflictError) as refused:
+        initiative_store.delete_initiative(session, initiative_id=workspace.dependant)
+    assert refused.value.field == "initiative_id"
+    assert refused.value.message == (
+        "Someone else changed “Crane rail” (now version 2) while it was being deleted. Nothing "
+        "was deleted; look at it again and delete it again if it should still go."
+    )
+    assert session.get(Initiative, workspace.dependant) is not None
+    assert _lines_of(session, workspace.dependant) == 2  # its own and Lighthouse's
+    assert _entries(session, "initiative.delete") == []
+
+
+def test_an_initiative_deleted_by_another_writer_meanwhile_is_404(
+    app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    def delete(other: Session) -> None:
+        initiative_store.delete_initiative(other, initiative_id=workspace.dependant)
+
+    then_another_writer(monkeypatch, initiative_store, "_refuse_needed", app, delete)
+    with pytest.raises(NotFoundError) as refused:
+        initiative_store.delete_initiative(session, initiative_id=workspace.dependant)
+    assert "Crane rail" in refused.value.message
+    assert len(_entries(session, "initiative.delete")) == 1  # the other writer's only
+
+
+def test_a_team_whose_initiative_changed_while_it_is_deleted_is_kept(
+    app: FastAPI, session: Session, workspace: Workspace, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    then_another_writer(
+        monkeypatch, team_store, "_belongings", app, _give_lighthouse_effort(workspace)
+    )
+    with pytest.raises(ConflictError) as refused:
+        team_store.delete_team(session, team_id=workspace.team, with_initiatives=True)
+    assert "“Crane rail” (now version 2)" in refused.value.message
+    assert session.get(Team, workspace.team) is not None
+    assert _lines_of(session, workspace.dependant) == 2
+    assert _entries(session, "team.delete") == []
