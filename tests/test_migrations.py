@@ -378,3 +378,61 @@ def test_0006_keeps_what_goes_with_a_team_from_going_unlisted(empty_settings: Se
     assert [_count(empty_settings, t) for t in tables] == [0, 0, 0, 0]
     migrate.upgrade(empty_settings)
     assert _revision(empty_settings) == _head()
+
+
+def test_0007_compares_titles_without_invisible_characters(empty_settings: Settings) -> None:
+    """Before 0007 a zero-width space made a second title that reads like the first."""
+    migrate.upgrade(empty_settings, "0002")
+    engine = make_engine(empty_settings)
+    with engine.begin() as conn:
+        conn.execute(
+            text(
+                "INSERT INTO team (id, name, default_spread, created_at) "
+                "VALUES (1, 'Harbour', 0, '2026-01-01')"
+            )
+        )
+        for row_id, period_id, title in [
+            (1, None, "Fare capping"),
+            (2, None, "Fare\u200b capping"),  # a zero-width space: reads as 1
+            (3, None, "Fare cap\u00adping"),  # a soft hyphen: reads as 1 (unless at a break)
+            (4, None, "Tide\u200dgauge"),  # a zero-width joiner, and no twin: kept as typed
+        ]:
+            conn.execute(
+                text(
+                    "INSERT INTO initiative (id, team_id, period_id, title, notes, value, "
+                    "state, position, version, created_at, updated_at) VALUES (:id, 1, "
+                    ":period, :title, '', 1, 'candidate', :id, 1, '2026-01-01', '2026-01-01')"
+                ),
+                {"id": row_id, "period": period_id, "title": title},
+            )
+    engine.dispose()
+    migrate.upgrade(empty_settings, "0006")
+    keys_before = [row[3] for row in _initiatives(empty_settings)]
+    assert len(set(keys_before)) == 4  # three of them one title to a reader, yet three keys
+
+    migrate.upgrade(empty_settings, "0007")
+    assert _initiatives(empty_settings) == [
+        (1, "Fare capping", 1, "fare capping"),
+        (2, "Fare\u200b capping (2)", 2, "fare capping (2)"),
+        (3, "Fare cap\u00adping (3)", 2, "fare capping (3)"),
+        (4, "Tide\u200dgauge", 1, "tidegauge"),
+    ]
+    engine = make_engine(empty_settings)
+    try:  # the index now refuses the twin the store refuses
+        with pytest.raises(IntegrityError), engine.begin() as conn:
+            conn.execute(
+                text(
+                    "INSERT INTO initiative (team_id, period_id, title, title_key, notes, value, "
+                    "state, position, version, created_at, updated_at) VALUES (1, NULL, "
+                    "'Tide gauge', 'tidegauge', '', 1, 'candidate', 9, 1, '2026-01-01', "
+                    "'2026-01-01')"
+                )
+            )
+    finally:
+        engine.dispose()
+
+    migrate.downgrade(empty_settings, "0006")  # keys by the earlier rule; renames stay
+    assert [row[1] for row in _initiatives(empty_settings)][1] == "Fare\u200b capping (2)"
+    assert [row[3] for row in _initiatives(empty_settings)][3] == "tide\u200dgauge"
+    migrate.upgrade(empty_settings)
+    assert _revision(empty_settings) == _head()

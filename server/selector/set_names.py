@@ -19,9 +19,12 @@ _DIGEST_CHARS = 64
 def name_key(name: str) -> str:
     """How names are compared: as the Unicode Standard's compatibility caseless match (section
     3.13, D146, from memory: NFKD(casefold(NFKD(casefold(NFD(name)))))), with runs of white
-    space as one and the ends trimmed. So "café" typed with a combining accent, "CAFÉ" and the
-    full-width "ｃａｆé" are one name.
+    space as one, the ends trimmed and invisible format characters (general category Cf:
+    zero-width spaces and joiners, the soft hyphen) left out. So "café" typed with a
+    combining accent, "CAFÉ", the full-width "ｃａｆé" and "ca\u200bfé" are one name: two
+    names that read the same on a page cannot both be stored.
     """
+    name = "".join(ch for ch in name if unicodedata.category(ch) != "Cf")
     folded = unicodedata.normalize("NFD", name).casefold()
     folded = unicodedata.normalize("NFKD", unicodedata.normalize("NFKD", folded).casefold())
     key = " ".join(folded.split())

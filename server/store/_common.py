@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import unicodedata
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any, TypeVar
 
@@ -21,19 +20,11 @@ RowT = TypeVar("RowT", bound=SQLModel)
 BasedOn = str | frozenset[str] | None
 
 
-def name_clash_key(name: str) -> str:
-    """How names of teams, members and periods are compared to refuse a second of one name:
-    `name_key` (case, accents typed either way, full-width letters, runs of spaces), with
-    invisible format characters (zero-width spaces and joiners) left out, so two names that
-    read the same on a page cannot both be stored."""
-    return name_key("".join(ch for ch in name if unicodedata.category(ch) != "Cf"))
-
-
 def same_name(rows: Iterable[RowT], name: str, row_id: int | None) -> RowT | None:
     """The first of `rows` (with `name` and `id`) other than `row_id` whose name clashes."""
-    wanted = name_clash_key(name)
+    wanted = name_key(name)
     for row in rows:
-        if name_clash_key(row.name) == wanted and row.id != row_id:  # type: ignore[attr-defined]
+        if name_key(row.name) == wanted and row.id != row_id:  # type: ignore[attr-defined]
             return row
     return None
 

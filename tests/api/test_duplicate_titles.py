@@ -51,6 +51,9 @@ def _harbour(session: Session, workspace: Workspace) -> Team:
         "Quay  wall",
         "\uff31uay wall",  # a full-width Q reads the same
         "Quay\u00a0wall",  # a no-break space
+        "Quay\u200b wall",  # a zero-width space (stored keys recomputed by migration 0007)
+        "Qu\u00aday wall",  # a soft hyphen
+        "Quay wall\ufeff",  # a zero-width no-break space at the end
     ],
 )
 def test_a_second_title_in_the_team_and_period_is_refused(

@@ -24,6 +24,8 @@ from server.selector.set_names import KEY_MAX, SetNames, name_key
         ("Stra\u00dfe", "STRASSE"),  # sharp s folds to ss
         ("\u212b ngstr\u00f6m", "\u00e5 ngstro\u0308m"),  # angstrom sign, å, ö decomposed
         ("Fare\u00a0rules", "Fare rules"),  # no-break space is white space
+        ("Fare\u200b rules", "Fare rules"),  # a zero-width space is left out
+        ("Fare ru\u00adles\u200d", "Fare rules"),  # a soft hyphen, a zero-width joiner
     ],
 )
 def test_names_that_read_the_same_have_one_key(one: str, other: str) -> None:
