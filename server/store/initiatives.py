@@ -54,8 +54,9 @@ BACKLOG = "backlog"
 
 
 def title_key(title: str) -> str:
-    """How titles are compared to find the same one twice, as either-or set names are: runs
-    of spaces as one, trimmed, ignoring case. Pages show "Fare  rules" and "Fare rules" alike."""
+    """How titles are compared to find the same one twice, as names and either-or sets are
+    (`name_key`): runs of spaces as one, trimmed, ignoring case, accents typed either way and
+    invisible characters. Pages show "Fare  rules" and "Fare\u200b rules" alike."""
     return name_key(title)
 
 
