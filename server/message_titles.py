@@ -67,3 +67,16 @@ def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
         text = subject + rest
     text = _titled_keys(text, titles)
     return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")
+
+
+def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, str]) -> str:
+    """The selector's reason with initiative keys replaced by titles (snapshots outlive ids)."""
+    text = reason
+    names = ", ".join(displaces)
+    if names:
+        titled = ", ".join(f"“{titles.get(k, k)}”" for k in displaces)
+        text = text.replace(f"displace {names}.", f"displace {titled}.")
+        text = text.replace(f"; {names} would take", f"; {titled} would take")
+    for key, title in titles.items():
+        text = text.replace(repr(key), f"“{title}”")
+    return titled_leavers(text, titles)

@@ -15,16 +15,21 @@ Rules, matching the single-team plans where they can:
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
 
 from sqlmodel import Session, col, select
 
+from server.message_titles import titled_refusal, with_titles
 from server.models import Initiative, Period
 from server.planning.team_capacity import capacity_of
 from server.selector import JointItem, JointSelection, SelectorInputError, solve_joint
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period
 from server.store.teams import list_teams
+
+_TEAM_KEY = re.compile(r"team '(\d+)'")
 
 
 @dataclass(frozen=True)
@@ -127,11 +132,15 @@ def joint_plan_for(session: Session, *, period_id: int, resolution: float = 0.5)
     cross = [r for r in records if len(r.efforts) > 1]
     selection = None
     message = None
+    titles = {str(r.row.id): r.row.title for r in records}
     if cross and capacities and items:
         try:
             selection = solve_joint(items, capacities, resolution=resolution)
         except SelectorInputError as exc:
-            message = exc.message
+            message = titled_refusal(_teams_named(exc.message, names), exc.field, titles)
+        if selection is not None and selection.infeasibility:
+            worded = with_titles(_teams_named(selection.infeasibility, names), titles)
+            selection = replace(selection, infeasibility=worded)
     elif cross:
         message = "No team with capacity takes part, so there is nothing to plan jointly."
     chosen = set(selection.chosen) if selection is not None else set()
@@ -175,6 +184,11 @@ def joint_plan_for(session: Session, *, period_id: int, resolution: float = 0.5)
         message=message,
         titles={r.row.id or 0: r.row.title for r in records},
     )
+
+
+def _teams_named(text: str, names: Mapping[int, str]) -> str:
+    """The selector names a team by its key (the id as text): name it as pages do."""
+    return _TEAM_KEY.sub(lambda m: f"team {names.get(int(m[1]), m[1])}", text)
 
 
 def _without_unmet_needs(item: JointItem, planned: set[str]) -> JointItem:

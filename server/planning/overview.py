@@ -114,7 +114,7 @@ def _summary(session: Session, team: Team, period_id: int, resolution: float) ->
                 exc.message, exc.field, {str(r.row.id): r.row.title for r in records}
             ),
         )
-    selection = plan.selection
+    selection = plan.worded_selection()
     return TeamSummary(
         team=team,
         initiatives=len(plan.rows),

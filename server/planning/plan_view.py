@@ -26,12 +26,13 @@ from server.planning.curve_chart import (
     readout,
 )
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
+from server.planning.team_capacity import no_capacity_message
 from server.planning.undo import COVERS as UNDO_COVERS
 from server.planning.undo import Offer, redo_offer, undo_offer
 from server.selector import SelectorInputError, default_curve_to
 from server.selector.risk import FitEstimate, pert_mean, pert_sd
 from server.store.initiatives import InitiativeRecord, list_initiatives
-from server.store.periods import get_period, list_periods, period_working_days
+from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
 
 CONFIDENCE_PRESETS = (50.0, 80.0, 90.0)
@@ -677,16 +678,7 @@ def no_plan_message(
     records = list_initiatives(session, team_id=team_id, period_id=period_id, involving_team=True)
     titles = {str(r.row.id): r.row.title for r in records}
     if exc.field == "capacity":
-        period = get_period(session, period_id=period_id)
-        if period_working_days(period) == 0:
-            return (
-                f"{period.name} has no working days: check its dates, non-working dates and "
-                "working weekdays on the period's page."
-            )
-        return (
-            "This team has no capacity in this period yet (no members, or everyone is away): "
-            "add members and their availability on the team page to get a plan."
-        )
+        return no_capacity_message(session, period_id=period_id)
     text = titled_refusal(exc.message, exc.field, titles)
     if whatif.forcing:
         # The selector plans forced-in work as pinned and forced-out work as ruled out.

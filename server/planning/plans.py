@@ -20,6 +20,7 @@ from functools import lru_cache
 from sqlmodel import Session, col, select
 
 from server.capacity import CapacityBreakdown, MemberAvailability, team_capacity
+from server.message_titles import titled_reason, with_titles
 from server.models import Initiative, Period, Team
 from server.planning.team_capacity import TeamCapacity, capacity_of
 from server.selector import (
@@ -106,6 +107,23 @@ class LivePlan:
     # With a confidence level other than P50: the value of the P50 plan, to show the price of
     # the extra certainty.
     p50_value: float | None = None
+
+    def worded_selection(self) -> Selection:
+        """The selection as a person reads it, as snapshots and the API give it: initiatives
+        named by title in its infeasibility and reasons, blocked work said to be blocked."""
+        titles = {row.key: row.title for row in self.rows}
+        worded = {row.key: row.explanation for row in self.rows if row.explanation is not None}
+        selection = self.selection
+        explanations = selection.explanations
+        if explanations is not None:
+            explanations = tuple(
+                replace(e, reason=titled_reason(e.reason, e.displaces, titles))
+                for e in (worded.get(x.key, x) for x in explanations)
+            )
+        infeasibility = selection.infeasibility and with_titles(
+            selection.infeasibility, titles, selection.forced_by_needs
+        )
+        return replace(selection, explanations=explanations, infeasibility=infeasibility)
 
     @property
     def chosen_rows(self) -> list[PlanRow]:

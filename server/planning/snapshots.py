@@ -26,11 +26,11 @@ from sqlmodel import Session
 
 from server.capacity import CapacityBreakdown
 from server.errors import InputError, NotFoundError
-from server.message_titles import titled_leavers, titled_refusal
+from server.message_titles import titled_refusal
 from server.models import Period
 from server.planning import curve_chart
 from server.planning.plans import ROUNDING_WARNING_MARK, LivePlan, PlanOptions, plan_for
-from server.planning.team_capacity import capacity_of
+from server.planning.team_capacity import capacity_of, no_capacity_message
 from server.selector import Rounding, SelectorInputError, default_curve_to
 from server.selector.risk import EstimateError
 from server.store.initiatives import list_initiatives
@@ -238,6 +238,9 @@ def solve_live(session: Session, *, team_id: int, period_id: int, options: PlanO
     try:
         return plan_for(session, team_id=team_id, period_id=period_id, options=options)
     except SelectorInputError as exc:  # named by title: the selector names initiatives by key
+        if exc.field == "capacity":
+            message = no_capacity_message(session, period_id=period_id)
+            raise InputError(message, field="capacity") from exc
         records = list_initiatives(
             session, team_id=team_id, period_id=period_id, involving_team=True
         )
@@ -341,19 +344,6 @@ def _finite(value: float | None) -> float | None:
     return value if value is not None and math.isfinite(value) else None
 
 
-def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, str]) -> str:
-    """The selector's reason with initiative keys replaced by titles (snapshots outlive ids)."""
-    text = reason
-    names = ", ".join(displaces)
-    if names:
-        titled = ", ".join(f"“{titles.get(k, k)}”" for k in displaces)
-        text = text.replace(f"displace {names}.", f"displace {titled}.")
-        text = text.replace(f"; {names} would take", f"; {titled} would take")
-    for key, title in titles.items():
-        text = text.replace(repr(key), f"“{title}”")
-    return titled_leavers(text, titles)
-
-
 def _curve_of(plan: LivePlan) -> CurveSnapshot | None:
     """The curve the live plan page shows: the DP's own, or found by solving again (HiGHS)."""
     selection = plan.selection
@@ -380,12 +370,9 @@ def _result_of(
     changed_inputs: list[str],
     live_days_off: float | None = None,
 ) -> PlanResult:
-    selection = plan.selection
+    selection = plan.worded_selection()
     rounding = selection.rounding
     fit = plan.fit
-    titles = {row.key: row.title for row in plan.rows}
-    # The rows' explanations: the selector's, with blocked work said to be blocked, not ruled out.
-    worded = {row.key: row.explanation for row in plan.rows if row.explanation is not None}
     return PlanResult(
         feasible=selection.feasible,
         chosen=list(selection.chosen),
@@ -416,10 +403,10 @@ def _result_of(
                 regret=e.regret,
                 threshold_value=e.threshold_value,
                 displaces=list(e.displaces),
-                reason=titled_reason(e.reason, e.displaces, titles),
+                reason=e.reason,
                 constraint_cost=e.constraint_cost,
             )
-            for e in (worded.get(x.key, x) for x in selection.explanations or ())
+            for e in selection.explanations or ()
         ],
         warnings=list(plan.warnings),
         fit=FitSnapshot(

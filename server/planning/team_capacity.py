@@ -51,3 +51,18 @@ def capacity_of(session: Session, *, team_id: int, period_id: int) -> TeamCapaci
         member_ids=tuple(member.id or 0 for member in members),
         breakdown=breakdown,
     )
+
+
+def no_capacity_message(session: Session, *, period_id: int) -> str:
+    """Why a team has no capacity to plan with, and what to change (the selector's own words,
+    "capacity must be greater than zero", say neither)."""
+    period = get_period(session, period_id=period_id)
+    if period_working_days(period) == 0:
+        return (
+            f"{period.name} has no working days: check its dates, non-working dates and "
+            "working weekdays on the period's page."
+        )
+    return (
+        "This team has no capacity in this period yet (no members, or everyone is away): "
+        "add members and their availability on the team page to get a plan."
+    )

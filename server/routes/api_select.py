@@ -219,7 +219,7 @@ def live_plan(
         "team": {"id": plan.team.id, "name": plan.team.name},
         "period": {"id": plan.period.id, "name": plan.period.name},
         "capacity_days": plan.capacity.capacity_days,
-        "selection": selection_to_dict(plan.selection),
+        "selection": selection_to_dict(plan.worded_selection()),
         "initiatives": [
             {
                 "id": row.id,

@@ -378,6 +378,25 @@ def test_a_scenario_forcing_in_blocked_work_is_refused(
     assert session.exec(select(func.count()).select_from(Scenario)).one() == before
 
 
+def test_the_live_plan_api_says_blocked_work_is_blocked_and_names_work_by_title(
+    client: TestClient, session: Session, harbour
+) -> None:
+    team, period, needed = harbour
+    fare = make_initiative(session, team, period, "Fare estimate", 3, 17, needs=[needed])
+    make_initiative(session, team, period, "Map tiles", 9, 5)
+    make_initiative(session, team, period, "Route cache", 8, 4)
+    answer = client.get(f"/api/v1/teams/{team.id}/periods/{period.id}/plan").json()
+    reasons = {e["key"]: e["reason"] for e in answer["selection"]["explanations"]}
+    blocked = reasons[str(fare.row.id)]
+    assert blocked.startswith("Blocked: it needs “Fare API”, which cannot be chosen in this plan;")
+    assert "Ruled out" not in blocked
+    # Map tiles and Route cache cannot both fit in 10 days: the one left out names the other.
+    worded = " ".join(reasons.values())
+    assert "“Map tiles”" in worded or "“Route cache”" in worded
+    assert all(f"'{key}'" not in worded for key in reasons), worded
+    assert not any(f"displace {key}" in worded for key in reasons), worded
+
+
 def test_a_saved_plan_says_blocked_work_is_blocked(
     form_client: TestClient, session: Session, harbour
 ) -> None:

@@ -12,7 +12,7 @@ from scipy.optimize import Bounds, LinearConstraint, milp
 from sqlmodel import Session, select
 
 from server import demo
-from server.models import Period, Team
+from server.models import Initiative, Period, Team
 from server.planning.joint import joint_plan_for
 from server.planning.plans import PlanOptions, plan_for
 from server.schemas import CapacitySettingsIn, EffortIn, InitiativeCreate, TeamEffortIn
@@ -335,3 +335,29 @@ def test_the_overview_lists_what_the_joint_plan_changes_per_team(
     assert said(f"joint-change-{lighthouse.id}") == (
         "Lighthouse: the same initiatives as its own plan."
     )
+
+
+def test_a_joint_plan_that_cannot_be_made_names_teams_and_work_as_pages_do(
+    form_client: TestClient, session: Session
+) -> None:
+    """Pinned shared work spending 12 of Lighthouse's 10 days: the overview says so with the
+    team's name, not the selector's key for it (the team's id)."""
+    period = make_period(session)
+    harbour = _team(session, "Harbour", period)
+    lighthouse = _team(session, "Lighthouse", period)
+    make_initiative(session, harbour, period, "Quay wall", 6, 30)
+    shared = _shared(
+        session, period, harbour, lighthouse, ("Tide gate", {"Harbour": 2, "Lighthouse": 12}, 9)
+    )
+    row = session.get(Initiative, shared)
+    assert row is not None
+    row.state = "pinned"
+    session.add(row)
+    session.commit()
+    joint = joint_plan_for(session, period_id=period.id or 0)
+    assert joint.selection is not None
+    assert joint.selection.infeasibility == "Pinned work overruns team Lighthouse by 2 days."
+    root = parse_html(form_client.get(f"/periods/{period.id}/overview").text)
+    text = root.text()
+    assert "Pinned work overruns team Lighthouse by 2 days." in text
+    assert f"team '{lighthouse.id}'" not in text

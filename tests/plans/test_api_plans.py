@@ -9,7 +9,7 @@ from sqlmodel import Session, col, select
 
 from server.models import AuditEntry
 from tests.factories import make_period, make_team
-from tests.plans.conftest import Workspace, counts, edit, error_fields, save_live
+from tests.plans.conftest import Workspace, counts, edit, error_fields, error_text, save_live
 
 
 def test_every_action_round_trips_through_the_api(
@@ -300,3 +300,24 @@ def test_ids_too_large_for_any_row_are_refused_not_crashed(
     response = getattr(client, method)(path, **kwargs)
     assert response.status_code == 422, response.text
     assert counts(session) == before
+
+
+def test_a_team_without_capacity_is_told_what_to_change_not_the_selectors_words(
+    session: Session, client: TestClient
+) -> None:
+    """No members, so no capacity: saving or trying a scenario says so in the page's words."""
+    team, period = make_team(session, "Empty berth"), make_period(session)
+    base = {"team_id": team.id, "period_id": period.id}
+    before = counts(session)
+    saved = client.post("/api/v1/plans", json={**base, "name": "Plan"})
+    assert saved.status_code == 422, saved.text
+    assert error_fields(saved) == ["capacity"]
+    message = error_text(saved)
+    assert "no capacity in this period yet" in message
+    assert "greater than zero" not in message
+    # A scenario may still be kept (members may be added later); it says why it has no plan.
+    scenario = client.post("/api/v1/scenarios", json={**base, "name": "Try", "changes": {}})
+    assert scenario.status_code == 201, scenario.text
+    for problem in ("live_problem", "scenario_problem"):
+        assert "no capacity in this period yet" in scenario.json()[problem]
+    assert counts(session)["SavedPlan"] == before["SavedPlan"]
