@@ -79,6 +79,8 @@ def decide(
                         )
     has_needs = any(checked.needs)
     if has_needs:
+        if checked.groups:
+            _block_needed_alternatives(checked, out_reason, in_plan)
         _block_dependents(checked, out_reason, in_plan)
     if in_plan or out_reason:
         free = tuple(i for i in range(len(keys)) if i not in in_plan and i not in out_reason)
@@ -98,6 +100,54 @@ def decide(
         free_needs=free_needs,
         conflict=conflict,
     )
+
+
+def _block_needed_alternatives(
+    checked: CheckedProblem, out_reason: dict[int, str], in_plan: set[int]
+) -> None:
+    """Mark what needs, with itself, two members of one either-or set: it can never be chosen
+    (only one of a set can be in), which is not a matter of fit."""
+    keys = checked.keys
+    # For each initiative, the either-or members among itself and all it needs (one per set),
+    # or the first two members of one set found there. Needs are acyclic (checked before).
+    members: dict[int, dict[str, int]] = {}
+    clash: dict[int, tuple[int, int, str]] = {}
+    for start in range(len(keys)):
+        stack = [(start, False)]
+        while stack:
+            node, expanded = stack.pop()
+            if node in members:
+                continue
+            parents = checked.needs[node]
+            if not expanded:
+                stack.append((node, True))
+                stack.extend((p, False) for p in parents if p not in members)
+                continue
+            found: dict[str, int] = {}
+            group = checked.group_of[node]
+            if group is not None:
+                found[group] = node
+            for parent in parents:
+                if parent in clash and node not in clash:
+                    clash[node] = clash[parent]
+                for name, member in members[parent].items():
+                    if found.setdefault(name, member) != member and node not in clash:
+                        clash[node] = (found[name], member, name)
+            members[node] = found
+    for i, (first, second, name) in clash.items():
+        if i in out_reason or i in in_plan:
+            continue
+        if i in (first, second):
+            other = second if i == first else first
+            out_reason[i] = (
+                f"it needs {keys[other]!r}, its alternative in the either-or set {name!r}, "
+                "and only one of a set can be in the plan"
+            )
+        else:
+            out_reason[i] = (
+                f"it needs both {keys[first]!r} and {keys[second]!r}, alternatives in the "
+                f"either-or set {name!r}, and only one of a set can be in the plan"
+            )
 
 
 def _block_dependents(

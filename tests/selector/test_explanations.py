@@ -51,6 +51,10 @@ def _check_explanations(problem: Problem) -> None:
         expected_regret = 0.0 if opposite is None else max(0.0, best - opposite)
         assert math.isclose(why.regret, expected_regret, abs_tol=1e-9)
         assert why.reason
+        if "does not fit" in why.reason:
+            # Said of fit, so with room for everything it could be chosen.
+            roomy = replace(base, capacity=sum(it.effort for it in problem.items) + 1)
+            assert brute_force(roomy, force_in=[i]).value is not None, (item, why)
         if why.threshold_value is not None:
             if why.chosen:
                 assert math.isclose(why.threshold_value, item.value - why.regret, abs_tol=1e-9)
@@ -203,3 +207,30 @@ def test_leaving_out_what_others_need_names_them() -> None:
         "c would take its place."
     )
     assert "leave the plan too" not in why["b"].reason
+
+
+def test_needing_an_alternative_of_its_own_set_is_not_called_a_matter_of_fit() -> None:
+    """Worked by hand: a needs b, and a and b are alternatives (set x), so a can never be in;
+    d needs c and e, alternatives in set y, so d can never be in either. Room for all."""
+    problem = Problem(
+        items=(
+            Item("a", 3, 10, either_or="x", needs=("b",)),
+            Item("b", 2, 1, either_or="x"),
+            Item("c", 1, 1, either_or="y"),
+            Item("e", 1, 1, either_or="y"),
+            Item("d", 1, 50, needs=("c", "e")),
+        ),
+        capacity=20,
+    )
+    selection = solve(problem, explain=True)
+    why = {e.key: e for e in selection.explanations or ()}
+    assert why["a"].reason == (
+        "Left out: it needs 'b', its alternative in the either-or set 'x', and only one of a "
+        "set can be in the plan."
+    )
+    assert why["d"].reason == (
+        "Left out: it needs both 'c' and 'e', alternatives in the either-or set 'y', and only "
+        "one of a set can be in the plan."
+    )
+    assert set(indices(problem, selection.chosen)) == set(brute_force(problem).chosen)
+    assert not {"a", "d"} & set(selection.chosen)
