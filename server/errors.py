@@ -67,6 +67,15 @@ class StaleVersionError(ConflictError):
         return {**super().detail(), "current": self.current}
 
 
+class NothingStoredError(ConflictError):
+    """A replace-only write found no row to replace. `found` names what is missing, without
+    advice: the caller that asked for replace-only (an If-Match: * on the API) says what to do."""
+
+    def __init__(self, found: str) -> None:
+        super().__init__(f"{found} Nothing was saved.")
+        self.found = found
+
+
 class AlreadyStoredError(ConflictError):
     """A create-only write found the row already stored; carries its values.
 

@@ -159,8 +159,9 @@ def list_availability(
     responses=CONDITIONAL_UPSERT,
     description="Set a member's days off (and optional allocation) in a period; replaces any "
     "earlier row for the same member and period. Days only: never store a reason. To replace "
-    "a row only as you read it, send its ETag in If-Match (412 if it changed or is gone); to "
-    "write only when no row is stored yet, send If-None-Match: * (412 if one is).",
+    "a row only as you read it, send its ETag in If-Match (412 if it changed or is gone), or "
+    "If-Match: * to replace whatever is stored (412 if nothing is); to write only when no row "
+    "is stored yet, send If-None-Match: * (412 if one is).",
 )
 def set_availability(
     availability_in: AvailabilityCreate,
@@ -173,6 +174,7 @@ def set_availability(
         availability_in=availability_in,
         based_on=condition.based_on,
         create_only=only_create,
+        replace_only=condition.any_stored,
     )
     return condition(_availability(db_row))
 

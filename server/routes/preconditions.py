@@ -6,7 +6,8 @@ capacity settings in a period) answer a single-row GET and every successful writ
 `based_on`) as a strong entity tag. A write may send it back in `If-Match`; the store then
 refuses the write when the row has changed since (`refuse_if_changed`), and `if_match` turns
 that refusal into 412 Precondition Failed, naming the stored values and carrying their ETag.
-No If-Match, or `If-Match: *`, writes without a condition, as before.
+No If-Match, or `If-Match: *`, writes without a condition, as before; on the days-off upsert
+`If-Match: *` also means "only if a row is stored" (412 when none is).
 
 An upsert (the days-off POST) also reads `If-None-Match: *` (RFC 9110, section 13.1.2): write
 only when no row is stored yet, so two people entering the same member's days at once cannot
@@ -29,7 +30,7 @@ from fastapi import Depends, Header, Request, Response
 from pydantic import BaseModel
 from sqlmodel import SQLModel
 
-from server.errors import AlreadyStoredError, LoadlineError, StaleVersionError
+from server.errors import AlreadyStoredError, LoadlineError, NothingStoredError, StaleVersionError
 from server.routes.responses import ErrorBody, ErrorDetail
 from server.store._common import fingerprint
 
@@ -180,12 +181,27 @@ class ETagged:
 
 
 class Precondition(ETagged):
-    """A write's If-Match: `based_on` goes to the store (None: no condition)."""
+    """A write's If-Match: `based_on` goes to the store (None: no condition); `any_stored`
+    (If-Match: *) lets an upsert replace a stored row but not create one."""
 
-    def __init__(self, response: Response, based_on: frozenset[str] | None, weak: bool) -> None:
+    def __init__(
+        self,
+        response: Response,
+        based_on: frozenset[str] | None,
+        weak: bool,
+        *,
+        any_stored: bool = False,
+    ) -> None:
         super().__init__(response)
         self.based_on = based_on
         self.weak = weak
+        self.any_stored = any_stored
+
+
+class NoStoredRowError(LoadlineError):
+    """If-Match: * on an upsert with no row stored (412, RFC 9110 section 13.1.1)."""
+
+    status_code = 412
 
 
 class ConditionalRead(ETagged):
@@ -224,10 +240,18 @@ def if_match(
     if_match_header: Annotated[str | None, Header(alias=HEADER, description=IF_MATCH_HELP)] = None,
 ) -> Iterator[Precondition]:
     """The If-Match of a write; the store's refusal of a stale one becomes 412."""
-    based_on, weak = parse_if_match(request.headers.getlist(HEADER))
-    precondition = Precondition(response, based_on, weak)
+    values = request.headers.getlist(HEADER)
+    based_on, weak = parse_if_match(values)
+    any_stored = ", ".join(values).strip(" \t") == "*"
+    precondition = Precondition(response, based_on, weak, any_stored=any_stored)
     try:
         yield precondition
+    except NothingStoredError as exc:
+        message = (
+            f"{exc.found} Nothing was saved: {HEADER}: * writes only over a stored row. "
+            f"Leave {HEADER} out, or send {NONE_MATCH_HEADER}: *, to record them."
+        )
+        raise NoStoredRowError(message, field=HEADER) from exc
     except StaleVersionError as exc:
         if based_on is None or exc.changed is None:
             raise
@@ -330,7 +354,8 @@ CONDITIONAL_UPSERT: dict[int | str, dict[str, Any]] = {
     412: {
         "model": ErrorBody,
         "description": f"Precondition Failed: the row changed since the ETag sent in {HEADER}, "
-        f"or {NONE_MATCH_HEADER}: * was sent and a row is stored. Nothing was stored; "
-        "detail.current holds the stored values and the ETag header their tag.",
+        f"or {NONE_MATCH_HEADER}: * was sent and a row is stored (detail.current holds the "
+        f"stored values and the ETag header their tag), or {HEADER}: * was sent and no row is "
+        "stored. Nothing was stored.",
     },
 }

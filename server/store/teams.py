@@ -9,7 +9,7 @@ from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm.exc import StaleDataError
 from sqlmodel import Session, col, delete, func, select
 
-from server.errors import AlreadyStoredError, ConflictError, InputError
+from server.errors import AlreadyStoredError, ConflictError, InputError, NothingStoredError
 from server.models import (
     Availability,
     CapacitySettings,
@@ -618,10 +618,12 @@ def set_availability(
     actor: str = "",
     based_on: BasedOn = None,
     create_only: bool = False,
+    replace_only: bool = False,
 ) -> Availability:
     """Create or replace a member's availability in a period (one row per member and period);
     `based_on`: see `refuse_if_changed`. create_only refuses to replace a stored row
-    (AlreadyStoredError), after the based_on check."""
+    (AlreadyStoredError), after the based_on check; replace_only refuses to create one
+    (NothingStoredError)."""
     db_member = get_member(session, member_id=availability_in.member_id)
     period = get_or_404(session, Period, availability_in.period_id, "period")
     _check_days_off(period, availability_in.days_off)
@@ -637,6 +639,10 @@ def set_availability(
         f"{possessive(db_member.name)} days off in {period.name} were",
         _availability_words(before) if before else "none recorded",
     )
+    if replace_only and before is None:
+        raise NothingStoredError(
+            f"{possessive(db_member.name)} days off in {period.name} are not recorded yet."
+        )
     if create_only and before is not None:
         raise AlreadyStoredError(
             f"{possessive(db_member.name)} days off in {period.name} are already recorded: "

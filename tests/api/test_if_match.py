@@ -461,6 +461,28 @@ def test_the_days_off_upsert_with_if_none_match_star_creates_when_no_row_is_stor
     assert client.get(f"/api/v1/availability/{created.json()['id']}").json()["days_off"] == 2
 
 
+def test_the_days_off_upsert_with_if_match_star_replaces_but_never_creates(
+    client: TestClient, workspace: Workspace, snapshot: Callable[[], Snapshot]
+) -> None:
+    # RFC 9110, section 13.1.1: "*" holds only when a current representation exists.
+    body = {"member_id": workspace.member, "period_id": workspace.period, "days_off": 4}
+    replaced = client.post("/api/v1/availability", json=body, headers={"If-Match": "*"})
+    assert replaced.status_code == 201, replaced.text
+    assert replaced.json()["days_off"] == 4
+    assert client.delete(f"/api/v1/availability/{replaced.json()['id']}").status_code == 204
+    before = snapshot()
+
+    refused = client.post("/api/v1/availability", json=body, headers={"If-Match": "*"})
+
+    assert refused.status_code == 412, refused.text
+    assert error_fields(refused) == ["If-Match"]
+    message = refused.json()["detail"]["message"]
+    assert "days off in Sprint 1 are not recorded yet" in message
+    assert "Nothing was saved" in message
+    assert "etag" not in refused.headers
+    assert snapshot() == before
+
+
 @pytest.mark.parametrize("value", ['"0123456789abcdef"', 'W/"0123456789abcdef"', "*, *", "none"])
 def test_if_none_match_other_than_star_is_400_naming_the_header(
     client: TestClient, workspace: Workspace, value: str, snapshot: Callable[[], Snapshot]
