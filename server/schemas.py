@@ -37,6 +37,10 @@ def _not_a_boolean(value: Any) -> Any:
 
 _NUMBER = BeforeValidator(_not_a_boolean)
 WholeNumber = Annotated[int, _NUMBER]
+# Ids are INTEGER columns (32-bit on PostgreSQL): a larger number can name no row, and is
+# refused naming its field rather than looked up.
+MAX_ID = 2**31 - 1
+RowId = Annotated[int, _NUMBER, Field(ge=1, le=MAX_ID)]
 Name = Annotated[
     str,
     StringConstraints(
@@ -96,7 +100,7 @@ class TeamPublic(BaseModel):
 
 
 class MemberCreate(_Strict):
-    team_id: WholeNumber
+    team_id: RowId
     name: Name
     allocation: Share = 1.0
 
@@ -179,8 +183,8 @@ class PeriodPublic(BaseModel):
 
 
 class AvailabilityCreate(_Strict):
-    member_id: WholeNumber
-    period_id: WholeNumber
+    member_id: RowId
+    period_id: RowId
     days_off: DaysOff = 0.0
     allocation: Share | None = None
 
@@ -239,7 +243,7 @@ class EffortIn(_Strict):
     high: EffortDays | None = None
     # Reads show an initiative's own effort with its team; a write may send that back, so a
     # read-change-write round trip works, but only with the owning team (the store checks).
-    team_id: WholeNumber | None = Field(
+    team_id: RowId | None = Field(
         default=None,
         description="Optional on an initiative's own effort: the owning team, as reads show "
         "it. Other teams' effort goes in other_efforts.",
@@ -266,7 +270,7 @@ class EffortIn(_Strict):
 
 
 class TeamEffortIn(EffortIn):
-    team_id: WholeNumber
+    team_id: RowId
 
 
 def own_effort_refusal(given: int, owner: int) -> str:
@@ -285,8 +289,8 @@ class EffortPublic(BaseModel):
 
 
 class InitiativeCreate(_Strict):
-    team_id: WholeNumber
-    period_id: WholeNumber | None = None
+    team_id: RowId
+    period_id: RowId | None = None
     title: Title
     notes: Notes = ""
     effort: EffortIn
@@ -295,7 +299,7 @@ class InitiativeCreate(_Strict):
     confidence: Share | None = None
     state: InitiativeState = "candidate"
     either_or: Name | None = None
-    needs: list[WholeNumber] = Field(default_factory=list, max_length=50)
+    needs: list[RowId] = Field(default_factory=list, max_length=50)
 
     @field_validator("either_or", mode="before")
     @classmethod
@@ -312,9 +316,9 @@ class InitiativeCreate(_Strict):
 
 class InitiativeUpdate(_Strict):
     version: WholeNumber = Field(
-        description="The version this change is based on (from the last read)."
+        ge=1, le=MAX_ID, description="The version this change is based on (from the last read)."
     )
-    period_id: WholeNumber | None = None
+    period_id: RowId | None = None
     title: Title | None = None
     notes: Notes | None = None
     effort: EffortIn | None = None
@@ -323,7 +327,7 @@ class InitiativeUpdate(_Strict):
     confidence: Share | None = None
     state: InitiativeState | None = None
     either_or: Name | None = None
-    needs: list[WholeNumber] | None = Field(default=None, max_length=50)
+    needs: list[RowId] | None = Field(default=None, max_length=50)
 
     @field_validator("either_or", mode="before")
     @classmethod

@@ -20,9 +20,9 @@ from pydantic import BaseModel
 from server.errors import InputError
 from server.models import SavedPlan
 from server.planning.snapshots import PlanView, view_of
+from server.schemas import MAX_ID
 
 MIN_PLANS = 2
-MAX_ID = 2**31 - 1  # ids are INTEGER columns
 MAX_PLANS = 4
 LABELS = "ABCD"
 
@@ -129,12 +129,12 @@ def check_count(count: int, *, field: str = "plans", things: str = "plans") -> N
     """Two to four `things`; the message says which way the choice is off."""
     if count < MIN_PLANS:
         raise InputError(
-            f"{field}: choose at least {MIN_PLANS} {things} to compare ({count} chosen).",
+            f"{field}: Choose at least {MIN_PLANS} {things} to compare ({count} chosen).",
             field=field,
         )
     if count > MAX_PLANS:
         raise InputError(
-            f"{field}: choose at most {MAX_PLANS} {things} to compare ({count} chosen).",
+            f"{field}: Choose at most {MAX_PLANS} {things} to compare ({count} chosen).",
             field=field,
         )
 

@@ -333,7 +333,7 @@ def comparison_markdown(cmp: Comparison) -> str:
 class ImportedRow:
     line: int
     key: str
-    initiative: InitiativeCreate  # team_id 0 and no needs: the importer fills them in
+    initiative: InitiativeCreate  # no period and no needs: the importer fills them in
     needs: list[str]
     forced: str | None
     was_blocked: bool
@@ -414,8 +414,9 @@ def _needs_cycle(rows: list[ImportedRow]) -> list[str] | None:
     return None
 
 
-def parse_plan_csv(text: str) -> ImportedPlan:
-    """Read a plan CSV written by `plan_csv`; refuse it with the line and column named."""
+def parse_plan_csv(text: str, *, team_id: int) -> ImportedPlan:
+    """Read a plan CSV written by `plan_csv` as initiatives of team `team_id`; refuse it with
+    the line and column named."""
     text = text.removeprefix("\ufeff")
     try:
         raw_rows = list(csv.reader(io.StringIO(text, newline="")))
@@ -483,7 +484,7 @@ def parse_plan_csv(text: str) -> ImportedPlan:
             raise _fail(line, "forced", "must be in, out or empty.")
         try:
             initiative = InitiativeCreate(
-                team_id=0,
+                team_id=team_id,
                 title=cell["title"],
                 effort=EffortIn.model_validate(effort),
                 value=_float(line, "value", cell["value"], required=True) or 0.0,

@@ -15,8 +15,9 @@ from sqlmodel import Session
 from server.errors import InputError, LoadlineError
 from server.models import utcnow
 from server.planning.compare import Column, Comparison, check_count, compare_columns
-from server.planning.scenarios import MAX_ID, ScenarioChanges, capture, changes_from_json
+from server.planning.scenarios import ScenarioChanges, capture, changes_from_json
 from server.planning.snapshots import Snapshot
+from server.schemas import MAX_ID
 from server.store.periods import get_period
 from server.store.plans import get_scenario
 from server.store.teams import get_team

@@ -25,7 +25,7 @@ from server.planning.snapshots import (
     solve_live,
     unsolved_inputs,
 )
-from server.schemas import DaysOff, FocusFactor, ReservePct
+from server.schemas import DaysOff, FocusFactor, ReservePct, RowId
 from server.selector.risk import EstimateError, validate_confidence
 from server.store._common import and_list
 from server.store.initiatives import list_initiatives
@@ -36,11 +36,6 @@ from server.wording import in_days
 
 MAX_CAPACITY_DAYS = 100_000.0
 MAX_FORCED = 500
-# Ids are INTEGER columns (32-bit on PostgreSQL): a larger number can name no row.
-MAX_ID = 2**31 - 1
-
-RowId = Annotated[int, Field(ge=1, le=MAX_ID)]
-
 Confidence = Annotated[float, Field(gt=0, lt=1, allow_inf_nan=False)]
 # Below a hundredth of a day a capacity plans nothing at any resolution.
 MIN_CAPACITY_DAYS = 0.01
@@ -216,9 +211,9 @@ def check_for_team(
             if unknown:
                 listed = ", ".join(str(i) for i in unknown)
                 are = (
-                    "initiative {} is not a candidate"
+                    "Initiative {} is not a candidate"
                     if len(unknown) == 1
-                    else "initiatives {} are not candidates"
+                    else "Initiatives {} are not candidates"
                 )
                 raise InputError(
                     f"{name}: {are.format(listed)} of this team in {period.name}.",

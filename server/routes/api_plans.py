@@ -16,8 +16,6 @@ from server.planning import exports
 from server.planning.compare import Comparison, compare, parse_plan_ids
 from server.planning.scenario_compare import compare_picks
 from server.planning.scenarios import (
-    MAX_ID,
-    RowId,
     ScenarioChanges,
     capture,
     changes_from_json,
@@ -35,7 +33,7 @@ from server.routes.preconditions import (
     entity_tag,
 )
 from server.routes.responses import ERRORS, ErrorDetail
-from server.schemas import ETag, Title
+from server.schemas import MAX_ID, ETag, RowId, Title
 from server.store import plans as store
 
 Actor = Annotated[str, StringConstraints(strip_whitespace=True, max_length=NAME_MAX)]
@@ -680,7 +678,7 @@ def save_scenario_as_plan(
     "spaces), so a plan is not imported twice.",
 )
 def import_plan(team_id: PathId, import_in: ImportIn, session: SessionDep) -> ImportPublic:
-    parsed = exports.parse_plan_csv(import_in.csv)
+    parsed = exports.parse_plan_csv(import_in.csv, team_id=team_id)
     name = import_in.scenario_name or f"Imported: {parsed.plan_name or 'plan'}"[:200]
     outcome = store.import_plan(
         session,

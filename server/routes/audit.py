@@ -14,7 +14,7 @@ from pydantic import BaseModel
 
 from server.deps import SessionDep, TemplatesDep
 from server.planning import audit_view
-from server.planning.scenarios import MAX_ID
+from server.schemas import MAX_ID
 from server.store import audit as audit_store
 from server.store.teams import list_teams
 

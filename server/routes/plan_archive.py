@@ -35,7 +35,6 @@ from server.planning.compare import (
 from server.planning.scenario_compare import compare_picks, parse_picks, picks_of
 from server.planning.scenarios import (
     LISTED_FIGURES,
-    MAX_ID,
     ScenarioChanges,
     baseline_of,
     capture,
@@ -57,7 +56,7 @@ from server.routes.api_plans import (
     plan_summary,
 )
 from server.routes.forms import after_conflict, basis_to_show, form_text, render, see_other
-from server.schemas import Title
+from server.schemas import MAX_ID, Title
 from server.store import audit
 from server.store import plans as store
 from server.store.periods import get_period, list_periods
@@ -817,7 +816,7 @@ async def _import_from_form(
             raise InputError("Choose an exported plan CSV file.", field="csv")
         if len(text) > MAX_UPLOAD_CHARS:
             raise InputError("csv: The file is too large.", field="csv")
-        parsed = exports.parse_plan_csv(text)
+        parsed = exports.parse_plan_csv(text, team_id=team_id)
         outcome = store.import_plan(
             session,
             team_id=team_id,

@@ -901,18 +901,21 @@ def update_initiative(
                 session.rollback()
                 raise
         after = stored.to_public().model_dump(mode="json")
-        if _changed(after, before):  # a form saved unchanged is no change worth an entry
-            audit.record(
-                session,
-                actor=actor,
-                action="initiative.update",
-                entity="initiative",
-                entity_id=initiative_id,
-                team_id=db_row.team_id,
-                summary=_change_summary(db_row.title, before, after),
-                before=_changed(before, after),
-                after=_changed(after, before),
-            )
+        if not _changed(after, before):
+            # Saved unchanged: no new version (a colleague's copy stays current), no entry.
+            session.rollback()
+            return get_initiative(session, initiative_id=initiative_id)
+        audit.record(
+            session,
+            actor=actor,
+            action="initiative.update",
+            entity="initiative",
+            entity_id=initiative_id,
+            team_id=db_row.team_id,
+            summary=_change_summary(db_row.title, before, after),
+            before=_changed(before, after),
+            after=_changed(after, before),
+        )
         session.commit()
     except StaleDataError as exc:  # another writer got in between our read and our write
         session.rollback()

@@ -205,7 +205,7 @@ def _check_days_off_fit(
         dated = ("end_date", "start_date", "weekmask", "non_working_dates")
         field = next((name for name in dated if name in changed), "end_date")
         raise InputError(
-            f"{field}: after this change {db_period.name} has "
+            f"{field}: After this change {db_period.name} has "
             f"{counted(limit, 'working day')}, fewer than the days off of "
             f"{and_list(first_named(over))}; lower those days off on the team page first.",
             field=field,

@@ -62,6 +62,7 @@ def _resolve(value: Any, ids: dict[str, int]) -> Any:
     return value
 
 
+HUGE = 2**31  # one past the largest INTEGER id
 PERIOD_OK = {"name": "Sprint 9", "kind": "sprint", "start_date": "2027-05-03"}
 PERIOD_OK_END = PERIOD_OK | {"end_date": "2027-05-14"}
 MEMBER_OK = {"team_id": TEAM, "name": "Eli"}
@@ -366,8 +367,8 @@ CASES: dict[str, Case] = {
     "update without version": Case(
         "PATCH", "/api/v1/initiatives/$initiative", {"title": "New"}, 422, "version"
     ),
-    "update stale version": Case(
-        "PATCH", "/api/v1/initiatives/$initiative", {"version": 0, "title": "New"}, 409, "version"
+    "update version 0 (versions start at 1)": Case(
+        "PATCH", "/api/v1/initiatives/$initiative", {"version": 0, "title": "New"}, 422, "version"
     ),
     "update needs cycle": Case(
         "PATCH", "/api/v1/initiatives/$initiative", _patch(needs=[DEPENDANT]), 422, "needs"
@@ -410,6 +411,38 @@ CASES: dict[str, Case] = {
         "DELETE", "/api/v1/initiatives/$initiative", None, 409, "initiative_id"
     ),
     "delete a period in use": Case("DELETE", "/api/v1/periods/$period", None, 409, "period_id"),
+    # --- ids no INTEGER column can hold: refused naming the field, not looked up ------------
+    "member team id too large": Case(
+        "POST", "/api/v1/members", MEMBER_OK | {"team_id": HUGE}, 422, "team_id"
+    ),
+    "availability member id too large": Case(
+        "POST", "/api/v1/availability", AVAILABILITY_OK | {"member_id": HUGE}, 422, "member_id"
+    ),
+    "initiative team id too large": Case(
+        "POST", "/api/v1/initiatives", _initiative(team_id=HUGE), 422, "team_id"
+    ),
+    "initiative period id too large": Case(
+        "POST", "/api/v1/initiatives", _initiative(period_id=HUGE), 422, "period_id"
+    ),
+    "initiative needs an id too large": Case(
+        "POST", "/api/v1/initiatives", _initiative(needs=[HUGE]), 422, "needs"
+    ),
+    "initiative other team id too large": Case(
+        "POST",
+        "/api/v1/initiatives",
+        _initiative(other_efforts=[{"team_id": HUGE, "likely": 2}]),
+        422,
+        "other_efforts",
+    ),
+    "update version -1": Case(
+        "PATCH", "/api/v1/initiatives/$initiative", {"version": -1, "value": 2}, 422, "version"
+    ),
+    "update version too large": Case(
+        "PATCH", "/api/v1/initiatives/$initiative", {"version": HUGE, "value": 2}, 422, "version"
+    ),
+    "update needs an id 0": Case(
+        "PATCH", "/api/v1/initiatives/$initiative", _patch(needs=[0]), 422, "needs"
+    ),
 }
 
 

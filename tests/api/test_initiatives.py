@@ -437,3 +437,11 @@ def test_saving_an_initiative_unchanged_adds_no_audit_entry(
     entries = client.get("/api/v1/audit?entity=initiative").json()
     assert len(entries) == before  # no "Changed nothing of “Bollards”"
     assert not any(e["summary"].startswith("Changed nothing") for e in entries)
+    # Nor a new version: a colleague holding the row can still save over it.
+    assert same.json()["version"] == made["version"]
+    assert same.json()["updated_at"] == made["updated_at"]
+    theirs = client.patch(
+        f"/api/v1/initiatives/{made['id']}", json={"version": made["version"], "value": 4}
+    )
+    assert theirs.status_code == 200, theirs.text
+    assert theirs.json()["version"] == made["version"] + 1

@@ -386,9 +386,10 @@ def test_parse_reads_back_a_cycle_free_needs_graph_only() -> None:
     )
     rows = '"1","A","1","1","candidate","2"\r\n"2","B","1","1","candidate","1"\r\n'
     with pytest.raises(InputError, match="cycle"):
-        parse_plan_csv(header + rows)
-    fine = parse_plan_csv(
-        header + '"1","A","1","1","candidate","2"\r\n"2","=B","1","1","pinned",""\r\n'
+        parse_plan_csv(header + rows, team_id=1)
+    fine = parse_plan_csv(  # team 1: the parse does not look the team up
+        header + '"1","A","1","1","candidate","2"\r\n"2","=B","1","1","pinned",""\r\n',
+        team_id=1,
     )
     assert [r.needs for r in fine.rows] == [["2"], []]
     assert fine.capacity_days == 5
