@@ -47,8 +47,9 @@ def _fk(target: str, ondelete: str, *, nullable: bool = False, index: bool = Tru
 
 
 # SQLite reuses the largest id of a deleted row unless a table is AUTOINCREMENT. Ids of these
-# tables are named inside scenarios, saved plans and undo entries: they must never come back
-# for another row (migration 0005). PostgreSQL's sequences never reuse an id.
+# tables are named inside scenarios, saved plans, undo and audit entries and API URLs: they
+# must never come back for another row (migrations 0005, 0008). PostgreSQL's sequences never
+# reuse an id.
 NEVER_REUSED_IDS = {"sqlite_autoincrement": True}
 
 
@@ -78,6 +79,8 @@ class Member(SQLModel, table=True):
 
 
 class Period(SQLModel, table=True):
+    __table_args__ = (NEVER_REUSED_IDS,)
+
     id: int | None = Field(default=None, primary_key=True)
     name: str = Field(max_length=NAME_MAX, unique=True)
     kind: str = Field(max_length=10)  # "sprint" or "quarter"
@@ -94,7 +97,10 @@ class Period(SQLModel, table=True):
 class Availability(SQLModel, table=True):
     """A member's availability in one period: days off and an optional allocation override."""
 
-    __table_args__ = (UniqueConstraint("member_id", "period_id", name="uq_availability"),)
+    __table_args__ = (
+        UniqueConstraint("member_id", "period_id", name="uq_availability"),
+        NEVER_REUSED_IDS,
+    )
 
     id: int | None = Field(default=None, primary_key=True)
     member_id: int = _fk("member.id", "RESTRICT")

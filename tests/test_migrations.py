@@ -436,3 +436,67 @@ def test_0007_compares_titles_without_invisible_characters(empty_settings: Setti
     assert [row[3] for row in _initiatives(empty_settings)][3] == "tide\u200dgauge"
     migrate.upgrade(empty_settings)
     assert _revision(empty_settings) == _head()
+
+
+def test_0008_keeps_period_and_days_off_ids_from_coming_back(empty_settings: Settings) -> None:
+    """On SQLite a new period or days-off row took the id of the newest deleted one, so the
+    deleted row's URL, ETag and audit entries reached the new row."""
+    migrate.upgrade(empty_settings, "0007")
+    engine = make_engine(empty_settings)
+
+    def add_then_delete_then_add() -> list[tuple[int, int]]:
+        ids = []
+        with engine.begin() as conn:
+            conn.execute(text("DELETE FROM availability"))
+            conn.execute(text("DELETE FROM member"))
+            conn.execute(text("DELETE FROM period"))
+            conn.execute(text("DELETE FROM team"))
+            conn.execute(
+                text(
+                    "INSERT INTO team (name, default_spread, created_at) "
+                    "VALUES ('Harbour', 0, '2026-01-01')"
+                )
+            )
+            conn.execute(
+                text("INSERT INTO member (team_id, name, allocation) SELECT id, 'Ola', 1 FROM team")
+            )
+            for name in ("Sprint 1", "Sprint 2"):
+                conn.execute(
+                    text(
+                        "INSERT INTO period (name, kind, start_date, end_date, weekmask, "
+                        "non_working_dates) VALUES (:name, 'sprint', '2027-03-01', "
+                        "'2027-03-12', '1111100', '[]')"
+                    ),
+                    {"name": name},
+                )
+            for table, add in (
+                (
+                    "period",
+                    "INSERT INTO period (name, kind, start_date, end_date, weekmask, "
+                    "non_working_dates) VALUES ('Sprint 3', 'sprint', '2027-03-15', '2027-03-26', "
+                    "'1111100', '[]')",
+                ),
+                (
+                    "availability",
+                    "INSERT INTO availability (member_id, period_id, days_off) "
+                    "SELECT (SELECT max(id) FROM member), (SELECT min(id) FROM period), 2",
+                ),
+            ):
+                conn.execute(text(add))
+                newest = conn.execute(text(f"SELECT max(id) FROM {table}")).scalar_one()
+                conn.execute(text(f"DELETE FROM {table} WHERE id = :i"), {"i": newest})
+                conn.execute(text(add))
+                again = conn.execute(text(f"SELECT max(id) FROM {table}")).scalar_one()
+                ids.append((newest, again))
+        return ids
+
+    try:
+        if engine.dialect.name == "sqlite":  # what 0008 mends: the deleted ids came back
+            assert all(newest == again for newest, again in add_then_delete_then_add())
+        migrate.upgrade(empty_settings)
+        assert all(again == newest + 1 for newest, again in add_then_delete_then_add())
+    finally:
+        engine.dispose()
+    migrate.downgrade(empty_settings, "0007")
+    migrate.upgrade(empty_settings)
+    assert _revision(empty_settings) == _head()
