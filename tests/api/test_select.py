@@ -247,7 +247,8 @@ def test_a_curve_asked_for_but_not_computed_says_why(client: TestClient) -> None
     items = [
         {"key": "a", "effort": 2, "value": 5, "either_or": "s"},
         {"key": "b", "effort": 3, "value": 6, "either_or": "s"},
-        {"key": "c", "effort": 2, "value": 4, "needs": ["a", "b"]},
+        {"key": "d", "effort": 1, "value": 1},
+        {"key": "c", "effort": 2, "value": 4, "needs": ["a", "d"]},
     ]
     answer = client.post("/api/v1/select", json={"capacity": 6, "items": items, "curve": True})
     assert answer.status_code == 200, answer.text
