@@ -103,7 +103,12 @@ class ExplanationOut(BaseModel):
     value_if_in: float | None
     value_if_out: float | None
     regret: float
-    threshold_value: float | None
+    threshold_value: float | None = Field(
+        description="Left out: the value score it would need to tie its way in. In the plan: "
+        "the score it could drop to before an equally good plan without it exists; 0 or below "
+        "means it stays at any score (work that needs it carries it). None for pinned, ruled-out "
+        "and impossible cases."
+    )
     displaces: list[str]
     reason: str
     constraint_cost: float | None = None

@@ -55,7 +55,8 @@ class Explanation:
     plan with it allowed and forced in. regret is the plan value lost by the opposite decision
     (0.0 when the opposite decision is impossible or gains value). threshold_value is, for an
     initiative left out, the value score it would need to tie its way in; for one in the plan,
-    the value score it could drop to before an equally good plan without it exists; None for
+    the value score it could drop to before an equally good plan without it exists (0 or
+    below: it stays at any value score, as work that needs it carries it); None for
     pinned, ruled-out and impossible cases. constraint_cost is, for pinned and ruled-out
     initiatives, how much value that mark costs the plan (0.0 when it costs nothing).
     """

@@ -58,6 +58,12 @@ def _infeasibility(prepared: Prepared, outcome: Outcome) -> tuple[str, float]:
             f"rounding each effort up to the {format_days(r)}-day resolution makes it overrun, "
             "so a finer resolution may fit it."
         )
+    elif not math.isclose(real - checked.capacity, excess, abs_tol=1e-9):
+        # The headroom is in estimated days: say the overrun in those too, so the two agree.
+        message += (
+            f" As estimated, before rounding to the resolution, it is {format_days(real)} "
+            f"days, {format_days(real - checked.capacity)} over."
+        )
     return message, excess
 
 

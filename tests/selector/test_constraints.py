@@ -28,6 +28,19 @@ def test_infeasibility_caused_by_rounding_says_so() -> None:
     assert solve(Problem(items, 1.0, resolution=0.1)).feasible
 
 
+def test_an_overrun_rounded_to_the_resolution_also_says_it_in_estimated_days() -> None:
+    """Worked by hand: 10.2 + 0.3 days pinned round up to 10.5 + 0.5 = 11 against 10: one day
+    over in steps, 0.5 as estimated, which is what the headroom says."""
+    items = (Item("a", 10.2, 5, pinned=True), Item("b", 0.3, 5, pinned=True))
+    selection = solve(Problem(items, 10))
+    assert selection.excess_days == 1.0
+    assert selection.headroom == -0.5
+    assert selection.infeasibility == (
+        "Pinned work needs 11.0 days, 1.0 days over the capacity of 10.0 days. As estimated, "
+        "before rounding to the resolution, it is 10.5 days, 0.5 over."
+    )
+
+
 def test_pinned_items_are_always_chosen_even_when_poor() -> None:
     items = (Item("poor", 5, 1, pinned=True), Item("rich", 5, 100), Item("rich2", 5, 90))
     selection = solve(Problem(items, 10))
