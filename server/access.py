@@ -123,10 +123,22 @@ class AccessControl:
         is_api = _is_api(request)
         if user is None:
             if is_api:
+                sent = request.headers.get("authorization", "")
+                if sent.lower().startswith("bearer "):  # RFC 6750, section 3.1
+                    message = (
+                        "The bearer token sent is not known, or has expired or been revoked: "
+                        "send a current one (`loadline api-token NAME` makes one)."
+                    )
+                    challenge = 'Bearer error="invalid_token"'
+                elif sent:
+                    message = "Authorization: only a bearer token is understood (Bearer ...)."
+                    challenge = "Bearer"
+                else:
+                    message, challenge = "Sign in first: send a bearer token.", "Bearer"
                 return JSONResponse(
-                    {"detail": {"message": "Sign in first: send a bearer token."}},
+                    {"detail": {"message": message, "field": "Authorization"}},
                     status_code=401,
-                    headers={"WWW-Authenticate": "Bearer"},
+                    headers={"WWW-Authenticate": challenge},
                 )
             with Session(self.engine) as session:
                 first_run = user_store.count_users(session) == 0

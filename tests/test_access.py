@@ -83,6 +83,26 @@ def test_anonymous_api_requests_are_refused(
     assert response.headers["www-authenticate"] == "Bearer"
 
 
+@pytest.mark.parametrize(
+    ("authorization", "challenge", "said"),
+    [
+        ("Bearer nope", 'Bearer error="invalid_token"', "not known, or has expired"),
+        ("Basic YWRtaW46YWRtaW4=", "Bearer", "only a bearer token is understood"),
+    ],
+)
+def test_a_token_that_is_sent_but_refused_is_told_apart_from_none(
+    anonymous_client: TestClient, authorization: str, challenge: str, said: str
+) -> None:
+    # RFC 6750, section 3.1: an invalid token answers 401 with error="invalid_token".
+    response = anonymous_client.get("/api/v1/teams", headers={"Authorization": authorization})
+    assert response.status_code == 401
+    assert response.headers["www-authenticate"] == challenge
+    detail = response.json()["detail"]
+    assert said in detail["message"]
+    assert "Sign in first" not in detail["message"]
+    assert detail["field"] == "Authorization"
+
+
 def test_anonymous_pages_go_to_sign_in(anonymous_client: TestClient) -> None:
     response = anonymous_client.get("/teams/1?period_id=2", follow_redirects=False)
     assert response.status_code == 303
