@@ -92,6 +92,16 @@ def _plain_words(error: Mapping[str, Any]) -> str | None:
         return "Enter true or false."
     if kind in {"string_type"}:
         return "Enter text."
+    if kind == "int_from_float":
+        return "Enter a whole number."
+    if kind in {"list_type", "tuple_type", "set_type"}:
+        return "Enter a list (a JSON array)."
+    if kind in {"dict_type", "model_type", "model_attributes_type"}:
+        return "Enter an object with named fields (a JSON object)."
+    if kind == "too_long":
+        return f"Give at most {bound('max_length')} items ({bound('actual_length')} given)."
+    if kind == "too_short":
+        return f"Give at least {bound('min_length')} items ({bound('actual_length')} given)."
     if kind in {"literal_error", "enum"}:
         expected = ctx.get("expected")
         return f"Choose one of {expected}." if expected else None

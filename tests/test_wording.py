@@ -37,6 +37,26 @@ def test_a_range_bound_reads_as_people_write_numbers() -> None:
 
 
 @pytest.mark.parametrize(
+    ("fields", "expected"),
+    [
+        ({"needs": "abc"}, ("needs", "Enter a list (a JSON array).")),
+        ({"needs": list(range(1, 60))}, ("needs", "Give at most 50 items (59 given).")),
+        ({"team_id": 1.5}, ("team_id", "Enter a whole number.")),
+        ({"effort": [1]}, ("effort", "Enter an object with named fields (a JSON object).")),
+    ],
+)
+def test_pydantic_messages_are_said_in_the_forms_words(
+    fields: dict[str, object], expected: tuple[str, str]
+) -> None:
+    """These read "Input should be a valid list", "List should have at most 50 items after
+    validation, not 59", "... instance of EffortIn" (a class name) before."""
+    body = {"team_id": 1, "title": "Quay wall", "effort": 1, "value": 1} | fields
+    with pytest.raises(ValidationError) as refused:
+        InitiativeCreate.model_validate(body)
+    assert field_and_message(refused.value.errors()[0]) == expected
+
+
+@pytest.mark.parametrize(
     ("name", "expected"),
     [("Ines", "Ines'"), ("Ola", "Ola's"), ("Fares and Payments", "Fares and Payments'")],
 )
