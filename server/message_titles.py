@@ -18,14 +18,21 @@ _LEAVE_TOO = " would leave the plan too"
 _LEAVERS = re.compile(r"; ([^;“”]+)" + re.escape(_LEAVE_TOO))
 
 
-def with_titles(text: str, titles: Mapping[str, str], keys: Sequence[str] = ()) -> str:
-    """Name initiatives by title in a selector message that names them by key."""
+def with_titles(
+    text: str, titles: Mapping[str, str], keys: Sequence[str] = (), also: Sequence[str] = ()
+) -> str:
+    """Name initiatives by title in a selector message that names them by key; `keys` and
+    `also` are lists of keys it names bare (an explanation's displaces and moves_with)."""
     text = _QUOTED_KEY.sub(lambda m: f"“{titles.get(m[1], m[1])}”", text)
-    if keys:
-        joined = ", ".join(keys)
-        named = ", ".join(f"“{titles.get(k, k)}”" for k in keys)
+    for listed in (keys, also):
+        if not listed:
+            continue
+        joined = ", ".join(listed)
+        named = ", ".join(f"“{titles.get(k, k)}”" for k in listed)
         for before, after in (
             (f"displace {joined}.", f"displace {named}."),
+            (f"displace {joined} and", f"displace {named} and"),
+            (f"bring in {joined}", f"bring in {named}"),
             (f"; {joined} would take its place", f"; {named} would take its place"),
             (f"includes {joined}, needed", f"includes {named}, needed"),
         ):
@@ -67,16 +74,3 @@ def conflict_with_titles(text: str, titles: Mapping[str, str]) -> str:
         text = subject + rest
     text = _titled_keys(text, titles)
     return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")
-
-
-def titled_reason(reason: str, displaces: Sequence[str], titles: Mapping[str, str]) -> str:
-    """The selector's reason with initiative keys replaced by titles (snapshots outlive ids)."""
-    text = reason
-    names = ", ".join(displaces)
-    if names:
-        titled = ", ".join(f"“{titles.get(k, k)}”" for k in displaces)
-        text = text.replace(f"displace {names}.", f"displace {titled}.")
-        text = text.replace(f"; {names} would take", f"; {titled} would take")
-    for key, title in titles.items():
-        text = text.replace(repr(key), f"“{title}”")
-    return titled_leavers(text, titles)

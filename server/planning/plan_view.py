@@ -221,6 +221,7 @@ class ExplanationView:
     threshold_value: float | None
     displaces: tuple[str, ...]  # titles
     constraint_cost: float | None
+    moves_with: tuple[str, ...] = ()  # titles
 
 
 @dataclass(frozen=True)
@@ -277,7 +278,7 @@ def _explanation(row: PlanRow, plan: LivePlan, titles: Mapping[str, str]) -> Exp
         return None
     return ExplanationView(
         chosen=e.chosen,
-        reason=with_titles(e.reason, titles, e.displaces),
+        reason=with_titles(e.reason, titles, e.displaces, e.moves_with),
         plan_value=plan.selection.value,
         value_if_in=e.value_if_in,
         value_if_out=e.value_if_out,
@@ -285,6 +286,7 @@ def _explanation(row: PlanRow, plan: LivePlan, titles: Mapping[str, str]) -> Exp
         threshold_value=e.threshold_value,
         displaces=tuple(titles.get(k, k) for k in e.displaces),
         constraint_cost=e.constraint_cost,
+        moves_with=tuple(titles.get(k, k) for k in e.moves_with),
     )
 
 
@@ -772,6 +774,7 @@ def _row_json(row: RowView) -> dict[str, Any]:
             "regret": e.regret,
             "threshold_value": e.threshold_value,
             "displaces": list(e.displaces),
+            "moves_with": list(e.moves_with),
             "constraint_cost": e.constraint_cost,
         },
     }

@@ -20,7 +20,7 @@ from functools import lru_cache
 from sqlmodel import Session, col, select
 
 from server.capacity import CapacityBreakdown, MemberAvailability, team_capacity
-from server.message_titles import titled_reason, with_titles
+from server.message_titles import with_titles
 from server.models import Initiative, Period, Team
 from server.planning.team_capacity import TeamCapacity, capacity_of
 from server.selector import (
@@ -117,7 +117,7 @@ class LivePlan:
         explanations = selection.explanations
         if explanations is not None:
             explanations = tuple(
-                replace(e, reason=titled_reason(e.reason, e.displaces, titles))
+                replace(e, reason=with_titles(e.reason, titles, e.displaces, e.moves_with))
                 for e in (worded.get(x.key, x) for x in explanations)
             )
         infeasibility = selection.infeasibility and with_titles(

@@ -162,6 +162,7 @@ class ExplanationSnapshot(BaseModel):
     displaces: list[str]
     reason: str
     constraint_cost: float | None
+    moves_with: list[str] = []  # absent from plans saved before it was recorded
 
 
 class FitSnapshot(BaseModel):
@@ -405,6 +406,7 @@ def _result_of(
                 displaces=list(e.displaces),
                 reason=e.reason,
                 constraint_cost=e.constraint_cost,
+                moves_with=list(e.moves_with),
             )
             for e in selection.explanations or ()
         ],

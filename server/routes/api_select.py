@@ -109,9 +109,17 @@ class ExplanationOut(BaseModel):
         "means it stays at any score (work that needs it carries it). None for pinned, ruled-out "
         "and impossible cases."
     )
-    displaces: list[str]
+    displaces: list[str] = Field(
+        description="Left out: chosen keys that would leave were it forced in. In the plan: "
+        "keys that would take its place."
+    )
     reason: str
     constraint_cost: float | None = None
+    moves_with: list[str] = Field(
+        default_factory=list,
+        description="Left out: other keys that would come in with it. In the plan: chosen keys "
+        "that would leave with it (work that needs it, or a new best mix).",
+    )
 
 
 class RoundingOut(BaseModel):

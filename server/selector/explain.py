@@ -108,6 +108,7 @@ def _explanation(
     regret = 0.0 if opposite.value is None else max(0.0, best - opposite.value)
     moved = opposite.added if is_chosen else opposite.removed
     displaces = tuple(keys[j] for j in sorted(moved))
+    moves_with = _moves_with(context, i, opposite)
     marked = i in checked.pinned or i in checked.ruled_out
     optimised = i in context.decided.free
     threshold = None
@@ -124,8 +125,9 @@ def _explanation(
         regret=regret,
         threshold_value=threshold,
         displaces=displaces,
-        reason=_reason(context, i, opposite.value, regret, displaces, _along(context, i, opposite)),
+        reason=_reason(context, i, opposite.value, regret, displaces, moves_with),
         constraint_cost=constraint_cost,
+        moves_with=moves_with,
     )
 
 
@@ -133,12 +135,15 @@ def _number(x: float) -> str:
     return f"{x:,.6g}"
 
 
-def _along(context: _Context, i: int, opposite: ForcedPlan) -> tuple[str, ...]:
-    """Chosen initiatives that would leave the plan with i (what needs it, or a new best mix)."""
-    if i not in context.chosen or opposite.value is None:
+def _moves_with(context: _Context, i: int, opposite: ForcedPlan) -> tuple[str, ...]:
+    """What moves the same way as i in the opposite plan: for a chosen i, the chosen
+    initiatives that would leave with it (what needs it, or a new best mix); for one left
+    out, the others that would come in with it (what it needs, or a new best mix)."""
+    if opposite.value is None:
         return ()
+    same_way = opposite.removed if i in context.chosen else opposite.added
     keys = context.prepared.checked.keys
-    return tuple(keys[j] for j in sorted(opposite.removed) if j != i)
+    return tuple(keys[j] for j in sorted(same_way) if j != i)
 
 
 def _reason(
@@ -147,7 +152,7 @@ def _reason(
     opposite: float | None,
     regret: float,
     displaces: tuple[str, ...],
-    along: tuple[str, ...] = (),
+    moves_with: tuple[str, ...] = (),
 ) -> str:
     checked = context.prepared.checked
     best = context.best
@@ -179,8 +184,8 @@ def _reason(
         if regret == 0:
             return "In the plan; an equally good plan without it exists, and the tie rule kept it."
         tail = f"; {names} would take its place." if names else "; nothing would take its place."
-        if along:
-            tail = f"; {', '.join(along)} would leave the plan too" + tail
+        if moves_with:
+            tail = f"; {', '.join(moves_with)} would leave the plan too" + tail
         return f"In the plan: leaving it out costs {_number(regret)} value{tail}"
     if opposite is None:
         free_days = context.outcome.free_capacity * checked.resolution
@@ -190,5 +195,9 @@ def _reason(
         )
     if regret == 0:
         return "Left out; an equally good plan with it exists, and the tie rule left it out."
-    tail = f"; it would displace {names}." if names else "."
+    joining = ", ".join(moves_with)
+    if names:
+        tail = f"; it would displace {names}" + (f" and bring in {joining}." if joining else ".")
+    else:
+        tail = f"; it would bring in {joining} too." if joining else "."
     return f"Left out: forcing it in costs {_number(regret)} value{tail}"

@@ -70,6 +70,9 @@ class Explanation:
     displaces: tuple[str, ...]  # out: chosen keys that leave if forced in; in: keys that enter
     reason: str
     constraint_cost: float | None = None
+    # The other side of that change: out: keys that would come in with it (what it needs, or a
+    # better mix); in: chosen keys that would leave with it (what needs it, or a new mix).
+    moves_with: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

@@ -807,3 +807,30 @@ def test_a_period_without_working_days_says_so(form_client: TestClient, session:
     text = page(form_client, f"/teams/{team.id}/plan?period_id={weekend.id}").text()
     assert "Weekend has no working days" in text
     assert "no members" not in text
+
+
+def test_a_left_out_explanation_names_what_would_come_in_as_well_as_what_would_leave(
+    form_client: TestClient, session: Session
+) -> None:
+    """Worked by hand, 20 days: the plan is Quay wall + Crane rail (10 + 10 days, 50 + 45).
+    Forcing in Tide gauge (12 days, 40) leaves 8 days: both go and Fender row (8, 20) comes
+    in, 60 in all, 35 less. Saying only what leaves ("displace" 95 of value for a cost of 35)
+    does not add up."""
+    rows = [("Quay wall", 10, 50), ("Crane rail", 10, 45), ("Tide gauge", 12, 40)]
+    setup = build(session, [*rows, ("Fender row", 8, 20)])
+    gauge = setup.ids["Tide gauge"]
+    url = f"/teams/{setup.team.id}/plan/initiatives/{gauge}/explain?period_id={setup.period.id}"
+    root = page(form_client, url)
+    reason = root.find("p", cls="reason").text()  # type: ignore[union-attr]
+    assert reason == (
+        "Left out: forcing it in costs 35 value; it would displace “Quay wall”, “Crane rail” "
+        "and bring in “Fender row”."
+    )
+    assert root.find("dd", cls="moves-with").text() == "Fender row"  # type: ignore[union-attr]
+    body = form_client.get(url, headers={"Accept": "application/json"}).json()
+    assert body["explanation"]["value_if_in"] == 60
+    assert body["explanation"]["moves_with"] == ["Fender row"]
+    api = form_client.get(f"/api/v1/teams/{setup.team.id}/periods/{setup.period.id}/plan").json()
+    (why,) = [e for e in api["selection"]["explanations"] if e["key"] == str(gauge)]
+    assert why["moves_with"] == [str(setup.ids["Fender row"])]
+    assert why["reason"] == reason

@@ -66,7 +66,20 @@ def _check_explanations(problem: Problem) -> None:
         else:
             assert displaced <= chosen
         leavers = _leavers(problem, why.reason)
+        moving = set(indices(problem, why.moves_with))
+        if why.chosen:
+            assert moving <= chosen - {i}
+        else:
+            assert not moving & chosen
+        if not why.chosen and why.value_if_in is not None:
+            # The plan with it, read from the explanation (what leaves, what comes in with it),
+            # is a real plan of that value: "displaces" alone does not add up.
+            with_it = (chosen - displaced) | moving | {i}
+            assert satisfies(base, with_it), (item, why)
+            keys = [problem.items[j].key for j in with_it]
+            assert _close(value_of(problem, keys), why.value_if_in), (item, why)
         if why.chosen and why.regret > 0 and not item.pinned:
+            assert leavers == moving
             # The plan without it, read from the explanation, is a real plan of that value.
             assert leavers <= chosen - {i}
             without = (chosen - {i} - leavers) | displaced
