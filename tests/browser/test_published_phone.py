@@ -127,3 +127,46 @@ def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
         assert widths["scroll"] <= widths["view"], widths
     finally:
         context.close()
+
+
+def test_lists_the_overview_and_scenarios_do_not_widen_a_390_px_screen(
+    browser: Browser, live_server: LiveServer, published: tuple[int, str], watch: Any
+) -> None:
+    """These scrolled the whole page sideways (720, 923, 621 and 539 px wide): a wide table
+    now scrolls inside its own box, and the page stays the screen's width."""
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        period_id = list_periods(session)[0].id or 0
+        team_id = max(
+            (t.id or 0 for t in list_teams(session)),
+            key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
+        )
+        scenario = store.create_scenario(
+            session,
+            team_id=team_id,
+            period_id=period_id,
+            name="Phone width check",
+            changes=ScenarioChanges().model_dump(mode="json"),
+        )
+    engine.dispose()
+    context = browser.new_context(viewport=PHONE)
+    try:
+        sign_in(context, live_server)
+        page = context.new_page()
+        page.set_default_timeout(WAIT_MS)
+        watch(page)
+        for path in (
+            f"/teams/{team_id}/initiatives?period={period_id}",
+            "/plans",
+            f"/periods/{period_id}/overview",
+            f"/teams/{team_id}/scenarios?period_id={period_id}",
+            f"/scenarios/{scenario.id}",
+        ):
+            page.goto(live_server.url + path)
+            assert page.locator("main table").count() > 0, path
+            widths = _widths(page)
+            assert widths["scroll"] <= widths["view"], (path, widths)
+            assert widths["body"] <= widths["view"], (path, widths)
+            screenshot(page, "phone-" + path.strip("/").split("?")[0].replace("/", "-"))
+    finally:
+        context.close()
