@@ -1,7 +1,9 @@
 """Rows pasted from a spreadsheet: parse, check each row, and store them all or none.
 
-Accepted shapes (tab-, semicolon- or comma-separated; the delimiter is the first of those that
-occurs in the text, in that order):
+Accepted shapes (tab-, semicolon- or comma-separated: tab when any line has one, otherwise
+whichever of semicolon and comma splits the most lines into one same number of cells, with
+more cells and then semicolon winning a tie, so one "Alerts; phase 2" title among
+comma-separated rows does not switch every row to semicolons):
 
 - with a header row naming the columns: title, effort (or low, likely, high), value, state;
 - without a header, by the number of columns: 3 = title, effort, value; 4 = ... , state;
@@ -153,10 +155,37 @@ def _number_text(cell: str, decimal_comma: bool) -> str:
     return cell
 
 
+def _cell_counts(text: str, delimiter: str) -> list[int]:
+    """How many cells each non-blank line has when split by `delimiter` (quotes honoured)."""
+    counts = []
+    try:
+        for cells in csv.reader(io.StringIO(text), delimiter=delimiter, skipinitialspace=True):
+            if any(cell.strip() for cell in cells):
+                counts.append(len(cells))
+    except csv.Error:
+        return []
+    return counts
+
+
+def _delimiter_of(text: str) -> tuple[str, str]:
+    """The delimiter the text is separated by, and its name (see the module's docstring)."""
+    if "\t" in text:
+        return "\t", "tab"
+    best: tuple[int, int, int] | None = None
+    chosen = ",", "comma"
+    for rank, (char, label) in enumerate(_DELIMITERS[1:]):
+        counts = [n for n in _cell_counts(text, char) if n > 1]
+        if not counts:
+            continue
+        modal = max(set(counts), key=lambda n: (counts.count(n), n))
+        score = (counts.count(modal), modal, -rank)
+        if best is None or score > best:
+            best, chosen = score, (char, label)
+    return chosen
+
+
 def _split(text: str) -> tuple[list[tuple[int, list[str]]], str, str]:
-    delimiter, name = next(
-        ((char, label) for char, label in _DELIMITERS if char in text), (",", "comma")
-    )
+    delimiter, name = _delimiter_of(text)
     reader = csv.reader(io.StringIO(text), delimiter=delimiter, skipinitialspace=True, strict=True)
     rows: list[tuple[int, list[str]]] = []
     try:

@@ -49,6 +49,26 @@ def test_tab_separated_with_header_and_three_point_cells() -> None:
     assert gate.initiative_in.state == "ruled_out"
 
 
+def test_a_semicolon_in_one_title_does_not_switch_every_row_to_semicolons() -> None:
+    """One "Alerts; phase 2" among comma-separated rows made every row fail ("Rows have 2
+    columns"); one stray "Eps;1;2" row made it the only one read."""
+    result = _parse("Alpha,5,10\nAlerts; phase 2,5,10\nGamma,3,8\n")
+    assert result.delimiter == "comma"
+    assert result.ok
+    assert [r.initiative_in.title for r in result.rows if r.initiative_in] == [
+        "Alpha",
+        "Alerts; phase 2",
+        "Gamma",
+    ]
+    stray = _parse("Alpha,5,10\nEps;1;2\nGamma,3,8\n")
+    assert stray.delimiter == "comma"
+    assert [r.line for r in stray.rows if not r.ok] == [2]
+    # Semicolon-separated text with decimal commas stays semicolon-separated.
+    local = _parse("Quay wall;2,5;40\nGate;1;10\n")
+    assert local.delimiter == "semicolon"
+    assert [r.initiative_in.effort.likely for r in local.rows if r.initiative_in] == [2.5, 1]
+
+
 def test_comma_separated_without_header_and_separate_columns() -> None:
     result = _parse("Quay wall,5,40\nGate,2,10,candidate\n")
     assert result.ok
