@@ -296,12 +296,17 @@ async def set_availability(
     values = {
         "member_id": form_text(form, "member_id"),
         "period_id": period_id,
-        "days_off": form_text(form, "days_off") or "0",
+        "days_off": form_text(form, "days_off"),
         "share": form_text(form, "share"),
     }
     shared = {k: v for k, v in values.items() if k != "share"}
     allocation = percent_to_share(values["share"] or None)
     availability_in, errors = parse_form(AvailabilityCreate, shared | {"allocation": allocation})
+    if not values["days_off"].strip():  # a cleared field is not "no days off": say so
+        availability_in = None
+        errors = {"days_off": "Enter the days off, 0 if none."} | {
+            k: v for k, v in errors.items() if k != "days_off"
+        }
     refused_as_percentage(errors, "allocation", "share", SHARE_RULE)
     if availability_in is None and "days_off" not in errors and period_id is not None:
         # Another field was refused: still say whether the days off fit, not one error a time.

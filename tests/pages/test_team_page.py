@@ -133,6 +133,7 @@ def _described(row: Form, name: str) -> str:
         ("-1", "", "days_off", "at least 0"),
         ("abc", "", "days_off", "Enter a number"),
         ("nan", "", "days_off", "finite number"),
+        ("", "", "days_off", "Enter the days off, 0 if none."),  # saved 0 without a word
         ("1", "150", "share", "at most 100"),
         ("1", "0.5 of it", "share", "Enter a percentage"),
     ],
