@@ -11,7 +11,7 @@ from fastapi.responses import Response
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
-from server.errors import LoadlineError, NotFoundError
+from server.errors import InputError, LoadlineError, NotFoundError
 from server.routes.forms import (
     SHARE_RULE,
     form_text,
@@ -271,7 +271,13 @@ async def delete_initiative(
 ) -> Response:
     record = initiative_store.get_initiative(session, initiative_id=initiative_id)
     period = str(record.row.period_id) if record.row.period_id else initiative_store.BACKLOG
+    form = await request.form()
     try:
+        if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+            raise InputError(
+                f"Tick “Yes, delete {record.row.title}” to delete it: it leaves every plan.",
+                field="confirm",
+            )
         initiative_store.delete_initiative(session, initiative_id=initiative_id)
     except LoadlineError as exc:  # e.g. still needed: the edit page again, with the reason
         context = _edit_context(session, initiative_id) | {"delete_error": exc.message}

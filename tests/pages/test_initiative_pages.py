@@ -351,6 +351,9 @@ def test_a_needs_cycle_in_the_edit_form_is_refused(
     assert _record(session, stored.quay).needs == []
 
 
+YES = {"confirm": "yes"}
+
+
 def test_deleting_through_the_form(
     form_client: TestClient, session: Session, stored: Stored
 ) -> None:
@@ -358,21 +361,29 @@ def test_deleting_through_the_form(
     assert without_token.status_code == 403
     assert _titles(session) == ["Crane rail", "Quay wall"]
 
-    response = _post(form_client, f"/initiatives/{stored.crane}/delete", {})
+    # One press is not enough: the tick the browser requires, when it was not sent.
+    unticked = _post(form_client, f"/initiatives/{stored.crane}/delete", {})
+    assert unticked.status_code == 422
+    assert Form(parse(unticked.text), f"/initiatives/{stored.crane}/delete").errors() == [
+        "Tick “Yes, delete Crane rail” to delete it: it leaves every plan."
+    ]
+    assert _titles(session) == ["Crane rail", "Quay wall"]
+
+    response = _post(form_client, f"/initiatives/{stored.crane}/delete", YES)
     assert response.status_code == 303
     assert (
         response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
     )
     assert _titles(session) == ["Quay wall"]
     # Nothing needs Quay wall any more, so it can go too.
-    assert _post(form_client, f"/initiatives/{stored.quay}/delete", {}).status_code == 303
+    assert _post(form_client, f"/initiatives/{stored.quay}/delete", YES).status_code == 303
     assert _titles(session) == []
 
 
 def test_deleting_a_needed_initiative_through_the_form_shows_why_not(
     form_client: TestClient, session: Session, stored: Stored
 ) -> None:
-    response = _post(form_client, f"/initiatives/{stored.quay}/delete", {})
+    response = _post(form_client, f"/initiatives/{stored.quay}/delete", YES)
     assert response.status_code == 409
     page = parse(response.text)
     ids_are_unique_and_labels_point_at_fields(page)
@@ -390,7 +401,7 @@ def test_deleting_a_needed_initiative_through_the_form_shows_why_not(
 def test_unknown_initiative_pages_are_404(form_client: TestClient) -> None:
     assert form_client.get("/initiatives/4711/edit").status_code == 404
     assert _post(form_client, "/initiatives/4711", ADD | {"version": "1"}).status_code == 404
-    assert _post(form_client, "/initiatives/4711/delete", {}).status_code == 404
+    assert _post(form_client, "/initiatives/4711/delete", YES).status_code == 404
 
 
 def test_editing_keeps_cross_team_needs_and_effort_lines(
