@@ -49,11 +49,13 @@ from server.errors import ConflictError, InputError, NotFoundError
 from server.models import AuditEntry, Initiative, Period, Team, utcnow
 from server.schemas import InitiativeCreate, InitiativeUpdate
 from server.store import audit
+from server.store._common import and_list
 from server.store.initiatives import (
     Restoring,
     delete_initiative,
     delete_initiatives,
     existing_initiative_ids,
+    field_in_words,
     get_initiative,
     restore_initiatives,
     update_initiative,
@@ -484,8 +486,8 @@ def _mark(
 
 
 def _changed_fields(entry: AuditEntry) -> str:
-    names = sorted((entry.before or {}).keys())
-    return ", ".join(name.replace("_", " ") for name in names) or "values"
+    names = sorted(field_in_words(name) for name in (entry.before or {}))
+    return and_list(names) if names else "values"
 
 
 def _max_entry_id(session: Session) -> int:

@@ -1097,8 +1097,13 @@ _FIELD_WORDS = {
 }
 
 
+def field_in_words(name: str) -> str:
+    """An initiative's field as the pages name it ("period", not "period_id")."""
+    return _FIELD_WORDS.get(name, name.replace("_", " "))
+
+
 def _change_summary(title: str, before: dict[str, Any], after: dict[str, Any]) -> str:
-    fields = sorted(_FIELD_WORDS.get(name, name) for name in _changed(after, before))
+    fields = sorted(field_in_words(name) for name in _changed(after, before))
     return f"Changed {and_list(fields) if fields else 'nothing'} of “{title}”"
 
 

@@ -213,3 +213,21 @@ def test_nothing_to_undo_says_so(form_client: TestClient, session: Session) -> N
     )
     assert response.status_code == 404
     assert "no change of this team in this period left to undo" in response.text
+
+
+def test_undoing_a_move_says_period_and_fields_as_the_pages_name_them(
+    form_client: TestClient, session: Session
+) -> None:
+    """It read "Put back the earlier period id of …"; the Changes list says "period"."""
+    setup = build(session)
+    initiative_id = setup.ids["Audit log"]
+    update_initiative(
+        session,
+        initiative_id=initiative_id,
+        initiative_in=InitiativeUpdate(version=1, period_id=None, either_or="Logs"),
+    )
+    url = f"/teams/{setup.team.id}/plan/undo"
+    response = post_form(form_client, url, {"period_id": str(setup.period.id)}, **HX)
+    assert response.status_code == 200
+    notice = parse_html(response.text).by_id("notice").text()
+    assert "Put back the earlier either-or set and period of “Audit log”" in notice
