@@ -425,8 +425,9 @@ def capacity_bar(plan: LivePlan) -> CapacityBar:
     capacity = selection.capacity
     headroom = max(0.0, capacity - selection.effort)
     over = max(0.0, selection.effort - capacity)
-    if not selection.feasible and selection.excess_days is not None:
-        # The overrun the message states: efforts rounded up, capacity down to the resolution.
+    if not selection.feasible and over <= 1e-9 and selection.excess_days is not None:
+        # Over only once efforts are rounded up to the resolution: show that overrun. Otherwise
+        # the estimated one, which the headroom beside it says too.
         over = selection.excess_days
     scale = BAR_UNITS / max(capacity, selection.effort, 1e-9)
     segments = []

@@ -329,16 +329,36 @@ def test_pinned_over_capacity_says_by_how_much(form_client: TestClient, session:
 def test_the_bar_states_the_same_overrun_as_the_message(
     form_client: TestClient, session: Session
 ) -> None:
-    """Efforts round up to the 0.5-day resolution: 7.2 + 5.1 days plan as 7.5 + 5.5 = 13."""
+    """Efforts round up to the 0.5-day resolution: 7.2 + 5.1 days plan as 7.5 + 5.5 = 13,
+    3 over in steps; as estimated 12.3, 2.3 over, which the headroom says too (-2.3): the bar
+    says the estimated overrun, and the message both."""
     team = make_team(session)
     period = make_period(session)
     _capacity(session, team, period, 1)  # 10 days
     make_initiative(session, team, period, "Quay wall", 7.2, 10, state="pinned")
     make_initiative(session, team, period, "Crane rail", 5.1, 10, state="pinned")
     root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
-    assert "3.0 days over" in root.find(cls="overrun").text()  # type: ignore[union-attr]
+    message = root.find(cls="overrun").text()  # type: ignore[union-attr]
+    assert "3.0 days over" in message
+    assert "it is 12.3 days, 2.3 over" in message
+    assert float(root.by_id("total-headroom").get("value") or "nan") == pytest.approx(-2.3)
     bar = root.find(cls="capacity-bar").text()  # type: ignore[union-attr]
-    assert "Over capacity by 3 days" in " ".join(bar.split())
+    assert "Over capacity by 2.3 days" in " ".join(bar.split())
+
+
+def test_an_overrun_only_from_rounding_is_still_shown_on_the_bar(
+    form_client: TestClient, session: Session
+) -> None:
+    """3 x 3.3 days = 9.9 of 10, but 3 x 3.5 = 10.5 in 0.5-day steps: over by 0.5 in steps."""
+    team = make_team(session)
+    period = make_period(session)
+    _capacity(session, team, period, 1)  # 10 days
+    for title in ("Quay wall", "Crane rail", "Dock gate"):
+        make_initiative(session, team, period, title, 3.3, 10, state="pinned")
+    root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
+    assert "finer resolution" in root.find(cls="overrun").text()  # type: ignore[union-attr]
+    bar = root.find(cls="capacity-bar").text()  # type: ignore[union-attr]
+    assert "Over capacity by 0.5 days" in " ".join(bar.split())
 
 
 def test_rounding_and_needs_warnings(form_client: TestClient, session: Session) -> None:
