@@ -12,6 +12,7 @@ reach. Everything is read from the stored snapshot alone, so old snapshots are c
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from server.planning.snapshots import CapacitySnapshot, PlanView
@@ -32,7 +33,9 @@ class TeamCapacity:
     """A team's capacity in a period as totals: nothing per member."""
 
     working_days: int
-    days_off: float
+    full_time: float  # the members' shares added up: how many full-time people
+    person_days: float  # working days at those shares, before days off
+    days_off: float  # at the same shares, so that person_days - days_off = available_days
     available_days: float
     focus_factor: float
     focused_days: float
@@ -50,9 +53,12 @@ class PublishedPlan:
 
 
 def team_capacity(capacity: CapacitySnapshot) -> TeamCapacity:
+    person_days = math.fsum(m.working_days * m.allocation for m in capacity.members)
     return TeamCapacity(
         working_days=capacity.working_days,
-        days_off=sum(m.days_off for m in capacity.members),
+        full_time=math.fsum(m.allocation for m in capacity.members),
+        person_days=person_days,
+        days_off=person_days - capacity.gross_days,
         available_days=capacity.gross_days,
         focus_factor=capacity.focus_factor,
         focused_days=capacity.focused_days,

@@ -66,8 +66,11 @@ def test_published_scenario_plan_shows_team_totals_and_no_member(
     assert "admin" not in text
     assert "saved " + plan["created_at"][:10] in text
     # The team's figures and the scenario's change, in team terms.
-    assert "Days off, whole team 8.5" in text
     assert "Working days in the period 10" in text
+    # The table adds up (it read "10 / days off 8.5 / available 21.5"): 3 people x 10 days.
+    assert "× 3 full-time people (the members' shares added up) 30" in text
+    assert "− days off, whole team, at the same shares 8.5" in text
+    assert "Available person-days 21.5" in text
     assert "Days off for the team: 8.5 days in total, 5 days more (live: 3.5 days)" in text
     assert "× focus factor 0.7" in text
     assert "− reserve 15 %" in text
