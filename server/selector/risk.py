@@ -226,7 +226,7 @@ def validate_confidence(raw: object) -> float:
             parsed = float(number)
         except ValueError:
             raise EstimateError(
-                "confidence", f"must be a level such as P80, 80 % or 0.8, not {raw!r}"
+                "confidence", f"must be a level such as P80, 80 % or 0.8, not “{raw.strip()}”"
             ) from None
         if percent or parsed >= 1:
             if not 0 < parsed < 100:
@@ -242,7 +242,8 @@ def _checked_confidence(q: object) -> float:
     level = _real("confidence", q)
     if not 0 < level < 1:
         raise EstimateError(
-            "confidence", f"must be strictly between 0 and 1, e.g. 0.8 for P80 (got {level:g})"
+            "confidence",
+            f"must be a level above 0 and below 1 (P1 to P99), e.g. 0.8 for P80; got {level:g}",
         )
     return level
 
