@@ -522,7 +522,7 @@ def parse_plan_csv(text: str, *, team_id: int) -> ImportedPlan:
             raise _fail(row.line, "needs", f"no row with key {', '.join(unknown)}.")
     cycle = _needs_cycle(rows)
     if cycle:
-        raise InputError(f"csv: Needs form a cycle: {' -> '.join(cycle)}.", field="csv")
+        raise InputError(f"csv: Needs form a cycle: {' → '.join(cycle)}.", field="csv")
     spread = _float(0, "default_spread", summary.get("default_spread", ""), required=False)
     if spread is not None and not 0 <= spread < 1:
         raise InputError("csv: The default_spread value must be from 0 to below 1.", field="csv")

@@ -559,7 +559,7 @@ def _titles(session: Session, ids: Iterable[int]) -> str:
         row.id: row.title
         for row in session.exec(select(Initiative).where(col(Initiative.id).in_(list(ids))))
     }
-    return " -> ".join(quoted(rows.get(i, str(i))) for i in ids)
+    return " → ".join(quoted(rows.get(i, str(i))) for i in ids)
 
 
 def _set_effort(session: Session, db_row: Initiative, team_id: int, effort: EffortIn) -> None:

@@ -397,7 +397,7 @@ def test_force_in_is_a_shareable_link(form_client: TestClient, session: Session)
     assert f"Forced in: “{title}”." in forced.text()
     # An id that is not in this plan (deleted, another team's) is said to be left alone.
     stray = page(form_client, href.split("#")[0] + "&force_in=4711")
-    assert "Not in this plan, so not forced: initiative 4711" in stray.text()
+    assert "so it is not forced: the initiative with id 4711." in stray.text()
     assert "#4711" not in stray.text()
 
 

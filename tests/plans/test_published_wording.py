@@ -50,6 +50,8 @@ def test_published_page_states_the_method_in_plain_words(
     shown = _visible(html)
     assert STEPS_IN_WORDS in shown
     assert "simulated runs of the low, likely and high estimates" in shown
+    assert re.search(r"% \(from [\d,]+ simulated runs", shown), shown  # it read "%(from"
+    assert re.search(r"% \(Monte Carlo over", _visible(saved)), _visible(saved)
     for jargon in (
         "milp",
         "HiGHS",
