@@ -854,3 +854,17 @@ def test_a_left_out_explanation_names_what_would_come_in_as_well_as_what_would_l
     (why,) = [e for e in api["selection"]["explanations"] if e["key"] == str(gauge)]
     assert why["moves_with"] == [str(setup.ids["Fender row"])]
     assert why["reason"] == reason
+
+
+def test_a_plan_with_nothing_in_it_claims_no_chance_that_it_fits(
+    form_client: TestClient, session: Session
+) -> None:
+    """It read "100 % (single estimates)" for an empty period, beside the overview's "nothing
+    to plan yet"."""
+    team, period = make_team(session), make_period(session)
+    _capacity(session, team, period, 1)
+    root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
+    assert root.by_id("fit-label").text().strip() == "–"
+    make_initiative(session, team, period, "Quay wall", 2, 5)
+    root = page(form_client, f"/teams/{team.id}/plan?period_id={period.id}")
+    assert root.by_id("fit-label").text().strip() == "100 % (single estimates)"
