@@ -12,7 +12,7 @@ from server.actor import current_actor
 from server.errors import ConflictError, NotFoundError
 from server.models import AuditEntry, Initiative
 from server.planning.paste import commit_paste, parse_paste
-from server.planning.undo import last_change, undo_last_change
+from server.planning.undo import last_change, redo_last_undo, undo_last_change
 from server.schemas import EffortIn, InitiativeUpdate
 from server.store.initiatives import delete_initiative, get_initiative, update_initiative
 from tests.factories import make_initiative, make_period, make_team
@@ -231,3 +231,23 @@ def test_undoing_a_move_says_period_and_fields_as_the_pages_name_them(
     assert response.status_code == 200
     notice = parse_html(response.text).by_id("notice").text()
     assert "Put back the earlier either-or set and period of “Audit log”" in notice
+
+
+def test_the_changes_list_says_an_undo_was_redone_not_undone(
+    form_client: TestClient, session: Session
+) -> None:
+    """An undo that was redone read "Undid: Changed value of “Audit log” (undone)"."""
+    setup = build(session)
+    initiative_id = setup.ids["Audit log"]
+    update_initiative(
+        session, initiative_id=initiative_id, initiative_in=InitiativeUpdate(version=1, value=99)
+    )
+    undo_last_change(session, team_id=setup.team.id or 0, period_id=setup.period.id)
+    redo_last_undo(session, team_id=setup.team.id or 0, period_id=setup.period.id)
+    assert _fresh(session, initiative_id).value == 99  # type: ignore[union-attr]
+    rows = parse_html(form_client.get("/audit").text).find_all("tr")
+    said = [" ".join(row.text().split()) for row in rows if "Audit log" in row.text()]
+    undo_rows = [text for text in said if "Undid: Changed value" in text]
+    assert undo_rows
+    assert all("(redone since)" in text for text in undo_rows), said
+    assert not any("Undid:" in text and "(undone since)" in text for text in said), said
