@@ -5,8 +5,9 @@ and spread, and deleting the team. Thin routes, as in home_pages.
 from __future__ import annotations
 
 from typing import Any
+from urllib.parse import urlencode
 
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import Response
 
 from server.deps import SessionDep, TemplatesDep
@@ -39,6 +40,7 @@ from server.store import periods as period_store
 from server.store import teams as team_store
 from server.templating import form_number
 from server.validation import parse_form
+from server.wording import possessive
 
 router = APIRouter(include_in_schema=False)
 
@@ -144,8 +146,11 @@ def team_page(
     session: SessionDep,
     templates: TemplatesDep,
     period_id: int | None = None,
+    saved: str | None = Query(None, max_length=40, description="What was just saved."),
 ) -> Response:
-    return render(templates, request, "team.html", _team_context(session, team_id, period_id))
+    context = _team_context(session, team_id, period_id)
+    context["saved_notice"] = _saved_notice(context, saved)
+    return render(templates, request, "team.html", context)
 
 
 @router.post("/teams/{team_id}/members")
@@ -161,7 +166,7 @@ async def add_member(
             lambda: team_store.create_member(session, member_in=member_in)
         )
         if db_member is not None:
-            return see_other(_team_url(team_id, period_id))
+            return see_other(_team_url(team_id, period_id, saved="member-added"))
     context = _team_context(session, team_id, period_id) | {
         "member_form": values,
         "member_errors": errors,
@@ -186,7 +191,7 @@ async def update_team(
             )
         )
         if db_team is not None:
-            return see_other(_team_url(team_id, period_id))
+            return see_other(_team_url(team_id, period_id, saved="team"))
     context = _team_context(session, team_id, period_id)
     who = audit.last_actor(session, entity="team", entity_id=team_id)
     values, errors = after_conflict(
@@ -255,7 +260,7 @@ async def update_member(
             )
         )
         if db_member is not None:
-            return see_other(_team_url(team_id, period_id))
+            return see_other(_team_url(team_id, period_id, saved=f"member-{member_id}"))
     context = _team_context(session, team_id, period_id)
     stored = context["member_shown"].get(member_id, {})
     who = audit.last_actor(session, entity="member", entity_id=member_id)
@@ -284,7 +289,7 @@ async def remove_member(
         }
         return render(templates, request, "team.html", context, status_code=422)
     team_store.delete_member(session, member_id=member_id)
-    return see_other(_team_url(team_id, period_id))
+    return see_other(_team_url(team_id, period_id, saved="member-removed"))
 
 
 @router.post("/teams/{team_id}/availability")
@@ -328,7 +333,8 @@ async def set_availability(
             )
         )
         if row is not None:
-            return see_other(_team_url(team_id, period_id))
+            saved = f"days-off-{availability_in.member_id}"
+            return see_other(_team_url(team_id, period_id, saved=saved))
     context = _team_context(session, team_id, period_id)
     stored_row = context["availability"].get(optional_int(values["member_id"]))
     who = audit.last_actor(
@@ -366,7 +372,7 @@ async def set_capacity(
             )
         )
         if stored is not None:
-            return see_other(_team_url(team_id, period_id))
+            return see_other(_team_url(team_id, period_id, saved="capacity"))
     if period_id is None:
         errors = {"period_id": "Choose a period first."}
     context = _team_context(session, team_id, period_id)
@@ -386,5 +392,27 @@ async def set_capacity(
     return render(templates, request, "team.html", context, status_code=refusal_status(errors))
 
 
-def _team_url(team_id: int, period_id: int | None) -> str:
-    return f"/teams/{team_id}" + (f"?period_id={period_id}" if period_id else "")
+def _team_url(team_id: int, period_id: int | None, *, saved: str | None = None) -> str:
+    """The team page; `saved` names what was just saved, for the page to say so."""
+    query = {"period_id": period_id, "saved": saved}
+    shown = urlencode({k: v for k, v in query.items() if v})
+    return f"/teams/{team_id}" + (f"?{shown}" if shown else "")
+
+
+def _saved_notice(context: dict[str, Any], saved: str | None) -> str | None:
+    """What the page says was saved, from the `saved` code the save redirected with."""
+    if not saved:
+        return None
+    members = {str(m.id): m.name for m in context.get("members", [])}
+    kind, _, member_id = saved.rpartition("-") if saved[-1:].isdigit() else (saved, "", "")
+    name = members.get(member_id)
+    if kind == "days-off" and name:
+        return f"Saved {possessive(name)} days off."
+    if kind == "member" and name:
+        return f"Saved {name}."
+    return {
+        "member-added": "Member added.",
+        "member-removed": "Member removed, with their days off.",
+        "capacity": "Saved the focus factor and reserve.",
+        "team": "Saved the team's name and estimate spread.",
+    }.get(saved)

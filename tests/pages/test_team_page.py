@@ -221,7 +221,11 @@ def test_adding_a_member_through_the_form(
     data = {"name": "Eli", "share": "60", "period_id": str(team.period)}
     response = _post(form_client, f"/teams/{team.id}/members", data)
     assert response.status_code == 303  # type: ignore[attr-defined]
-    assert response.headers["location"] == f"/teams/{team.id}?period_id={team.period}"  # type: ignore[attr-defined]
+    location = response.headers["location"]  # type: ignore[attr-defined]
+    assert location == f"/teams/{team.id}?period_id={team.period}&saved=member-added"
+    notice = parse(form_client.get(location).text).find("p", cls="notice")
+    assert notice is not None
+    assert notice.text() == "Member added."
     eli = session.exec(select(Member).where(Member.name == "Eli")).one()
     assert eli.allocation == 0.6
     page = parse(form_client.get(f"/teams/{team.id}").text)
@@ -625,3 +629,19 @@ def test_another_teams_effort_is_removed_on_the_edit_page_so_a_team_can_go(
     lines = session.exec(select(EffortLine).where(EffortLine.initiative_id == beacon.row.id))
     assert [line.team_id for line in lines] == [lighthouse.id]
     assert _post(form_client, f"/teams/{team.id}/delete", {"confirm": "yes"}).status_code == 303  # type: ignore[attr-defined]
+
+
+def test_a_save_on_the_team_page_says_what_was_saved(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    """Saving days off or the focus factor showed the page again without a word."""
+    url = f"/teams/{team.id}/availability"
+    data = {"member_id": str(team.ola), "period_id": str(team.period), "days_off": "3"}
+    response = _post(form_client, url, data | {"share": ""})
+    location = response.headers["location"]  # type: ignore[attr-defined]
+    notice = parse(form_client.get(location).text).find("p", cls="notice")
+    assert notice.text() == "Saved Ola's days off."
+    # An unknown code or member says nothing rather than something wrong.
+    for code in ("days-off-999999", "whatever"):
+        page = parse(form_client.get(f"/teams/{team.id}?saved={code}").text)
+        assert page.find_all("p", cls="notice") == []
