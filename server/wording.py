@@ -96,3 +96,40 @@ def audit_value(value: Any) -> str:
     if isinstance(value, dict):
         return ", ".join(f"{str(k).replace('_', ' ')} {audit_value(v)}" for k, v in value.items())
     return str(value)
+
+
+# Field names as the pages label them.
+FIELD_LABELS = {
+    "allocation": "share",
+    "capacity_days": "capacity",
+    "forced_in": "forced in",
+    "forced_out": "forced out",
+    "availability": "days off",
+    "changes": "changes",
+    "confidence": "confidence",
+    "days_off": "days off",
+    "default_spread": "default spread",
+    "effort": "effort",
+    "either_or": "either-or set",
+    "end_date": "end date",
+    "focus_factor": "focus factor",
+    "kind": "kind",
+    "name": "name",
+    "needs": "needs",
+    "non_working_dates": "non-working dates",
+    "notes": "notes",
+    "other_efforts": "other teams' effort",
+    "period_id": "period",
+    "reserve_pct": "reserve",
+    "start_date": "start date",
+    "state": "state",
+    "team_id": "team",
+    "title": "title",
+    "value": "value score",
+    "weekmask": "working weekdays",
+}
+
+
+def field_label(name: str) -> str:
+    """A stored field as the pages label it: "reserve", not "reserve_pct"."""
+    return FIELD_LABELS.get(name, name.replace("_", " "))

@@ -16,35 +16,7 @@ from sqlmodel import Session, col, select
 
 from server.models import AuditEntry, Initiative, Member, Period
 from server.planning.scenarios import changes_from_json, changes_in_words
-from server.wording import STATE_LABELS, audit_value, in_days, quoted
-
-# Field names as the pages label them.
-FIELD_LABELS = {
-    "allocation": "share",
-    "availability": "days off",
-    "changes": "changes",
-    "confidence": "confidence",
-    "days_off": "days off",
-    "default_spread": "default spread",
-    "effort": "effort",
-    "either_or": "either-or set",
-    "end_date": "end date",
-    "focus_factor": "focus factor",
-    "kind": "kind",
-    "name": "name",
-    "needs": "needs",
-    "non_working_dates": "non-working dates",
-    "notes": "notes",
-    "other_efforts": "other teams' effort",
-    "period_id": "period",
-    "reserve_pct": "reserve",
-    "start_date": "start date",
-    "state": "state",
-    "team_id": "team",
-    "title": "title",
-    "value": "value score",
-    "weekmask": "working weekdays",
-}
+from server.wording import STATE_LABELS, audit_value, field_label, in_days, quoted
 
 # Keys kept for undo or for the record that the page does not list on their own.
 _NOT_LISTED = {"in_words", "position", "id", "version", "created_at", "updated_at"}
@@ -280,7 +252,7 @@ def _pairs(
 ) -> list[tuple[str, str]]:
     """The listed values; a field equal on both sides (a scenario's name kept) is left out."""
     return [
-        (FIELD_LABELS.get(key, key.replace("_", " ")), value_words(key, value, names, entry))
+        (field_label(key), value_words(key, value, names, entry))
         for key, value in (values or {}).items()
         if key not in _NOT_LISTED and not (other and key in other and other[key] == value)
     ]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 from typing import Annotated, Any, Literal
+from urllib.parse import quote
 
 from fastapi import APIRouter, Path, Query, status
 from fastapi.responses import Response
@@ -328,13 +329,19 @@ EXPORT_RESPONSES: dict[int | str, dict[str, Any]] = {
 
 
 def export_response(body: str, fmt: str, filename: str) -> Response:
-    """A download: safe file name, the format's media type, UTF-8."""
+    """A download: the format's media type, UTF-8, and the file name twice (RFC 6266): as
+    typed, letters of any script kept (filename*, RFC 8187), and in ASCII for old clients."""
     safe = "".join(c if (c.isascii() and c.isalnum()) or c in "-_" else "-" for c in filename)
     safe = safe[:60] or "plan"
+    # Letters and digits of any script, spaces as hyphens; no path or quote characters.
+    typed = "".join(c if c.isalnum() or c in "-_" else "-" for c in filename)[:60] or "plan"
+    disposition = f'attachment; filename="{safe}.{fmt}"'
+    if typed != safe:
+        disposition += f"; filename*=UTF-8''{quote(f'{typed}.{fmt}', safe='')}"
     return Response(
         body,
         media_type=f"{_MEDIA[fmt]}; charset=utf-8",
-        headers={"Content-Disposition": f'attachment; filename="{safe}.{fmt}"'},
+        headers={"Content-Disposition": disposition},
     )
 
 

@@ -53,7 +53,7 @@ from server.store.initiatives import (
 )
 from server.store.periods import get_period
 from server.store.teams import get_team, list_members
-from server.wording import counted, days, in_days, quoted
+from server.wording import counted, days, field_label, in_days, quoted
 
 TOKEN_BYTES = 32
 
@@ -134,7 +134,7 @@ def scenario_fingerprint(db_scenario: Scenario) -> str:
 
 
 def _refuse_if_scenario_changed(db_scenario: Scenario, based_on: BasedOn) -> None:
-    changed = [name.replace("_", " ") for name in db_scenario.changes]
+    changed = [field_label(name) for name in db_scenario.changes]
     refuse_if_changed(
         based_on,
         {"name": db_scenario.name, "changes": db_scenario.changes},

@@ -8,6 +8,7 @@ import csv
 import io
 import json
 import re
+from urllib.parse import quote, unquote
 
 import pytest
 from fastapi import FastAPI
@@ -460,13 +461,27 @@ def test_markdown_summary_escapes_markup(
     assert "In every plan:" in comparison.text
 
 
-def test_download_names_are_plain_ascii(workspace: Workspace, client: TestClient) -> None:
+def test_download_names_keep_their_letters_with_an_ascii_fallback(
+    workspace: Workspace, client: TestClient
+) -> None:
+    """RFC 6266 section 4.3: filename for old clients, filename* (RFC 8187) as typed; a name
+    in plain ASCII letters needs only the first."""
     plan = save_live(client, workspace, "Übergang “Q2” / 計画")
     response = client.get(f"/api/v1/plans/{plan['id']}/export.md")
     assert response.status_code == 200
     disposition = response.headers["content-disposition"]
     assert disposition.isascii()
-    assert disposition == f'attachment; filename="plan-{plan["id"]}--bergang--Q2------.md"'
+    typed = f"plan-{plan['id']}-Übergang--Q2----計画.md"
+    assert disposition == (
+        f'attachment; filename="plan-{plan["id"]}--bergang--Q2------.md"; '
+        f"filename*=UTF-8''{quote(typed, safe='')}"
+    )
+    assert unquote(disposition.split("UTF-8''")[1]) == typed
+    plain = save_live(client, workspace, "Sprint plan")
+    assert (
+        client.get(f"/api/v1/plans/{plain['id']}/export.md").headers["content-disposition"]
+        == f'attachment; filename="plan-{plain["id"]}-Sprint-plan.md"'
+    )
 
 
 def test_csv_numbers_carry_no_float_noise() -> None:

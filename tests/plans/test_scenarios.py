@@ -389,7 +389,10 @@ def test_a_scenario_saved_over_a_colleagues_change_is_refused(
     assert stale.status_code == 409
     shown = Form(parse(stale.text), url)
     assert shown.value("name") == "Leaner"
-    assert "was changed while you were editing" in " ".join(shown.errors())
+    said = " ".join(shown.errors())
+    assert "was changed while you were editing" in said
+    assert "changing capacity" in said, said
+    assert "capacity days" not in said, said  # the page's word for it is "capacity"
     kept = client_scenario(form_client, scenario_id)
     assert (kept["name"], kept["changes"]["capacity_days"]) == ("Lean", 9)
 
