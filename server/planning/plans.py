@@ -277,6 +277,29 @@ def _blocked_explanation(
     return replace(explanation, reason=reason)
 
 
+# A forced row goes to the selector pinned (in) or ruled out (out): its reason says forced.
+_FORCED_REASONS = {
+    "in": (
+        ("Pinned: always in the plan;", "Forced in: in this plan by the what-if;"),
+        ("without the pin", "without the forcing"),
+        ("the pin costs no value", "the forcing costs no value"),
+    ),
+    "out": (
+        ("Ruled out: never in the plan;", "Forced out: kept out of this plan by the what-if;"),
+    ),
+}
+
+
+def _forced_explanation(explanation: Explanation | None, forced: str | None) -> Explanation | None:
+    """Forced work explained as forced by the what-if, not as pinned or ruled out for good."""
+    if explanation is None or forced is None:
+        return explanation
+    reason = explanation.reason
+    for before, after in _FORCED_REASONS[forced]:
+        reason = reason.replace(before, after)
+    return replace(explanation, reason=reason)
+
+
 def _refuse_forcing_in_blocked(
     records: list[InitiativeRecord], blocked: dict[int, list[str]], options: PlanOptions
 ) -> None:
@@ -428,8 +451,9 @@ def plan_for(
                 forced=forced,
                 blocked_by=tuple(blocked.get(rid, [])),
                 other_teams=others,
-                explanation=_blocked_explanation(
-                    explanations.get(str(rid)), tuple(blocked.get(rid, []))
+                explanation=_forced_explanation(
+                    _blocked_explanation(explanations.get(str(rid)), tuple(blocked.get(rid, []))),
+                    forced,
                 ),
             )
         )

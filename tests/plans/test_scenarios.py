@@ -138,6 +138,13 @@ def test_forced_in_appears_and_forced_out_does_not(session: Session, workspace: 
     )
     assert outcome.value_change == pytest.approx(plan.selection.value - live.selection.value)
     assert outcome.value_change <= 0  # the live plan was optimal without the forcing
+    # Explained as forced by the what-if: it read "Pinned: always in the plan; without the
+    # pin …" for a candidate that nobody pinned.
+    reasons = {r.id: r.explanation.reason for r in plan.rows if r.explanation}
+    assert reasons[left_out.id].startswith("Forced in: in this plan by the what-if;")
+    assert "pin" not in reasons[left_out.id]
+    assert reasons[chosen.id].startswith("Forced out: kept out of this plan by the what-if;")
+    assert "Ruled out" not in reasons[chosen.id]
 
 
 def test_confidence_level_plans_with_beta_quantiles(session: Session, workspace: Workspace) -> None:
