@@ -39,6 +39,8 @@ from server.schemas import EffortIn, InitiativeCreate
 from server.validation import field_and_message
 from server.wording import days, in_days
 
+# Whether a plan can be carried out at all, as a comparison says it.
+FITS, OVERRUNS = "yes", "no: pinned work alone overruns"
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 MAX_IMPORT_ROWS = 2000
 INITIATIVE_COLUMNS = (
@@ -121,6 +123,7 @@ def _plan_preamble(db_plan: SavedPlan, view: PlanView) -> list[tuple[str, object
         ("value", r.value),
         ("effort", r.effort),
         ("headroom", r.headroom),
+        ("feasible", "yes" if r.feasible else "no"),
         ("fit_probability", _number(r.fit.probability if r.fit else None)),
         ("method", r.method),
     ]
@@ -268,6 +271,7 @@ def _figures(cmp: Comparison) -> list[tuple[str, list[object]]]:
         ("effort_days", [p.effort for p in cmp.plans]),
         ("capacity_days", [p.capacity for p in cmp.plans]),
         ("headroom_days", [p.headroom for p in cmp.plans]),
+        ("feasible", ["yes" if p.feasible else "no" for p in cmp.plans]),
         ("utilisation", [_number(p.utilisation) for p in cmp.plans]),
         ("confidence", [_number(p.confidence) for p in cmp.plans]),
         ("fit_probability", [_number(p.fit_probability) for p in cmp.plans]),
@@ -310,6 +314,7 @@ def comparison_markdown(cmp: Comparison) -> str:
         ("Effort (days)", [_d(p.effort) for p in cmp.plans]),
         ("Capacity (days)", [_d(p.capacity) for p in cmp.plans]),
         ("Headroom (days)", [_d(p.headroom) for p in cmp.plans]),
+        ("Fits the capacity", [FITS if p.feasible else OVERRUNS for p in cmp.plans]),
         ("Utilisation", [_pct(p.utilisation) for p in cmp.plans]),
         ("Planned at", [_level(p.confidence) for p in cmp.plans]),
         ("Chance it fits", [md(p.fit_label) if p.fit_label else "–" for p in cmp.plans]),

@@ -315,3 +315,27 @@ def test_the_curve_table_shows_no_value_past_a_shorter_curve(
     for row in past:
         assert row.find_all("td")[1].text().strip() == "–"
     assert page.by_id("past-curve-note") is not None
+
+
+def test_a_plan_whose_pinned_work_overruns_is_marked_in_the_comparison_and_its_downloads(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """Value 135, headroom -34, utilisation 440 % and not a word that it cannot be done."""
+    edit(session, workspace.id_of("Fare capping"), state="pinned")  # 4 days
+    fits = save_live(client, workspace, "As it stands")
+    overruns = save_live(client, workspace, "One day", changes={"capacity_days": 1})
+    assert fits["headroom"] >= 0
+    assert overruns["headroom"] < 0
+    ids = f"{fits['id']},{overruns['id']}"
+    root = parse_html(client.get(f"/compare?plans={ids}").text)
+    row = next(tr for tr in root.find_all("tr") if "Fits the capacity" in tr.text())
+    cells = [" ".join(td.text().split()) for td in row.find_all("td")]
+    assert cells[0] == "yes"
+    assert cells[1].startswith("no")
+    assert cells[1].endswith("pinned work alone overruns")
+    csv_text = client.get(f"/api/v1/compare/export.csv?plans={ids}").text
+    assert '"feasible","yes","no"' in csv_text
+    markdown = client.get(f"/api/v1/compare/export.md?plans={ids}").text
+    assert "| Fits the capacity | yes | no: pinned work alone overruns |" in markdown
+    plan_csv = client.get(f"/api/v1/plans/{overruns['id']}/export.csv").text
+    assert '"feasible","no"' in plan_csv
