@@ -28,9 +28,11 @@ _SUMMARY_WORDS = {
 
 
 def values_shown(entry: AuditEntry) -> bool:
-    """Edits, availability, removed members and deleted scenarios list their values; the
+    """Edits, availability, removed members, deleted initiatives and deleted scenarios list
+    their values (a deleted initiative's are all that is left to make it again by hand); the
     values of other entries are whole records, which the summary already names."""
     return entry.action.endswith((".update", ".set")) or entry.action in (
+        "initiative.delete",
         "member.delete",
         "availability.delete",
         "scenario.delete",

@@ -403,3 +403,23 @@ def test_names_are_read_in_a_fixed_number_of_statements(
     assert len(many) == len(few)
     # Sign-in (2), teams, the entries, their count, member names, initiative titles.
     assert len(many) <= 7
+
+
+def test_a_deleted_initiative_is_listed_with_what_it_was(
+    client: TestClient, session: Session
+) -> None:
+    """Its Before column was empty: all that is left to make it again by hand is the entry."""
+    harbour, period = make_team(session, "Harbour"), make_period(session, "Sprint 1")
+    pier = make_initiative(session, harbour, period, "Old pier", effort=8.0, value=15.0)
+    update_initiative(
+        session,
+        initiative_id=pier.row.id or 0,
+        initiative_in=InitiativeUpdate(version=1, state="pinned", notes="Keep the bollards"),
+    )
+    delete_initiative(session, initiative_id=pier.row.id or 0)
+    deleted = _row(_rows(client), "Deleted “Old pier”")
+    for said in ("title: Old pier", "effort: 8 days", "value score: 15", "state: pinned"):
+        assert said in deleted, (said, deleted)
+    assert "Keep the bollards" in deleted
+    for internal in ("version", "position", "team id", "created"):
+        assert internal not in deleted, (internal, deleted)
