@@ -67,6 +67,11 @@ class EntryView:
     summary: str
     before: list[tuple[str, str]]
     after: list[tuple[str, str]]
+    made_by: str | None = None  # "undo" / "redo": the change an undo or a redo made itself
+
+
+# An undo or redo records its own entry, then the changes it makes (listed in its "produced").
+_REVERTING = {"initiative.undo": "undo", "initiative.redo": "redo"}
 
 
 @dataclass
@@ -270,6 +275,12 @@ def summary_words(entry: AuditEntry) -> str:
 
 
 def entry_views(entries: Sequence[AuditEntry], names: Names) -> list[EntryView]:
+    made_by = {
+        int(produced): _REVERTING[entry.action]
+        for entry in entries
+        if entry.action in _REVERTING
+        for produced in (entry.after or {}).get("produced", [])
+    }
     views = []
     for entry in entries:
         shown = values_shown(entry)
@@ -279,6 +290,7 @@ def entry_views(entries: Sequence[AuditEntry], names: Names) -> list[EntryView]:
                 summary=summary_words(entry),
                 before=_pairs(entry.before, entry.after, names, entry) if shown else [],
                 after=_pairs(entry.after, entry.before, names, entry) if shown else [],
+                made_by=made_by.get(entry.id or 0),
             )
         )
     return views

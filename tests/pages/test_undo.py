@@ -250,4 +250,8 @@ def test_the_changes_list_says_an_undo_was_redone_not_undone(
     undo_rows = [text for text in said if "Undid: Changed value" in text]
     assert undo_rows
     assert all("(redone since)" in text for text in undo_rows), said
+    # The changes the undo and the redo made themselves say so, under their own rows' entries.
+    made = [text for text in said if text.count("Changed value of “Audit log”") == 1]
+    assert any("(made by the undo below)" in text for text in made), said
+    assert any("(made by the redo below)" in text for text in made), said
     assert not any("Undid:" in text and "(undone since)" in text for text in said), said
