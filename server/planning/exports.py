@@ -37,7 +37,7 @@ from server.planning.scenarios import MAX_CAPACITY_DAYS, MIN_CAPACITY_DAYS
 from server.planning.snapshots import PlanView, view_of
 from server.schemas import EffortIn, InitiativeCreate
 from server.validation import field_and_message
-from server.wording import days, in_days
+from server.wording import STATE_LABELS, days, in_days
 
 # Whether a plan can be carried out at all, as a comparison says it.
 FITS, OVERRUNS = "yes", "no: pinned work alone overruns"
@@ -127,6 +127,12 @@ def _plan_preamble(db_plan: SavedPlan, view: PlanView) -> list[tuple[str, object
         ("fit_probability", _number(r.fit.probability if r.fit else None)),
         ("method", r.method),
     ]
+
+
+def _state_words(i: Any) -> str:
+    """The state as the pages say it, and the scenario's forcing: "candidate, forced in"."""
+    words = STATE_LABELS.get(i.state, i.state)
+    return f"{words}, forced {i.forced}" if i.forced else words
 
 
 def _estimate_cells(i: Any) -> tuple[object, object, object]:
@@ -247,7 +253,7 @@ def plan_markdown(db_plan: SavedPlan) -> str:
     lines += ["", f"## In the plan ({len(view.chosen)})", ""]
     lines += ["| Initiative | Effort (days) | Value | State |", "| --- | ---: | ---: | --- |"]
     lines += [
-        f"| {_titled(i)} | {_d(i.planned_effort)} | {_d(i.value)} | {md(i.state)} |"
+        f"| {_titled(i)} | {_d(i.planned_effort)} | {_d(i.value)} | {md(_state_words(i))} |"
         for i in view.chosen
     ]
     lines += ["", f"## Left out ({len(view.left_out)})", ""]

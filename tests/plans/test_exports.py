@@ -576,3 +576,17 @@ def test_import_page_shows_the_imports_notes_before_the_scenario(
     assert "spread ±20 %; Unspread spreads them ±0 %" in page.find("ul", cls="import-notes").text()
     link = page.find("a", id="scenario-link").attrs["href"]
     assert form_client.get(link).status_code == 200
+
+
+def test_the_markdown_says_which_rows_the_scenario_forced_in(
+    workspace: Workspace, client: TestClient
+) -> None:
+    """A forced-in row read only "candidate": a reader could not tell it was forced."""
+    live = client.get(
+        f"/api/v1/teams/{workspace.team_id}/periods/{workspace.period_id}/plan"
+    ).json()
+    left_out = next(r for r in live["initiatives"] if not r["chosen"])
+    plan = save_live(client, workspace, "Forced", changes={"forced_in": [left_out["id"]]})
+    markdown = client.get(f"/api/v1/plans/{plan['id']}/export.md").text
+    row = next(line for line in markdown.splitlines() if line.startswith(f"| {left_out['title']}"))
+    assert row.endswith("| candidate, forced in |"), row
