@@ -560,11 +560,15 @@ def _read_changes(
 ) -> tuple[ScenarioChanges | None, dict[str, str]]:
     fields = {key: value for key, value in form.items() if isinstance(value, str)}
     changes, errors = parse_changes_form(fields)
-    if changes is not None:
+    # Days off that overrun the period are said with the other refusals, not after them.
+    checked = changes
+    if checked is None:
+        checked, _ = parse_changes_form({k: v for k, v in fields.items() if "." in k})
+    if checked is not None:
         try:
-            check_for_team(session, team_id=team_id, period_id=period_id, changes=changes)
+            check_for_team(session, team_id=team_id, period_id=period_id, changes=checked)
         except LoadlineError as exc:
-            return None, {exc.field or "form": exc.message}
+            return None, errors | {exc.field or "form": exc.message}
     return changes, errors
 
 

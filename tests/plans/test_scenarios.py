@@ -465,3 +465,21 @@ def test_a_capacity_beside_days_off_is_refused_on_the_form_with_everything_kept(
     assert saved.status_code == 422
     assert error_fields(saved) == ["capacity_days"]
     assert counts(session) == before
+
+
+def test_days_off_over_the_period_are_refused_with_the_other_fields_at_once(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    """Four problems were listed, and 99 days off in a 10-day period only once they were
+    fixed: one round trip for each kind of mistake."""
+    before = counts(session)
+    ola = workspace.members[0].id
+    typed = {"focus_factor": "much", f"days_off.{ola}": "99"}
+    refused = post_scenario_form(
+        form_client, workspace.team_id, workspace.period_id, name="Both", **typed
+    )
+    assert refused.status_code == 422
+    text = " ".join(parse_html(refused.text).by_id("error-summary").text().split())
+    assert "Enter a number" in text
+    assert "99 days off for" in text, text
+    assert counts(session) == before
