@@ -91,7 +91,7 @@ KINDS = [
         "PATCH",
         {"name": "Leaner"},
         {"changes": {"capacity_days": 9}},
-        "Scenario “Lean” was changed while you were editing: now changing capacity days.",
+        "Scenario “Lean” was changed while you were editing: now changing capacity.",
     ),
     Kind(
         "capacity settings",
