@@ -5,13 +5,15 @@ home_pages.
 from __future__ import annotations
 
 from typing import Any
+from urllib.parse import urlencode
 
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import Response
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
+from server.models import Initiative
 from server.routes.forms import (
     SHARE_RULE,
     form_text,
@@ -88,9 +90,31 @@ def initiatives_page(
     session: SessionDep,
     templates: TemplatesDep,
     period: str | None = None,
+    saved: str | None = Query(None, max_length=40, description="What was just saved."),
 ) -> Response:
     context = _initiatives_context(session, team_id, period)
+    context["saved_notice"] = _saved_notice(session, saved)
     return render(templates, request, "initiatives.html", context)
+
+
+def _list_url(team_id: int, period: str, saved: str) -> str:
+    """The initiative list a save returns to; `saved` names what was done, for it to say."""
+    return f"/teams/{team_id}/initiatives?{urlencode({'period': period, 'saved': saved})}"
+
+
+def _saved_notice(session: SessionDep, saved: str | None) -> str | None:
+    """ "Saved “Quay wall”." and the like, from the code a save redirected with."""
+    kind, _, raw_id = (saved or "").partition("-")
+    if not raw_id.isdigit() or len(raw_id) > 10:
+        return None
+    initiative_id = int(raw_id)
+    if kind == "deleted":
+        gone = initiative_store.deleted_refusal(session, initiative_id)
+        return f"Deleted “{gone.title}”." if gone is not None else None
+    row = session.get(Initiative, initiative_id)
+    if row is None or kind not in ("added", "saved"):
+        return None
+    return f"{'Added' if kind == 'added' else 'Saved'} “{row.title}”."
 
 
 def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
@@ -144,7 +168,7 @@ async def add_initiative(
         )
         if record is not None:
             period = form_text(form, "period_id") or initiative_store.BACKLOG
-            return see_other(f"/teams/{team_id}/initiatives?period={period}")
+            return see_other(_list_url(team_id, period, f"added-{record.row.id}"))
     context = _initiatives_context(session, team_id, form_text(form, "period_id") or None)
     context |= {"form": form_echo(form), "errors": errors}
     return render(templates, request, "initiatives.html", context, status_code=422)
@@ -259,7 +283,7 @@ async def edit_initiative(
                 context["merge_note"] = merged.note(who)
         else:
             period = form_text(form, "period_id") or initiative_store.BACKLOG
-            return see_other(f"/teams/{team_id}/initiatives?period={period}")
+            return see_other(_list_url(team_id, period, f"saved-{initiative_id}"))
     context |= {"form": typed, "errors": errors, "shown": shown}
     status = 409 if context.get("current") else 422
     return render(templates, request, "initiative_edit.html", context, status_code=status)
@@ -284,4 +308,4 @@ async def delete_initiative(
         return render(
             templates, request, "initiative_edit.html", context, status_code=exc.status_code
         )
-    return see_other(f"/teams/{record.row.team_id}/initiatives?period={period}")
+    return see_other(_list_url(record.row.team_id, period, f"deleted-{initiative_id}"))

@@ -115,10 +115,13 @@ def test_adding_an_initiative_through_the_form(
     }
     response = _post(form_client, f"/teams/{stored.team}/initiatives", data)
     assert response.status_code == 303
-    assert (
-        response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
-    )
     row = session.exec(select(Initiative).where(Initiative.title == "Fender replacement")).one()
+    location = response.headers["location"]
+    assert location == (
+        f"/teams/{stored.team}/initiatives?period={stored.period}&saved=added-{row.id}"
+    )
+    notice = parse(form_client.get(location).text).find("p", cls="notice")
+    assert notice.text() == "Added “Fender replacement”."
     record = _record(session, row.id or 0)
     effort = record.own_effort
     assert (effort.low, effort.likely, effort.high) == (3, 5, 9)
@@ -134,7 +137,7 @@ def test_adding_to_the_backlog_with_a_single_estimate(
     data = ADD | {"effort.low": "", "effort.high": "", "confidence": "", "period_id": "backlog"}
     response = _post(form_client, f"/teams/{stored.team}/initiatives", data)
     assert response.status_code == 303
-    assert response.headers["location"].endswith("?period=backlog")
+    assert "?period=backlog&saved=added-" in response.headers["location"]
     row = session.exec(select(Initiative).where(Initiative.title == "Fender replacement")).one()
     effort = _record(session, row.id or 0).own_effort
     assert (effort.low, effort.likely, effort.high) == (None, 5, None)
@@ -371,9 +374,12 @@ def test_deleting_through_the_form(
 
     response = _post(form_client, f"/initiatives/{stored.crane}/delete", YES)
     assert response.status_code == 303
-    assert (
-        response.headers["location"] == f"/teams/{stored.team}/initiatives?period={stored.period}"
+    location = response.headers["location"]
+    assert location == (
+        f"/teams/{stored.team}/initiatives?period={stored.period}&saved=deleted-{stored.crane}"
     )
+    notice = parse(form_client.get(location).text).find("p", cls="notice")
+    assert notice.text() == "Deleted “Crane rail”."
     assert _titles(session) == ["Quay wall"]
     # Nothing needs Quay wall any more, so it can go too.
     assert _post(form_client, f"/initiatives/{stored.quay}/delete", YES).status_code == 303
