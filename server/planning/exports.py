@@ -493,6 +493,12 @@ def parse_plan_csv(text: str, *, team_id: int) -> ImportedPlan:
         forced = cell.get("forced", "").strip() or None
         if forced not in (None, "in", "out"):
             raise _fail(line, "forced", "must be in, out or empty.")
+        if cell.get("in_plan", "").strip().lower() not in ("", "yes", "no"):
+            # Not read (the import solves the plan again), but a changed cell is a change
+            # someone meant: say where such a change goes rather than drop it unread.
+            raise _fail(
+                line, "in_plan", "must be yes, no or empty; to force a row in or out, use forced."
+            )
         try:
             initiative = InitiativeCreate(
                 team_id=team_id,

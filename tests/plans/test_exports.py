@@ -590,3 +590,29 @@ def test_the_markdown_says_which_rows_the_scenario_forced_in(
     markdown = client.get(f"/api/v1/plans/{plan['id']}/export.md").text
     row = next(line for line in markdown.splitlines() if line.startswith(f"| {left_out['title']}"))
     assert row.endswith("| candidate, forced in |"), row
+
+
+def test_an_in_plan_cell_changed_to_something_else_is_refused_not_dropped(
+    app: FastAPI, session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """ "perhaps" was imported without a word: the import solves again and never reads it."""
+    plan = save_live(client, workspace)
+    exported = client.get(f"/api/v1/plans/{plan['id']}/export.csv").text
+    lines = exported.splitlines()
+    header = next(i for i, line in enumerate(lines) if line.startswith('"key"'))
+    cells = lines[header + 1].split(",")
+    column = lines[header].split(",").index('"in_plan"')
+    cells[column] = '"perhaps"'
+    lines[header + 1] = ",".join(cells)
+    target = make_team(session, "Empty")
+    before = read_snapshot(app.state.engine)
+    refused = client.post(
+        f"/api/v1/teams/{target.id}/plan-imports",
+        json={"period_id": workspace.period_id, "csv": "\n".join(lines)},
+    )
+    assert refused.status_code == 422, refused.text
+    assert error_text(refused) == (
+        f"csv: Line {header + 2}, in_plan: must be yes, no or empty; to force a row in or "
+        "out, use forced."
+    )
+    assert read_snapshot(app.state.engine) == before
