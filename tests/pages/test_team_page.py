@@ -10,7 +10,8 @@ from sqlmodel import Session, select
 
 from server.models import AuditEntry, Availability, CapacitySettings, EffortLine, Member
 from server.models import Team as TeamRow
-from server.schemas import TeamEffortIn
+from server.schemas import CapacitySettingsIn, TeamEffortIn
+from server.store.periods import set_capacity_settings
 from server.store.plans import create_scenario
 from tests.factories import make_initiative, make_member, make_period, make_team, set_days_off
 from tests.pages.parsed_page import (
@@ -645,3 +646,26 @@ def test_a_save_on_the_team_page_says_what_was_saved(
     for code in ("days-off-999999", "whatever"):
         page = parse(form_client.get(f"/teams/{team.id}?saved={code}").text)
         assert page.find_all("p", cls="notice") == []
+
+
+def test_a_breakdown_that_does_not_add_up_after_rounding_says_why(
+    form_client: TestClient, session: Session
+) -> None:
+    """39 person-days x 0.7 = 27.3, reserve 15 % = 4.095 (shown 4.1), capacity 23.205 (shown
+    23.21): 27.3 - 4.1 is 23.2 on the page. With 40 person-days every figure adds up."""
+    team, period = make_team(session, "Tugs"), make_period(session)  # 10 working days
+    members = [make_member(session, team, name) for name in ("Ada", "Bo", "Cy", "Di")]
+    set_days_off(session, members[0], period, 1)
+    set_capacity_settings(
+        session,
+        team_id=team.id or 0,
+        period_id=period.id or 0,
+        settings_in=CapacitySettingsIn(focus_factor=0.7, reserve_pct=15),
+    )
+    page = parse(form_client.get(f"/teams/{team.id}?period_id={period.id}").text)
+    assert _breakdown(page)["Capacity for planned work"] == "23.21 days"
+    assert page.find_all("p", id="breakdown-rounding")
+    set_days_off(session, members[0], period, 0)
+    page = parse(form_client.get(f"/teams/{team.id}?period_id={period.id}").text)
+    assert _breakdown(page)["Capacity for planned work"] == "23.8 days"  # 40 x 0.595
+    assert not page.find_all("p", id="breakdown-rounding")
