@@ -48,6 +48,17 @@ def published(live_server: LiveServer) -> Iterator[tuple[int, str]]:
     engine.dispose()
 
 
+def _busiest_team(session: Session) -> tuple[int, int]:
+    """The demo team with the most initiatives in the first period, and that period: other
+    tests add empty teams to the shared server."""
+    period_id = list_periods(session)[0].id or 0
+    team_id = max(
+        (t.id or 0 for t in list_teams(session)),
+        key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
+    )
+    return team_id, period_id
+
+
 def _widths(page: Any) -> dict[str, int]:
     return page.evaluate(
         "() => ({scroll: document.documentElement.scrollWidth,"
@@ -96,13 +107,8 @@ def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
         page.set_default_timeout(WAIT_MS)
         watch(page)
         engine = make_engine(live_server.settings)
-        # Other tests add empty teams to the shared server: take the busiest demo team.
         with Session(engine) as session:
-            period_id = list_periods(session)[0].id or 0
-            team_id = max(
-                (t.id or 0 for t in list_teams(session)),
-                key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
-            )
+            team_id, period_id = _busiest_team(session)
         engine.dispose()
         page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
         assert page.locator(".plan-row").count() > 0
@@ -136,11 +142,7 @@ def test_lists_the_overview_and_scenarios_do_not_widen_a_390_px_screen(
     now scrolls inside its own box, and the page stays the screen's width."""
     engine = make_engine(live_server.settings)
     with Session(engine) as session:
-        period_id = list_periods(session)[0].id or 0
-        team_id = max(
-            (t.id or 0 for t in list_teams(session)),
-            key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
-        )
+        team_id, period_id = _busiest_team(session)
         scenario = store.create_scenario(
             session,
             team_id=team_id,
