@@ -172,6 +172,7 @@ def _render(
     } | dict(extra or {})
     context["row_cache"] = _row_cache(request, view, context["focus"], context["can_edit"])
     show_fragment = is_htmx(request)
+    context["fragment"] = show_fragment
     name = "_plan_body.html" if show_fragment else "plan.html"
     response = templates.TemplateResponse(request, name, context, status_code=status_code)
     response.headers["Vary"] = "HX-Request, Accept"

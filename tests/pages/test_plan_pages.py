@@ -267,7 +267,12 @@ def test_htmx_gets_the_fragment_and_json_the_same_figures(
     setup = build(session)
     fragment = form_client.get(setup.url, headers=HX)
     assert fragment.status_code == 200
-    assert fragment.text.lstrip().startswith('<div id="plan"')
+    # The page's new title first (htmx takes a leading one), then the plan itself; the
+    # heading and crumbs follow out of band, as they lie outside the swapped plan.
+    title, _, rest = fragment.text.lstrip().partition("</title>")
+    assert title == "<title>Plan · Harbour · Sprint 1 · Loadline"
+    assert rest.lstrip().startswith('<div id="plan"')
+    assert '<h1 id="plan-heading" hx-swap-oob="true">Plan for Harbour in Sprint 1</h1>' in rest
     assert "<html" not in fragment.text
     body = form_client.get(setup.url, headers={"Accept": "application/json"}).json()
     root = parse_html(fragment.text)

@@ -1,0 +1,46 @@
+"""The live plan's heading, title and crumbs follow the period the plan shows."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import pytest
+from playwright.sync_api import Browser, expect
+from sqlmodel import Session
+
+from server.db import make_engine
+from server.store.periods import list_periods
+from server.store.teams import list_teams
+from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
+
+pytestmark = pytest.mark.browser
+
+
+def test_choosing_another_period_changes_the_heading_and_title_too(
+    browser: Browser, live_server: LiveServer, watch: Any
+) -> None:
+    """htmx swapped only the plan: the heading still named the period chosen before."""
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        first, second = list_periods(session)[:2]
+        team = list_teams(session)[0]
+        names = (team.name, first.name, second.name, first.id, second.id, team.id)
+    engine.dispose()
+    team_name, first_name, second_name, first_id, second_id, team_id = names
+    context = browser.new_context()
+    try:
+        sign_in(context, live_server)
+        page = context.new_page()
+        page.set_default_timeout(WAIT_MS)
+        watch(page)
+        page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={first_id}")
+        heading = page.locator("h1")
+        expect(heading).to_have_text(f"Plan for {team_name} in {first_name}")
+        page.select_option("#period-pick", str(second_id))
+        expect(heading).to_have_text(f"Plan for {team_name} in {second_name}")
+        expect(page).to_have_title(f"Plan · {team_name} · {second_name} · Loadline")
+        expect(page.locator(".crumbs")).to_contain_text(f"{second_name} overview")
+        assert page.locator("h1").count() == 1
+        assert page.locator("#plan").count() == 1
+    finally:
+        context.close()
