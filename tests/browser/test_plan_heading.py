@@ -42,5 +42,10 @@ def test_choosing_another_period_changes_the_heading_and_title_too(
         expect(page.locator(".crumbs")).to_contain_text(f"{second_name} overview")
         assert page.locator("h1").count() == 1
         assert page.locator("#plan").count() == 1
+        # The live region outside the swapped plan says what the answer shows.
+        announce = page.locator("#plan-announce")
+        expect(announce).to_have_attribute("role", "status")
+        shown = page.locator("#total-value").inner_text()
+        expect(announce).to_contain_text(f"Plan value {shown}, headroom ")
     finally:
         context.close()

@@ -572,6 +572,11 @@ def test_inline_edit_stores_resolves_and_marks_changes(
     after = parse_html(response.text)
     assert decision(after, setup.ids[title]) == "in"
     assert "now in" in row_of(after, setup.ids[title]).text()
+    # The live region outside the plan, filled out of band, says so for a screen reader.
+    announce = after.by_id("plan-announce")
+    assert announce.get("hx-swap-oob") == "innerHTML"
+    assert "Dark mode" in announce.text().split("Now out")[0]
+    assert announce.text().startswith("Now in: ")
     changed = [(t, e, 100.0 if t == title else v) for t, e, v in ROWS]
     best, winners = brute_force(changed, 20.0)
     assert float(after.by_id("total-value").get("value") or 0) == pytest.approx(best)
