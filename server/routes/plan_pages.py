@@ -14,6 +14,7 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
+from urllib.parse import urlencode
 
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
@@ -23,6 +24,7 @@ from starlette.datastructures import FormData, ImmutableMultiDict
 from server.access import allowed
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError, StaleVersionError
+from server.models import AuditEntry, Initiative
 from server.planning.paste import (
     PasteResult,
     commit_paste,
@@ -226,13 +228,18 @@ def _after_change(
     form: FormData,
     anchor: str = "",
     extra: dict[str, Any] | None = None,
+    done: str | None = None,
 ) -> Response:
     """A change is stored: back to the plan page, or the plan re-rendered for htmx and JSON,
-    marking what the change moved in or out of the plan."""
+    marking what the change moved in or out of the plan. `done` names the change for the
+    page to say so after the redirect (see `_done_notice`): without scripts too."""
     params = _multi(form)
     if not is_htmx(request) and not _wants_json(request):
         whatif, _ = parse_whatif(params)
-        return _back(team_id, whatif, anchor)
+        if done is None:
+            return _back(team_id, whatif, anchor)
+        url = plan_url(team_id, whatif)
+        return see_other(url + ("&" if "?" in url else "?") + urlencode({"done": done}) + anchor)
     view = _view(request, session, settings, team_id, params, previous_chosen=_previous(form))
     return _render(request, templates, view, extra=extra)
 
@@ -253,7 +260,28 @@ def plan_page(
             return RedirectResponse(plan_url(team_id, whatif), status_code=307)
     view = _view(request, session, settings, team_id, params)
     status = 422 if view.whatif_errors else 200
-    return _render(request, templates, view, status_code=status)
+    notice = _done_notice(session, (params.get("done") or [""])[0])
+    extra = {"notice": notice, "focus": "notice"} if notice else None
+    return _render(request, templates, view, status_code=status, extra=extra)
+
+
+def _done_notice(session: SessionDep, done: str) -> str | None:
+    """What a change just did, from the code its redirect carried: "Saved “Quay wall”."; read
+    from the stored rows, so a link cannot make the page say anything else."""
+    kind, _, raw_id = done.partition("-")
+    if not raw_id.isdigit() or len(raw_id) > 10:
+        return None
+    number = int(raw_id)
+    if kind in ("saved", "added"):
+        row = session.get(Initiative, number)
+        return f"{kind.capitalize()} “{row.title}”." if row is not None else None
+    if kind == "pasted":
+        return f"Added {counted(number, 'initiative')} from the pasted rows."
+    entry = session.get(AuditEntry, number) if kind in ("undone", "redone") else None
+    if entry is None:
+        return None
+    summary = entry.summary.removeprefix("Undid: ")
+    return f"{'Undid' if kind == 'undone' else 'Redid'}: {summary}."
 
 
 @router.get("/teams/{team_id}/plan/initiatives/{initiative_id}/explain")
@@ -385,6 +413,7 @@ async def edit_row(
             team_id=team_id,
             form=form,
             anchor=f"#row-{initiative_id}",
+            done=f"saved-{initiative_id}",
         )
     note = ""
     shown = None
@@ -454,6 +483,7 @@ async def quick_add(
                 form=form,
                 anchor="#quick-add",
                 extra={"notice": notice, "focus": "quick-title"},
+                done=f"added-{record.row.id}",
             )
     view = _view(request, session, settings, team_id, params)
     first = next((name for name in QUICK_FIELDS if name in errors), "title")
@@ -540,6 +570,7 @@ async def paste_commit(
         team_id=team_id,
         form=form,
         extra={"notice": notice, "focus": "notice"},
+        done=f"pasted-{len(ids)}",
     )
 
 
@@ -611,4 +642,5 @@ async def _undo_or_redo(
         team_id=team_id,
         form=form,
         extra={"notice": outcome.summary, "focus": "notice"},
+        done=f"{'redone' if revert is redo_last_undo else 'undone'}-{outcome.entry.id}",
     )

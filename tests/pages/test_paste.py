@@ -303,8 +303,10 @@ def test_plain_form_add_redirects(form_client: TestClient, session: Session) -> 
     fields = {"text": "Tide gauge,2,10", "period_id": str(setup.period.id)}
     response = post_form(form_client, f"/teams/{setup.team.id}/plan/paste", fields)
     assert response.status_code == 303
-    assert response.headers["location"] == setup.url
+    assert response.headers["location"] == setup.url + "&done=pasted-1"
     assert session.exec(select(Initiative).where(Initiative.title == "Tide gauge")).one()
+    shown = form_client.get(response.headers["location"]).text
+    assert "Added 1 initiative from the pasted rows." in shown
 
 
 def test_a_one_row_preview_offers_to_add_this_initiative(

@@ -597,9 +597,15 @@ def test_inline_edit_without_script_redirects_back(
     fields = row_fields(session, setup.ids["Audit log"], effort="3/6/12")
     response = post_form(form_client, edit_url(setup, "Audit log"), fields)
     assert response.status_code == 303
-    assert response.headers["location"] == setup.url + f"#row-{setup.ids['Audit log']}"
-    line = get_initiative(session, initiative_id=setup.ids["Audit log"]).own_effort
+    audit_id = setup.ids["Audit log"]
+    location = response.headers["location"]
+    assert location == setup.url + f"&done=saved-{audit_id}#row-{audit_id}"
+    line = get_initiative(session, initiative_id=audit_id).own_effort
     assert (line.low, line.likely, line.high) == (3, 6, 12)
+    # Without scripts the page says what was saved too, read from the stored row.
+    assert page(form_client, location).by_id("notice").text() == "Saved “Audit log”."
+    forged = page(form_client, setup.url + "&done=saved-999999")
+    assert not forged.find_all("p", id="notice")
 
 
 @pytest.mark.parametrize(

@@ -202,6 +202,9 @@ def test_undo_button_on_the_plan(form_client: TestClient, session: Session) -> N
     assert page.by_id(f"value-{initiative_id}").get("value") == "30"
     plain = post_form(form_client, url, {"period_id": str(setup.period.id)})
     assert plain.status_code == 303  # undoes the creation of the last initiative made
+    # Without scripts the page it goes back to says what the undo did.
+    notice = parse_html(form_client.get(plain.headers["location"]).text).by_id("notice")
+    assert notice.text() == "Undid: Added “Billing fix”."
     assert _fresh(session, setup.ids["Billing fix"]) is None
 
 
