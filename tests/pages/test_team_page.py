@@ -669,3 +669,16 @@ def test_a_breakdown_that_does_not_add_up_after_rounding_says_why(
     page = parse(form_client.get(f"/teams/{team.id}?period_id={period.id}").text)
     assert _breakdown(page)["Capacity for planned work"] == "23.8 days"  # 40 x 0.595
     assert not page.find_all("p", id="breakdown-rounding")
+
+
+def test_each_members_fields_and_buttons_name_the_member(
+    form_client: TestClient, session: Session, team: Team
+) -> None:
+    """Five boxes were all called "Days off" and twelve buttons "Save" to a screen reader."""
+    page = parse(form_client.get(f"/teams/{team.id}?period_id={team.period}").text)
+    off = page.find("label", **{"for": f"off-{team.ola}"}).text()
+    share = page.find("label", **{"for": f"alloc-{team.ola}"}).text()
+    assert " ".join(off.split()) == "Days off of Ola"
+    assert " ".join(share.split()) == "Share (%) of Ola this period"
+    buttons = {" ".join(b.text().split()) for b in page.find_all("button")}
+    assert {"Save Ola's days off", "Save Ola"} <= buttons
