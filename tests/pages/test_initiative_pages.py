@@ -370,6 +370,10 @@ def test_deleting_through_the_form(
     assert Form(parse(unticked.text), f"/initiatives/{stored.crane}/delete").errors() == [
         "Tick “Yes, delete Crane rail” to delete it: it leaves every plan."
     ]
+    # Without scripts the page opens on the box to tick, which the message describes.
+    box = parse(unticked.text).find("input", name="confirm")
+    assert "autofocus" in box.attrs
+    assert box.attrs.get("aria-describedby") == "delete-error"
     assert _titles(session) == ["Crane rail", "Quay wall"]
 
     response = _post(form_client, f"/initiatives/{stored.crane}/delete", YES)
