@@ -330,8 +330,25 @@
         start: text ? active.selectionStart : null,
         end: text ? active.selectionEnd : null,
       };
+    } else if (active && active !== document.body && inPlan(active)) {
+      // A what-if link or a state button: it is gone after the swap, so the focus goes to
+      // its row (or the plan's figures), not back to the top of the page.
+      var row = active.closest("tr.plan-row");
+      kept = { id: null, row: row ? row.id : null, start: null, end: null };
     }
   });
+
+  // Where the focus goes when the element that had it is gone: the row's "Why" summary, or
+  // its title, or the plan's figures.
+  function keptPlace() {
+    var row = kept && kept.row ? document.getElementById(kept.row) : null;
+    var place = row ? row.querySelector("details.why summary") || row.querySelector("th") : null;
+    place = place || document.getElementById("summary-h");
+    if (place && !place.matches("summary, a, button, input, select, textarea")) {
+      place.setAttribute("tabindex", "-1");
+    }
+    return place;
+  }
 
   function saveOnLeave(el) {
     el.addEventListener(
@@ -365,8 +382,8 @@
   // undone: htmx's own autofocus would come at settle time, so the attribute goes here.
   function restoreFocus() {
     var wanted = document.querySelector("#plan [autofocus]");
-    var el = kept ? document.getElementById(kept.id) : null;
-    var target = wanted || el;
+    var el = kept && kept.id ? document.getElementById(kept.id) : null;
+    var target = wanted || el || (kept ? keptPlace() : null);
     if (wanted) {
       wanted.removeAttribute("autofocus"); // once: a later swap of a part must not jump here
     }

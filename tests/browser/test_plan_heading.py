@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from typing import Any
 
 import pytest
@@ -47,5 +48,38 @@ def test_choosing_another_period_changes_the_heading_and_title_too(
         expect(announce).to_have_attribute("role", "status")
         shown = page.locator("#total-value").inner_text()
         expect(announce).to_contain_text(f"Plan value {shown}, headroom ")
+    finally:
+        context.close()
+
+
+def test_after_a_what_if_link_the_focus_stays_with_its_row(
+    browser: Browser, live_server: LiveServer, watch: Any
+) -> None:
+    """The link is gone once the plan is swapped: the focus fell back to the page's body,
+    and a keyboard user started again from the top."""
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        period_id = list_periods(session)[0].id
+        team_id = list_teams(session)[0].id
+    engine.dispose()
+    context = browser.new_context()
+    try:
+        sign_in(context, live_server)
+        page = context.new_page()
+        page.set_default_timeout(WAIT_MS)
+        watch(page)
+        page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
+        row = page.locator("tr.plan-row.decision-in").first
+        row_id = row.get_attribute("id")
+        row.locator("details.why summary").click()
+        force_out = row.get_by_role("link", name="Force out")
+        force_out.focus()
+        page.keyboard.press("Enter")
+        expect(page.locator(f"#{row_id}")).to_have_class(re.compile(r"decision-out"))
+        focused = page.evaluate(
+            "() => [document.activeElement.tagName,"
+            " document.activeElement.closest('tr.plan-row')?.id]"
+        )
+        assert focused == ["SUMMARY", row_id], focused
     finally:
         context.close()
