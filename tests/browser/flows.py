@@ -7,8 +7,12 @@ import re
 from pathlib import Path
 
 from playwright.sync_api import Page, expect
+from sqlmodel import Session
 
 from server.config import PROJECT_ROOT
+from server.store.initiatives import list_initiatives
+from server.store.periods import list_periods
+from server.store.teams import list_teams
 
 SCREENSHOTS = PROJECT_ROOT / "test-artifacts" / "screenshots"
 _names = itertools.count(1)
@@ -103,3 +107,14 @@ def row_id(page: Page, title: str) -> int:
 
 def decision(page: Page, initiative_id: int) -> str:
     return page.locator(f"#row-{initiative_id} td.decision .mark").inner_text().strip().lower()
+
+
+def busiest_team(session: Session) -> tuple[int, int]:
+    """The demo team with the most initiatives in the first period, and that period: other
+    tests add teams of their own to the shared server."""
+    period_id = list_periods(session)[0].id or 0
+    team_id = max(
+        (t.id or 0 for t in list_teams(session)),
+        key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
+    )
+    return team_id, period_id

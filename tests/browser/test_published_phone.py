@@ -13,11 +13,10 @@ from sqlmodel import Session
 from server.db import make_engine
 from server.planning.scenarios import ScenarioChanges, capture
 from server.store import plans as store
-from server.store.initiatives import list_initiatives
 from server.store.periods import list_periods
 from server.store.teams import list_members, list_teams
 from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
-from tests.browser.flows import screenshot
+from tests.browser.flows import busiest_team, screenshot
 
 pytestmark = pytest.mark.browser
 
@@ -46,17 +45,6 @@ def published(live_server: LiveServer) -> Iterator[tuple[int, str]]:
         token = store.publish_plan(session, plan_id=db_plan.id or 0).token
         yield db_plan.id or 0, token
     engine.dispose()
-
-
-def _busiest_team(session: Session) -> tuple[int, int]:
-    """The demo team with the most initiatives in the first period, and that period: other
-    tests add empty teams to the shared server."""
-    period_id = list_periods(session)[0].id or 0
-    team_id = max(
-        (t.id or 0 for t in list_teams(session)),
-        key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
-    )
-    return team_id, period_id
 
 
 def _widths(page: Any) -> dict[str, int]:
@@ -108,7 +96,7 @@ def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
         watch(page)
         engine = make_engine(live_server.settings)
         with Session(engine) as session:
-            team_id, period_id = _busiest_team(session)
+            team_id, period_id = busiest_team(session)
         engine.dispose()
         page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
         assert page.locator(".plan-row").count() > 0
@@ -142,7 +130,7 @@ def test_lists_the_overview_and_scenarios_do_not_widen_a_390_px_screen(
     now scrolls inside its own box, and the page stays the screen's width."""
     engine = make_engine(live_server.settings)
     with Session(engine) as session:
-        team_id, period_id = _busiest_team(session)
+        team_id, period_id = busiest_team(session)
         scenario = store.create_scenario(
             session,
             team_id=team_id,
