@@ -417,12 +417,19 @@ def curves_chart(
         y_ticks=y_ticks,
         series=series,
         rows=rows,
-        title="Capacity curves of " + ", ".join(f"{s.label}" for s in series)
-        if series
-        else "No capacity curves",
+        title=_chart_title(series),
         description=description,
         missing=missing,
     )
+
+
+def _chart_title(series: Sequence[Any]) -> str:
+    """The chart's name for a screen reader: the plans by name, not only by their letters."""
+    if not series:
+        return "No capacity curves"
+    if len(series) == 1:
+        return f"Capacity curve of “{series[0].name}”"
+    return "Capacity curves of " + ", ".join(f"{s.label} (“{s.name}”)" for s in series)
 
 
 def single_curve_chart(view: PlanView, *, label: str, name: str) -> CurvesChart | None:

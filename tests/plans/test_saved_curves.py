@@ -15,6 +15,7 @@ from sqlmodel import Session
 from server.models import SavedPlan
 from server.planning import curve_chart
 from server.planning.snapshots import view_of
+from tests.pages.html_tree import parse_html
 from tests.pages.test_curve_table import (
     COUPLED,
     RESOLUTION,
@@ -24,6 +25,7 @@ from tests.pages.test_curve_table import (
     open_plan,
 )
 from tests.pages.test_plan_pages import Setup
+from tests.plans.conftest import Workspace, save_live
 
 LAST_DAYS = 25.0  # 20 days of capacity; the curve runs to capacity + 25 %
 NO_CURVE = "No capacity curve is stored for this plan"
@@ -149,3 +151,16 @@ def test_snapshots_saved_without_a_curve_or_its_sample_flag_still_read(
     assert compared.count('<polyline class="cmp-line"') == 1
     older = _old_copy(session, new, "Also saved before", None)
     assert NO_CURVES in form_client.get(f"/compare?plans={old},{older}").text
+
+
+def test_a_plans_chart_is_named_by_the_plan_for_a_screen_reader(
+    workspace: Workspace, client: TestClient
+) -> None:
+    """It read "Capacity curves of Plan" on every saved plan's page."""
+    plan = save_live(client, workspace, "Harbour baseline")
+    other = save_live(client, workspace, "Lean")
+    saved = parse_html(client.get(f"/plans/{plan['id']}").text)
+    assert "Capacity curve of “Harbour baseline”" in [t.text() for t in saved.find_all("title")]
+    compared = parse_html(client.get(f"/compare?plans={plan['id']},{other['id']}").text)
+    titles = [t.text() for t in compared.find_all("title")]
+    assert "Capacity curves of A (“Harbour baseline”), B (“Lean”)" in titles
