@@ -430,13 +430,9 @@ async def edit_row(
     view = _view(request, session, settings, team_id, params, edits={initiative_id: edit})
     status = 409 if current is not None else 422
     first = next((name for name in ROW_FIELDS if name in errors), ROW_FIELDS[0])
-    return _render(
-        request,
-        templates,
-        view,
-        status_code=status,
-        extra={"focus": f"{first}-{initiative_id}"},
-    )
+    # A colleague's change: the message saying what is stored now, then the fields.
+    focus = f"conflict-{initiative_id}" if current is not None else f"{first}-{initiative_id}"
+    return _render(request, templates, view, status_code=status, extra={"focus": focus})
 
 
 # --- quick add ---------------------------------------------------------------------------------

@@ -656,6 +656,9 @@ def test_stale_edit_gets_409_with_both_values(form_client: TestClient, session: 
     assert root.by_id(f"effort-{initiative_id}").get("value") == "7"  # the person's own value
     conflict = root.by_id(f"conflict-{initiative_id}")
     assert "Someone else changed this initiative" in conflict.text()
+    # The focus goes to what is stored now, not to the effort field nobody touched.
+    assert conflict.get("autofocus") is not None
+    assert root.by_id(f"effort-{initiative_id}").get("autofocus") is None
     assert "33" in conflict.text()
     assert "version 2" in conflict.text()
     form = root.by_id(f"edit-{initiative_id}")
