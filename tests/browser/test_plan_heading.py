@@ -3,23 +3,22 @@
 from __future__ import annotations
 
 import re
-from typing import Any
 
 import pytest
-from playwright.sync_api import Browser, expect
+from playwright.sync_api import Page, expect
 from sqlmodel import Session
 
 from server.db import make_engine
 from server.store.periods import list_periods
 from server.store.teams import get_team
-from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
+from tests.browser.conftest import LiveServer
 from tests.browser.flows import busiest_team
 
 pytestmark = pytest.mark.browser
 
 
 def test_choosing_another_period_changes_the_heading_and_title_too(
-    browser: Browser, live_server: LiveServer, watch: Any
+    app_page: Page, live_server: LiveServer
 ) -> None:
     """htmx swapped only the plan: the heading still named the period chosen before."""
     engine = make_engine(live_server.settings)
@@ -29,32 +28,25 @@ def test_choosing_another_period_changes_the_heading_and_title_too(
         names = (team.name, first.name, second.name, first.id, second.id, team.id)
     engine.dispose()
     team_name, first_name, second_name, first_id, second_id, team_id = names
-    context = browser.new_context()
-    try:
-        sign_in(context, live_server)
-        page = context.new_page()
-        page.set_default_timeout(WAIT_MS)
-        watch(page)
-        page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={first_id}")
-        heading = page.locator("h1")
-        expect(heading).to_have_text(f"Plan for {team_name} in {first_name}")
-        page.select_option("#period-pick", str(second_id))
-        expect(heading).to_have_text(f"Plan for {team_name} in {second_name}")
-        expect(page).to_have_title(f"Plan · {team_name} · {second_name} · Loadline")
-        expect(page.locator(".crumbs")).to_contain_text(f"{second_name} overview")
-        assert page.locator("h1").count() == 1
-        assert page.locator("#plan").count() == 1
-        # The live region outside the swapped plan says what the answer shows.
-        announce = page.locator("#plan-announce")
-        expect(announce).to_have_attribute("role", "status")
-        shown = page.locator("#total-value").inner_text()
-        expect(announce).to_contain_text(f"Plan value {shown}, headroom ")
-    finally:
-        context.close()
+    page = app_page
+    page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={first_id}")
+    heading = page.locator("h1")
+    expect(heading).to_have_text(f"Plan for {team_name} in {first_name}")
+    page.select_option("#period-pick", str(second_id))
+    expect(heading).to_have_text(f"Plan for {team_name} in {second_name}")
+    expect(page).to_have_title(f"Plan · {team_name} · {second_name} · Loadline")
+    expect(page.locator(".crumbs")).to_contain_text(f"{second_name} overview")
+    assert page.locator("h1").count() == 1
+    assert page.locator("#plan").count() == 1
+    # The live region outside the swapped plan says what the answer shows.
+    announce = page.locator("#plan-announce")
+    expect(announce).to_have_attribute("role", "status")
+    shown = page.locator("#total-value").inner_text()
+    expect(announce).to_contain_text(f"Plan value {shown}, headroom ")
 
 
 def test_after_a_what_if_link_the_focus_stays_with_its_row(
-    browser: Browser, live_server: LiveServer, watch: Any
+    app_page: Page, live_server: LiveServer
 ) -> None:
     """The link is gone once the plan is swapped: the focus fell back to the page's body,
     and a keyboard user started again from the top."""
@@ -62,24 +54,16 @@ def test_after_a_what_if_link_the_focus_stays_with_its_row(
     with Session(engine) as session:
         team_id, period_id = busiest_team(session)
     engine.dispose()
-    context = browser.new_context()
-    try:
-        sign_in(context, live_server)
-        page = context.new_page()
-        page.set_default_timeout(WAIT_MS)
-        watch(page)
-        page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
-        row = page.locator("tr.plan-row.decision-in").first
-        row_id = row.get_attribute("id")
-        row.locator("details.why summary").click()
-        force_out = row.get_by_role("link", name="Force out")
-        force_out.focus()
-        page.keyboard.press("Enter")
-        expect(page.locator(f"#{row_id}")).to_have_class(re.compile(r"decision-out"))
-        focused = page.evaluate(
-            "() => [document.activeElement.tagName,"
-            " document.activeElement.closest('tr.plan-row')?.id]"
-        )
-        assert focused == ["SUMMARY", row_id], focused
-    finally:
-        context.close()
+    page = app_page
+    page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
+    row = page.locator("tr.plan-row.decision-in").first
+    row_id = row.get_attribute("id")
+    row.locator("details.why summary").click()
+    force_out = row.get_by_role("link", name="Force out")
+    force_out.focus()
+    page.keyboard.press("Enter")
+    expect(page.locator(f"#{row_id}")).to_have_class(re.compile(r"decision-out"))
+    focused = page.evaluate(
+        "() => [document.activeElement.tagName, document.activeElement.closest('tr.plan-row')?.id]"
+    )
+    assert focused == ["SUMMARY", row_id], focused

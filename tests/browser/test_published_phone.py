@@ -7,7 +7,7 @@ from collections.abc import Iterator
 from typing import Any
 
 import pytest
-from playwright.sync_api import Browser
+from playwright.sync_api import Browser, Page
 from sqlmodel import Session
 
 from server.db import make_engine
@@ -45,6 +45,18 @@ def published(live_server: LiveServer) -> Iterator[tuple[int, str]]:
         token = store.publish_plan(session, plan_id=db_plan.id or 0).token
         yield db_plan.id or 0, token
     engine.dispose()
+
+
+@pytest.fixture
+def phone_page(browser: Browser, live_server: LiveServer, watch: Any) -> Iterator[Page]:
+    """A signed-in, watched page on a 390 px screen."""
+    context = browser.new_context(viewport=PHONE)
+    sign_in(context, live_server)
+    page = context.new_page()
+    page.set_default_timeout(WAIT_MS)
+    watch(page)
+    yield page
+    context.close()
 
 
 def _widths(page: Any) -> dict[str, int]:
@@ -86,45 +98,38 @@ def test_published_and_saved_plan_pages_fit_a_390_px_screen(
 
 
 def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
-    browser: Browser, live_server: LiveServer, watch: Any
+    phone_page: Page, live_server: LiveServer
 ) -> None:
-    context = browser.new_context(viewport=PHONE)
-    try:
-        sign_in(context, live_server)
-        page = context.new_page()
-        page.set_default_timeout(WAIT_MS)
-        watch(page)
-        engine = make_engine(live_server.settings)
-        with Session(engine) as session:
-            team_id, period_id = busiest_team(session)
-        engine.dispose()
-        page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
-        assert page.locator(".plan-row").count() > 0
-        widths = _widths(page)
-        screenshot(page, "live-plan-390")
-        assert widths["scroll"] <= widths["view"], widths
-        # Each field of a row is on the screen, labelled by its column's name.
-        row = page.locator(".plan-row").first
-        for field in ("Effort (days)", "Value", "State"):
-            cell = row.locator(f'td[data-label="{field}"]')
-            box = cell.bounding_box()
-            assert box is not None, field
-            assert box["x"] >= 0, (field, box)
-            assert box["x"] + box["width"] <= PHONE["width"] + 0.5, (field, box)
-        quick = page.locator("#quick-add-button").bounding_box()
-        assert quick is not None
-        assert quick["x"] + quick["width"] <= PHONE["width"] + 0.5, quick
+    page = phone_page
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        team_id, period_id = busiest_team(session)
+    engine.dispose()
+    page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
+    assert page.locator(".plan-row").count() > 0
+    widths = _widths(page)
+    screenshot(page, "live-plan-390")
+    assert widths["scroll"] <= widths["view"], widths
+    # Each field of a row is on the screen, labelled by its column's name.
+    row = page.locator(".plan-row").first
+    for field in ("Effort (days)", "Value", "State"):
+        cell = row.locator(f'td[data-label="{field}"]')
+        box = cell.bounding_box()
+        assert box is not None, field
+        assert box["x"] >= 0, (field, box)
+        assert box["x"] + box["width"] <= PHONE["width"] + 0.5, (field, box)
+    quick = page.locator("#quick-add-button").bounding_box()
+    assert quick is not None
+    assert quick["x"] + quick["width"] <= PHONE["width"] + 0.5, quick
 
-        page.goto(f"{live_server.url}/audit")
-        assert page.locator("table.audit tbody tr").count() > 0
-        widths = _widths(page)
-        assert widths["scroll"] <= widths["view"], widths
-    finally:
-        context.close()
+    page.goto(f"{live_server.url}/audit")
+    assert page.locator("table.audit tbody tr").count() > 0
+    widths = _widths(page)
+    assert widths["scroll"] <= widths["view"], widths
 
 
 def test_lists_the_overview_and_scenarios_do_not_widen_a_390_px_screen(
-    browser: Browser, live_server: LiveServer, published: tuple[int, str], watch: Any
+    phone_page: Page, live_server: LiveServer, published: tuple[int, str]
 ) -> None:
     """These scrolled the whole page sideways (720, 923, 621 and 539 px wide): a wide table
     now scrolls inside its own box, and the page stays the screen's width."""
@@ -139,24 +144,17 @@ def test_lists_the_overview_and_scenarios_do_not_widen_a_390_px_screen(
             changes=ScenarioChanges().model_dump(mode="json"),
         )
     engine.dispose()
-    context = browser.new_context(viewport=PHONE)
-    try:
-        sign_in(context, live_server)
-        page = context.new_page()
-        page.set_default_timeout(WAIT_MS)
-        watch(page)
-        for path in (
-            f"/teams/{team_id}/initiatives?period={period_id}",
-            "/plans",
-            f"/periods/{period_id}/overview",
-            f"/teams/{team_id}/scenarios?period_id={period_id}",
-            f"/scenarios/{scenario.id}",
-        ):
-            page.goto(live_server.url + path)
-            assert page.locator("main table").count() > 0, path
-            widths = _widths(page)
-            assert widths["scroll"] <= widths["view"], (path, widths)
-            assert widths["body"] <= widths["view"], (path, widths)
-            screenshot(page, "phone-" + path.strip("/").split("?")[0].replace("/", "-"))
-    finally:
-        context.close()
+    page = phone_page
+    for path in (
+        f"/teams/{team_id}/initiatives?period={period_id}",
+        "/plans",
+        f"/periods/{period_id}/overview",
+        f"/teams/{team_id}/scenarios?period_id={period_id}",
+        f"/scenarios/{scenario.id}",
+    ):
+        page.goto(live_server.url + path)
+        assert page.locator("main table").count() > 0, path
+        widths = _widths(page)
+        assert widths["scroll"] <= widths["view"], (path, widths)
+        assert widths["body"] <= widths["view"], (path, widths)
+        screenshot(page, "phone-" + path.strip("/").split("?")[0].replace("/", "-"))
