@@ -13,7 +13,7 @@ from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
-from server.models import Initiative
+from server.routes.change_notices import change_notice
 from server.routes.forms import (
     SHARE_RULE,
     form_text,
@@ -93,28 +93,13 @@ def initiatives_page(
     saved: str | None = Query(None, max_length=40, description="What was just saved."),
 ) -> Response:
     context = _initiatives_context(session, team_id, period)
-    context["saved_notice"] = _saved_notice(session, saved)
+    context["saved_notice"] = change_notice(session, saved)
     return render(templates, request, "initiatives.html", context)
 
 
 def _list_url(team_id: int, period: str, saved: str) -> str:
     """The initiative list a save returns to; `saved` names what was done, for it to say."""
     return f"/teams/{team_id}/initiatives?{urlencode({'period': period, 'saved': saved})}"
-
-
-def _saved_notice(session: SessionDep, saved: str | None) -> str | None:
-    """ "Saved “Quay wall”." and the like, from the code a save redirected with."""
-    kind, _, raw_id = (saved or "").partition("-")
-    if not raw_id.isdigit() or len(raw_id) > 10:
-        return None
-    initiative_id = int(raw_id)
-    if kind == "deleted":
-        gone = initiative_store.deleted_refusal(session, initiative_id)
-        return f"Deleted “{gone.title}”." if gone is not None else None
-    row = session.get(Initiative, initiative_id)
-    if row is None or kind not in ("added", "saved"):
-        return None
-    return f"{'Added' if kind == 'added' else 'Saved'} “{row.title}”."
 
 
 def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:

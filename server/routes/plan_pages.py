@@ -24,7 +24,6 @@ from starlette.datastructures import FormData, ImmutableMultiDict
 from server.access import allowed
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import LoadlineError, NotFoundError, StaleVersionError
-from server.models import AuditEntry, Initiative
 from server.planning.paste import (
     PasteResult,
     commit_paste,
@@ -43,6 +42,7 @@ from server.planning.plan_view import (
     row_form,
 )
 from server.planning.undo import UndoOutcome, redo_last_undo, undo_last_change
+from server.routes.change_notices import change_notice
 from server.routes.forms import form_text, merge_after_conflict, see_other, shown_as_posted
 from server.routes.fragments import is_htmx
 from server.schemas import INITIATIVE_STATES, InitiativeCreate, InitiativeUpdate
@@ -232,7 +232,7 @@ def _after_change(
 ) -> Response:
     """A change is stored: back to the plan page, or the plan re-rendered for htmx and JSON,
     marking what the change moved in or out of the plan. `done` names the change for the
-    page to say so after the redirect (see `_done_notice`): without scripts too."""
+    page to say so after the redirect (see `change_notices`): without scripts too."""
     params = _multi(form)
     if not is_htmx(request) and not _wants_json(request):
         whatif, _ = parse_whatif(params)
@@ -260,28 +260,9 @@ def plan_page(
             return RedirectResponse(plan_url(team_id, whatif), status_code=307)
     view = _view(request, session, settings, team_id, params)
     status = 422 if view.whatif_errors else 200
-    notice = _done_notice(session, (params.get("done") or [""])[0])
+    notice = change_notice(session, (params.get("done") or [""])[0])
     extra = {"notice": notice, "focus": "notice"} if notice else None
     return _render(request, templates, view, status_code=status, extra=extra)
-
-
-def _done_notice(session: SessionDep, done: str) -> str | None:
-    """What a change just did, from the code its redirect carried: "Saved “Quay wall”."; read
-    from the stored rows, so a link cannot make the page say anything else."""
-    kind, _, raw_id = done.partition("-")
-    if not raw_id.isdigit() or len(raw_id) > 10:
-        return None
-    number = int(raw_id)
-    if kind in ("saved", "added"):
-        row = session.get(Initiative, number)
-        return f"{kind.capitalize()} “{row.title}”." if row is not None else None
-    if kind == "pasted":
-        return f"Added {counted(number, 'initiative')} from the pasted rows."
-    entry = session.get(AuditEntry, number) if kind in ("undone", "redone") else None
-    if entry is None:
-        return None
-    summary = entry.summary.removeprefix("Undid: ")
-    return f"{'Undid' if kind == 'undone' else 'Redid'}: {summary}."
 
 
 @router.get("/teams/{team_id}/plan/initiatives/{initiative_id}/explain")
