@@ -48,7 +48,7 @@ from server.selector import check_marks as selector_check_marks
 from server.selector.set_names import SetNames, name_key
 from server.store import audit
 from server.store._common import and_list, first_named, get_or_404
-from server.wording import counted, quoted
+from server.wording import counted, field_label, quoted
 
 BACKLOG = "backlog"
 
@@ -1088,18 +1088,11 @@ def _changed(values: dict[str, Any], other: dict[str, Any]) -> dict[str, Any]:
     return {k: v for k, v in values.items() if k not in _UNTRACKED and other.get(k) != v}
 
 
-# Fields in the words the pages use, for the summaries the audit trail and undo show.
-_FIELD_WORDS = {
-    "team_id": "team",
-    "period_id": "period",
-    "other_efforts": "other teams' effort",
-    "either_or": "either-or set",
-}
-
-
 def field_in_words(name: str) -> str:
-    """An initiative's field as the pages name it ("period", not "period_id")."""
-    return _FIELD_WORDS.get(name, name.replace("_", " "))
+    """An initiative's field as the pages name it ("period", not "period_id"), for the
+    summaries the audit trail and undo show; they have always said "value", which the
+    Changes list's columns call "value score"."""
+    return "value" if name == "value" else field_label(name)
 
 
 def _change_summary(title: str, before: dict[str, Any], after: dict[str, Any]) -> str:
