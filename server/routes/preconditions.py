@@ -242,7 +242,7 @@ def if_match(
     """The If-Match of a write; the store's refusal of a stale one becomes 412."""
     values = request.headers.getlist(HEADER)
     based_on, weak = parse_if_match(values)
-    any_stored = ", ".join(values).strip(" \t") == "*"
+    any_stored = bool(values) and based_on is None  # a header naming no tag: "*"
     precondition = Precondition(response, based_on, weak, any_stored=any_stored)
     try:
         yield precondition
