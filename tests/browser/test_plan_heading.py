@@ -67,3 +67,30 @@ def test_after_a_what_if_link_the_focus_stays_with_its_row(
         "() => [document.activeElement.tagName, document.activeElement.closest('tr.plan-row')?.id]"
     )
     assert focused == ["SUMMARY", row_id], focused
+
+
+def test_arrowing_through_a_select_solves_the_plan_once(
+    app_page: Page, live_server: LiveServer
+) -> None:
+    """Chromium fires change on each arrow key: every option passed re-solved the plan."""
+    engine = make_engine(live_server.settings)
+    with Session(engine) as session:
+        team_id, period_id = busiest_team(session)
+    engine.dispose()
+    page = app_page
+    page.goto(f"{live_server.url}/teams/{team_id}/plan?period_id={period_id}")
+    solves: list[str] = []
+    page.on(
+        "request",
+        lambda request: solves.append(request.url)
+        if request.method == "GET" and "/plan?" in request.url
+        else None,
+    )
+    page.focus("#confidence-pick")
+    with page.expect_response(lambda response: "confidence=90" in response.url):
+        for _ in range(3):  # likely -> P50 -> P80 -> P90
+            page.keyboard.press("ArrowDown")
+    expect(page.locator("#confidence-pick")).to_have_value("90")
+    page.wait_for_timeout(600)  # a late second request would show by now
+    assert len(solves) == 1, solves
+    assert "confidence=90" in solves[0]
