@@ -82,9 +82,11 @@ def test_arrowing_through_a_select_solves_the_plan_once(
     solves: list[str] = []
     page.on(
         "request",
-        lambda request: solves.append(request.url)
-        if request.method == "GET" and "/plan?" in request.url
-        else None,
+        lambda request: (
+            solves.append(request.url)
+            if request.method == "GET" and "/plan?" in request.url
+            else None
+        ),
     )
     page.focus("#confidence-pick")
     with page.expect_response(lambda response: "confidence=90" in response.url):
