@@ -3,7 +3,10 @@
 For the plain and multiple-choice DPs the forced values come from prefix and suffix rows
 (see prefix_suffix), O(C) per initiative after two passes. For the needs-forest DP and the
 binary program, and for pinned, ruled-out and blocked initiatives everywhere, they come
-from re-solving with the initiative forced in or out (one exact solve each). A pinned
+from re-solving with the initiative forced in or out (one exact solve each). What would move
+with each initiative (what it displaces, what comes or goes with it) is read from the same
+tables for large plans; for page-sized ones (EXACT_MOVES_*) every initiative is re-solved
+forced, so that it is exactly the plan a what-if shows, tie rule included. A pinned
 initiative is re-solved with its pin removed and itself left out; a ruled-out one with the
 mark removed and itself forced in.
 """
@@ -19,6 +22,13 @@ from .prefix_suffix import IMPOSSIBLE, ForcedPlan, forced_plans
 
 # Each re-solve is a full solve; beyond this many the explanations are left out, not slow.
 MAX_RESOLVES = 400
+# What would move with an initiative is read from one re-solve per initiative while that stays
+# cheap (page-sized plans): it is then the very plan a what-if forcing it shows, tie rule
+# included. The tables find a plan of the same value and the same units, but where several
+# plans tie on both they may name another of them. Bounds: initiatives, and their count
+# squared times the capacity units (the re-solves' DP cells at most).
+EXACT_MOVES_MAX = 120
+EXACT_MOVES_CELLS = 20_000_000
 
 
 @dataclass(frozen=True)
@@ -53,10 +63,18 @@ def explain_outcome(
             f"{outcome.method} (at most {MAX_RESOLVES})"
         )
         return None, (note + "; " if note else "") + why
+    count = len(prepared.checked.keys)
+    exact_moves = bool(fast) and (
+        count <= EXACT_MOVES_MAX
+        and count * count * (outcome.free_capacity + 1) <= EXACT_MOVES_CELLS
+    )
     explanations = []
-    for i in range(len(prepared.checked.keys)):
-        forced_in, forced_out = fast[i] if i in fast else _resolve_both(context, i)
+    for i in range(count):
+        use_tables = i in fast and not exact_moves
+        forced_in, forced_out = fast[i] if use_tables else _resolve_both(context, i)
         explanations.append(_explanation(context, i, forced_in, forced_out))
+    if exact_moves:
+        note += "; what moves with each by re-solving it forced"
     if not fast:
         note = (note + "; " if note else "") + "explanations by re-solving each initiative forced"
     elif len(fast) < len(explanations):

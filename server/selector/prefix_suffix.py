@@ -76,14 +76,13 @@ def forced_plans(
     for s in range(count):
         after = suffix.row(s + 1)
         first_query = len(queries)
-        split = _best_split(prefix, after, capacity)
-        queries.append((s, split, capacity - split, -1))
-        values.append(prefix[split] + after[capacity - split])
+        below, above = _best_split(prefix, after, capacity)
+        queries.append((s, below, above, -1))
+        values.append(prefix[below] + after[above])
         for m in range(steps.bounds[s], steps.bounds[s + 1]):
-            room = capacity - steps.units[m]
-            split = _best_split(prefix, after, room)
-            queries.append((s, split, room - split, m))
-            values.append(prefix[split] + after[room - split] + steps.values[m])
+            below, above = _best_split(prefix, after, capacity - steps.units[m])
+            queries.append((s, below, above, m))
+            values.append(prefix[below] + after[above] + steps.values[m])
         options = range(first_query, len(queries))
         for k in options[1:]:
             best_other = max((j for j in options if j != k), key=lambda j: values[j])
@@ -110,9 +109,19 @@ def forced_plans(
     return results, "explanations from prefix and suffix DP rows"
 
 
-def _best_split(prefix: np.ndarray, suffix: np.ndarray, capacity: int) -> int:
-    """The c maximising prefix[c] + suffix[capacity - c] (first one on ties)."""
-    return int(np.argmax(prefix[: capacity + 1] + suffix[capacity::-1]))
+def _best_split(prefix: np.ndarray, suffix: np.ndarray, capacity: int) -> tuple[int, int]:
+    """Capacities (a, b) for the prefix and suffix parts of the best plan within capacity.
+
+    Of the best plans the one with the least units, as the tie rule wants: each split c
+    reaching the best value is read at the least capacities worth prefix[c] and
+    suffix[capacity - c] (the rows do not decrease), and the split needing least in all wins.
+    """
+    total = prefix[: capacity + 1] + suffix[capacity::-1]
+    splits = np.flatnonzero(total == total.max())
+    below = np.searchsorted(prefix, prefix[splits], side="left")
+    above = np.searchsorted(suffix, suffix[capacity - splits], side="left")
+    k = int(np.argmin(below + above))
+    return int(below[k]), int(above[k])
 
 
 class _SuffixRows:

@@ -141,6 +141,12 @@ def test_prefix_suffix_plans_are_real_plans(problem: Problem) -> None:
             assert (i in members) == wanted
             assert satisfies(problem, members)
             assert math.isclose(value_of(problem, [keys[j] for j in members]), plan.value)
+            # Of the best plans forced that way, one with the least units (the tie rule's
+            # first part): the same units as a re-solve with the item forced.
+            forcing = {"force_in": [i]} if wanted else {"force_out": [i]}
+            forced = run(prepared, decide(prepared.checked, **forcing), allow_reduction=False)
+            units = prepared.checked.units
+            assert sum(units[j] for j in members) == sum(units[j] for j in forced.chosen)
 
 
 @settings(max_examples=25, deadline=None, derandomize=True)
@@ -247,3 +253,74 @@ def test_needing_an_alternative_of_its_own_set_is_not_called_a_matter_of_fit() -
     )
     assert set(indices(problem, selection.chosen)) == set(brute_force(problem).chosen)
     assert not {"a", "d"} & set(selection.chosen)
+
+
+def _forced_selection(problem: Problem, i: int, *, inside: bool) -> set[int]:
+    """What the page's Force in / Force out shows: a re-solve with the item pinned or ruled out."""
+    items = list(problem.items)
+    items[i] = replace(items[i], pinned=inside, ruled_out=not inside)
+    selection = solve(replace(problem, items=tuple(items)))
+    return set(indices(problem, selection.chosen))
+
+
+def _marked_alternative(problem: Problem, item: Item) -> bool:
+    """Forcing it would clash with a pinned or ruled-out member of its set (refused)."""
+    return item.either_or is not None and any(
+        other.either_or == item.either_or and (other.pinned or other.ruled_out)
+        for other in problem.items
+    )
+
+
+def _check_forced_plans_are_what_forcing_shows(problem: Problem) -> None:
+    selection = solve(problem, explain=True)
+    if not selection.feasible or selection.explanations is None:
+        return
+    chosen = set(indices(problem, selection.chosen))
+    for i, (item, why) in enumerate(zip(problem.items, selection.explanations, strict=True)):
+        if item.pinned or item.ruled_out or _marked_alternative(problem, item):
+            continue
+        displaced = set(indices(problem, why.displaces))
+        moving = set(indices(problem, why.moves_with))
+        if why.chosen and why.value_if_out is not None:
+            said = (chosen - {i} - moving) | displaced
+            assert said == _forced_selection(problem, i, inside=False), (item, why)
+        if not why.chosen and why.value_if_in is not None:
+            said = (chosen - displaced) | moving | {i}
+            assert said == _forced_selection(problem, i, inside=True), (item, why)
+
+
+@CHECKS
+@given(problems(max_n=10, max_units=12))
+def test_explained_moves_are_what_forcing_shows(problem: Problem) -> None:
+    # Found in use: with k2 out, {k0, k1, k3, k5} and {k0, k4} are worth the same; the
+    # explanation named the second, forcing k2 out showed the first (less effort, tie rule).
+    _check_forced_plans_are_what_forcing_shows(problem)
+
+
+@CHECKS
+@given(problems(max_n=10, max_units=12, either_or=True))
+def test_explained_moves_with_either_or_are_what_forcing_shows(problem: Problem) -> None:
+    _check_forced_plans_are_what_forcing_shows(problem)
+
+
+def _found_in_use() -> Problem:
+    efforts = (4, 0.5, 2, 0.5, 4, 0.5)
+    values = (8, 2, 8, 1, 4, 1)
+    pairs = zip(efforts, values, strict=True)
+    items = tuple(Item(key=f"k{i}", effort=e, value=v) for i, (e, v) in enumerate(pairs))
+    return Problem(items=items, capacity=8)
+
+
+def test_explained_moves_found_in_use() -> None:
+    _check_forced_plans_are_what_forcing_shows(_found_in_use())
+
+
+def test_table_forced_plans_take_the_least_units_of_the_best() -> None:
+    # The case found in use, read from the tables (as for plans too large to re-solve): with
+    # k2 out, {k0, k4} (8 days) and {k0, k1, k3, k5} (5.5 days) are worth 12 each.
+    prepared = prepare(_found_in_use())
+    outcome = run(prepared, decide(prepared.checked), allow_reduction=False)
+    plans, _ = forced_plans(prepared, outcome, 256 * 2**20)
+    _, without_k2 = plans[2]
+    assert without_k2.value == 12
+    assert (set(outcome.chosen) - without_k2.removed) | without_k2.added == {0, 1, 3, 5}
