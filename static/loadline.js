@@ -124,6 +124,7 @@
   var pending = []; // {id, row, asked}: forms to submit once the plan has settled
   var typed = {}; // field id -> value typed but not yet part of the page
   var kept = null; // where the focus was when the swap started
+  var quickCarry = null; // the quick-add row as sent and as typed on since (carryQuick)
   var releasing = null; // the form this script is submitting itself, let through to htmx
 
   function later(id, row, asked) {
@@ -247,6 +248,8 @@
     busy = true;
     if (isRowForm(elt)) {
       sent[elt.id] = { key: rowKey(elt), values: rowValues(elt) };
+    } else if (elt.id === "quick-form") {
+      sent[elt.id] = { key: null, values: rowValues(elt) };
     }
   });
 
@@ -306,11 +309,18 @@
     }
     var sender = event.detail.requestConfig ? event.detail.requestConfig.elt : null;
     var sentForm = sender && sender.tagName === "FORM" ? sender : sender && sender.form;
-    var last = isRowForm(sentForm) ? sent[sentForm.id] : null;
+    var last = sentForm ? sent[sentForm.id] : null;
     typed = {};
+    quickCarry = null;
+    if (last && sentForm.id === "quick-form") {
+      quickCarry = { sent: last.values, now: rowValues(sentForm) };
+    }
     document.querySelectorAll("#plan input, #plan select, #plan textarea").forEach(function (el) {
       if (!isField(el)) {
         return;
+      }
+      if (quickCarry && el.form === sentForm) {
+        return; // see carryQuick
       }
       if (el.form && el.form === sentForm) {
         // The answer shows what was sent; keep only what was typed into the row since.
@@ -329,6 +339,9 @@
         id: active.id,
         start: text ? active.selectionStart : null,
         end: text ? active.selectionEnd : null,
+        // In another form than the one answered: the person has moved on, and the answer's
+        // own focus (a refused field, a clash) must not pull the next keystrokes back there.
+        elsewhere: Boolean(sentForm) && active.form !== sentForm,
       };
     } else if (active && active !== document.body && inPlan(active)) {
       // A what-if link or a state button: it is gone after the swap, so the focus goes to
@@ -378,15 +391,54 @@
     typed = {};
   }
 
+  // The quick-add row was sent with Enter and the person typed on: into its fields, before the
+  // answer came. Added (the answer brings an empty row): what was typed since begins the next
+  // title. Refused (the answer holds the values sent): the fields as the person left them.
+  function extraTyped(before, now) {
+    return now.indexOf(before) === 0 ? now.slice(before.length) : now;
+  }
+
+  function carryQuick() {
+    var carry = quickCarry;
+    quickCarry = null;
+    var title = document.getElementById("quick-title");
+    if (!carry || !title) {
+      return;
+    }
+    var added = title.value === "" && carry.sent["quick-title"] !== "";
+    if (!added) {
+      Object.keys(carry.now).forEach(function (id) {
+        var el = document.getElementById(id);
+        if (el && carry.now[id] !== carry.sent[id]) {
+          el.value = carry.now[id];
+        }
+      });
+      return;
+    }
+    var extra = Object.keys(carry.now)
+      .map(function (id) {
+        return carry.now[id] === carry.sent[id] ? "" : extraTyped(carry.sent[id] || "", carry.now[id]);
+      })
+      .join("");
+    if (extra) {
+      title.value = extra;
+      title.removeAttribute("autofocus"); // its select() would let the next key replace it
+      kept = { id: title.id, start: extra.length, end: extra.length, elsewhere: false };
+    }
+  }
+
   // Right after the swap, in the same task, so nothing the person types or selects next is
   // undone: htmx's own autofocus would come at settle time, so the attribute goes here.
   function restoreFocus() {
     var wanted = document.querySelector("#plan [autofocus]");
     var el = kept && kept.id ? document.getElementById(kept.id) : null;
-    var target = wanted || el || (kept ? keptPlace() : null);
     if (wanted) {
       wanted.removeAttribute("autofocus"); // once: a later swap of a part must not jump here
+      if (el && kept.elsewhere) {
+        wanted = null;
+      }
     }
+    var target = wanted || el || (kept ? keptPlace() : null);
     if (!target || typeof target.focus !== "function") {
       return;
     }
@@ -407,6 +459,7 @@
     if (!isPlan(event.target)) {
       return;
     }
+    carryQuick();
     putBackTyped(); // before the focus: setting a value moves the caret
     restoreFocus();
     kept = null;
