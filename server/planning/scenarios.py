@@ -230,6 +230,29 @@ def check_for_team(
                 )
 
 
+def still_applying(
+    session: Session, *, team_id: int, period_id: int, changes: ScenarioChanges
+) -> ScenarioChanges:
+    """The changes without what live data has removed since they were made."""
+    members = {m.id for m in list_members(session, team_id=team_id)}
+    days_off = {k: v for k, v in changes.days_off.items() if k in members}
+    forced = set(changes.forced_in) | set(changes.forced_out)
+    if forced:
+        records = list_initiatives(
+            session, team_id=team_id, period_id=period_id, involving_team=True
+        )
+        candidates = {r.row.id for r in records}
+    else:
+        candidates = set()
+    return changes.model_copy(
+        update={
+            "days_off": days_off,
+            "forced_in": [i for i in changes.forced_in if i in candidates],
+            "forced_out": [i for i in changes.forced_out if i in candidates],
+        }
+    )
+
+
 @dataclass(frozen=True)
 class ChangedInput:
     field: str
@@ -461,7 +484,14 @@ def capture(
     resolution: float,
     scenario_name: str | None = None,
 ) -> Snapshot:
-    """Check and solve a team's plan (live, or with changes) and freeze it for saving."""
+    """Check and solve a team's plan (live, or with changes) and freeze it for saving.
+
+    A stored scenario (scenario_name given) is taken as it stands today, as its page shows it:
+    days off of members no longer on the team and forcing of initiatives no longer in the
+    plan count for nothing, and are not refused.
+    """
+    if scenario_name is not None:
+        changes = still_applying(session, team_id=team_id, period_id=period_id, changes=changes)
     check_for_team(session, team_id=team_id, period_id=period_id, changes=changes)
     if changes.is_empty:
         live = solve_live(
