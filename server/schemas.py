@@ -204,8 +204,11 @@ class AvailabilityPublic(BaseModel):
 
 
 class CapacitySettingsIn(_Strict):
-    focus_factor: FocusFactor = 0.7
-    reserve_pct: ReservePct = 15.0
+    """Both settings, always: a PUT replaces them, and one left out must not fall back to a
+    default in silence."""
+
+    focus_factor: FocusFactor
+    reserve_pct: ReservePct
 
 
 class MemberCapacityPublic(BaseModel):

@@ -68,6 +68,7 @@ PERIOD_OK_END = PERIOD_OK | {"end_date": "2027-05-14"}
 MEMBER_OK = {"team_id": TEAM, "name": "Eli"}
 AVAILABILITY_OK = {"member_id": MEMBER, "period_id": PERIOD}
 CAPACITY = "/api/v1/teams/$team/periods/$period/capacity"
+SETTINGS = {"focus_factor": 0.7, "reserve_pct": 15}
 INITIATIVE_OK = {"team_id": TEAM, "period_id": PERIOD, "title": "Fenders", "value": 5}
 
 
@@ -240,17 +241,35 @@ CASES: dict[str, Case] = {
         "PATCH", "/api/v1/availability/$availability", '{"days_off": NaN}', 422, "days_off"
     ),
     # --- capacity settings -------------------------------------------------------------
-    "focus factor 0": Case("PUT", CAPACITY, {"focus_factor": 0}, 422, "focus_factor"),
-    "focus factor 1.5": Case("PUT", CAPACITY, {"focus_factor": 1.5}, 422, "focus_factor"),
-    "focus factor -1": Case("PUT", CAPACITY, {"focus_factor": -1}, 422, "focus_factor"),
-    "focus factor NaN": Case("PUT", CAPACITY, '{"focus_factor": NaN}', 422, "focus_factor"),
-    "focus factor text": Case("PUT", CAPACITY, {"focus_factor": "high"}, 422, "focus_factor"),
-    "reserve 100": Case("PUT", CAPACITY, {"reserve_pct": 100}, 422, "reserve_pct"),
-    "reserve -5": Case("PUT", CAPACITY, {"reserve_pct": -5}, 422, "reserve_pct"),
-    "reserve 'nan'": Case("PUT", CAPACITY, {"reserve_pct": "nan"}, 422, "reserve_pct"),
-    "capacity unknown field": Case("PUT", CAPACITY, {"overtime": 2}, 422, "overtime"),
+    "focus factor 0": Case(
+        "PUT", CAPACITY, {"focus_factor": 0, "reserve_pct": 15}, 422, "focus_factor"
+    ),
+    "focus factor 1.5": Case(
+        "PUT", CAPACITY, {"focus_factor": 1.5, "reserve_pct": 15}, 422, "focus_factor"
+    ),
+    "focus factor -1": Case(
+        "PUT", CAPACITY, {"focus_factor": -1, "reserve_pct": 15}, 422, "focus_factor"
+    ),
+    "focus factor NaN": Case(
+        "PUT", CAPACITY, '{"focus_factor": NaN, "reserve_pct": 15}', 422, "focus_factor"
+    ),
+    "focus factor text": Case(
+        "PUT", CAPACITY, {"focus_factor": "high", "reserve_pct": 15}, 422, "focus_factor"
+    ),
+    "reserve 100": Case(
+        "PUT", CAPACITY, {"focus_factor": 0.7, "reserve_pct": 100}, 422, "reserve_pct"
+    ),
+    "reserve -5": Case(
+        "PUT", CAPACITY, {"focus_factor": 0.7, "reserve_pct": -5}, 422, "reserve_pct"
+    ),
+    "reserve 'nan'": Case(
+        "PUT", CAPACITY, {"focus_factor": 0.7, "reserve_pct": "nan"}, 422, "reserve_pct"
+    ),
+    "capacity unknown field": Case(
+        "PUT", CAPACITY, {"focus_factor": 0.7, "reserve_pct": 15, "overtime": 2}, 422, "overtime"
+    ),
     "capacity unknown period": Case(
-        "PUT", "/api/v1/teams/$team/periods/4711/capacity", {}, 404, "period_id"
+        "PUT", "/api/v1/teams/$team/periods/4711/capacity", SETTINGS, 404, "period_id"
     ),
     # --- initiatives -------------------------------------------------------------------
     "effort NaN": Case(

@@ -60,6 +60,22 @@ def test_setting_focus_and_reserve(client: TestClient, workspace: Workspace, kar
     assert again["capacity_days"] == pytest.approx(10.4)
 
 
+@pytest.mark.parametrize(
+    ("body", "missing"),
+    [({"focus_factor": 0.75}, ["reserve_pct"]), ({}, ["focus_factor", "reserve_pct"])],
+)
+def test_a_setting_left_out_is_refused_not_reset(
+    client: TestClient, workspace: Workspace, body: dict[str, float], missing: list[str]
+) -> None:
+    """Found in use: a PUT of the focus factor alone put the reserve back to 15 %."""
+    client.put(_url(workspace), json={"focus_factor": 0.75, "reserve_pct": 10})
+    before = client.get(_url(workspace)).json()
+    response = client.put(_url(workspace), json=body)
+    assert response.status_code == 422, response.text
+    assert sorted(error_fields(response)) == missing
+    assert client.get(_url(workspace)).json() == before
+
+
 def test_settings_belong_to_one_period(client: TestClient, workspace: Workspace) -> None:
     other = client.post(
         "/api/v1/periods",
