@@ -257,6 +257,11 @@ def test_explanations_agree_with_forced_resolve(form_client: TestClient, session
                 changed = [(t, e, threshold + delta if t == title else v) for t, e, v in ROWS]
                 _, winners = brute_force(changed, 20.0)
                 assert all((title in w) == expect_in for w in winners), (title, delta)
+            # Said as the strict bound it is: at exactly the threshold the plans tie.
+            said = "Stays in while" if in_plan else "Comes in once"
+            assert f"{said} its value score is above" in row.text()
+            if threshold > 0:
+                assert f"exactly {threshold:g} a plan" in row.text()
         checked += 1
     assert checked == len(ROWS)
 
