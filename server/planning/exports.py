@@ -107,14 +107,21 @@ def _stamp(db_plan: SavedPlan) -> str:
     return at.replace(microsecond=0).isoformat(sep=" ")
 
 
+def _is_live(db_plan: SavedPlan) -> bool:
+    """A plan solved for the download and saved nowhere (it has no id): its time is when it
+    was exported, not a save."""
+    return db_plan.id is None
+
+
 def _plan_preamble(db_plan: SavedPlan, view: PlanView) -> list[tuple[str, object]]:
     r = view.result
+    when = "exported" if _is_live(db_plan) else "saved"
     return [
         ("plan", db_plan.name),
         ("team", view.team_names),
         ("period", view.inputs.period.name),
-        ("saved_at", _stamp(db_plan) + " UTC"),
-        ("saved_by", db_plan.created_by),
+        (f"{when}_at", _stamp(db_plan) + " UTC"),
+        (f"{when}_by", db_plan.created_by),
         ("scenario", r.scenario_name or ""),
         ("capacity_days", r.capacity),
         ("resolution", view.inputs.options.resolution),
@@ -184,8 +191,9 @@ def plan_json(db_plan: SavedPlan) -> dict[str, Any]:
             "name": db_plan.name,
             "team_ids": db_plan.team_ids,
             "period_id": db_plan.period_id,
-            "created_at": db_plan.created_at.isoformat(),
-            "created_by": db_plan.created_by,
+            # A live plan's download (no id) was made then, not saved.
+            ("exported_at" if _is_live(db_plan) else "created_at"): db_plan.created_at.isoformat(),
+            ("exported_by" if _is_live(db_plan) else "created_by"): db_plan.created_by,
             "scenario_changes": db_plan.scenario_changes,
             "inputs_digest": db_plan.inputs_digest,
         },
@@ -234,8 +242,9 @@ def plan_markdown(db_plan: SavedPlan) -> str:
     lines = [
         f"# {md(db_plan.name)}",
         "",
-        f"{md(view.team_names)} · {md(p.name)} ({p.start_date} to {p.end_date}) · saved "
-        f"{_stamp(db_plan)} UTC" + (f" by {md(db_plan.created_by)}" if db_plan.created_by else ""),
+        f"{md(view.team_names)} · {md(p.name)} ({p.start_date} to {p.end_date}) · "
+        f"{'exported, not saved,' if _is_live(db_plan) else 'saved'} {_stamp(db_plan)} UTC"
+        + (f" by {md(db_plan.created_by)}" if db_plan.created_by else ""),
         "",
         f"- Value: **{_d(r.value)}**",
         f"- Effort: {_d(r.effort)} of {_d(r.capacity)} days (headroom {in_days(r.headroom)}, "

@@ -429,6 +429,16 @@ def test_the_live_plan_downloads_as_a_saved_one_would_without_saving(
     assert document["plan"]["name"].endswith("(live, not saved)")
     summary = dict(row[:2] for row in csv.reader(io.StringIO(live["csv"].text)) if len(row) >= 2)
     assert summary["plan"].endswith("(live, not saved)")
+    # Found in use: the live downloads said "saved ... by" a plan nobody saved.
+    assert "saved_at" not in summary
+    assert "saved_by" not in summary
+    assert summary["exported_at"].endswith(" UTC")
+    assert " · exported, not saved, " in live["md"].text
+    assert " · saved " not in live["md"].text
+    assert "exported_at" in document["plan"]
+    assert "created_at" not in document["plan"]
+    saved_csv = client.get(f"/plans/{saved['id']}/export.csv").text
+    assert "saved_at" in dict(row[:2] for row in csv.reader(io.StringIO(saved_csv)) if row)
     assert summary["value"] == str(_plain(saved["result"]["value"]))
     assert live["md"].text.startswith("# Harbour · Sprint")
     assert 'filename="live-plan-Harbour-' in live["csv"].headers["content-disposition"]
