@@ -40,6 +40,12 @@ def csrf_token_for(secret: str, browser_id: str) -> str:
     return hmac.new(secret.encode(), f"csrf:{browser_id}".encode(), hashlib.sha256).hexdigest()
 
 
+def _is_published(path: str) -> bool:
+    """A published plan's page: read by people without an account, and holding no form, so
+    no browser cookie is set for it (nothing of Loadline stays in a stakeholder's browser)."""
+    return path.startswith("/p/")
+
+
 def _is_api(path: str) -> bool:
     # The JSON API only accepts application/json bodies, which a cross-site page cannot send
     # without a CORS preflight (and no CORS headers are ever sent), so it needs no form token.
@@ -114,7 +120,7 @@ class RequestGuard:
                 headers.setdefault("X-Frame-Options", "DENY")
                 headers.setdefault("Referrer-Policy", "same-origin")
                 headers.setdefault("Cross-Origin-Opener-Policy", "same-origin")
-                if new_browser_id is not None:
+                if new_browser_id is not None and not _is_published(path):
                     cookie = (
                         f"{BROWSER_COOKIE}={new_browser_id}; Path=/; HttpOnly; SameSite=Lax; "
                         "Max-Age=31536000"

@@ -73,6 +73,9 @@ def test_published_page_is_frozen_read_only_and_leads_nowhere(
     other_browser = TestClient(form_client.app)
     again = other_browser.get(link["url"])
     assert again.content == response.content
+    # Nothing is kept in a stakeholder's browser: the page has no form that needs a cookie.
+    assert "set-cookie" not in again.headers
+    assert not other_browser.cookies
     assert again.headers["etag"] == response.headers["etag"]
     not_modified = other_browser.get(link["url"], headers={"If-None-Match": again.headers["etag"]})
     assert not_modified.status_code == 304
