@@ -514,6 +514,17 @@ def test_a_plan_of_single_estimates_without_a_spread_points_to_the_setting(
     assert read_only.find("a") is None  # a viewer cannot change the spread
 
 
+def test_an_empty_plan_says_there_is_nothing_at_risk(
+    form_client: TestClient, session: Session
+) -> None:
+    """Found in use: with nothing chosen the page said all chosen efforts were single
+    estimates without a spread, and asked for one (the team's spread was set)."""
+    setup = build(session, rows=())
+    note = page(form_client, setup.url).by_id("no-spread")
+    assert note is not None
+    assert note.text() == "Nothing is chosen yet, so there is nothing whose fit could be at risk."
+
+
 def test_custom_confidence_and_bad_levels(form_client: TestClient, session: Session) -> None:
     setup = build(session)
     ok = form_client.get(setup.url + "&confidence=custom&confidence_pct=85")
