@@ -477,8 +477,35 @@
 
   // --- Editing a row -------------------------------------------------------------------------
   // A changed field saves its row (the form the field belongs to); Enter saves at once.
+  // A select fires change on each arrow key: its row is saved once the choice rests for a
+  // moment, or when the person leaves it, so passing "pinned" on the way stores nothing.
+  var SELECT_REST_MS = 500;
+  var resting = null; // {id, timer} of the row select whose save waits
+
+  function saveResting() {
+    var wait = resting;
+    resting = null;
+    if (wait) {
+      clearTimeout(wait.timer);
+      saveRow(rowForm(document.getElementById(wait.id)), false);
+    }
+  }
+
   document.addEventListener("change", function (event) {
-    saveRow(rowForm(event.target), false);
+    var el = event.target;
+    if (el && el.tagName === "SELECT" && el.id && rowForm(el)) {
+      if (resting && resting.id !== el.id) {
+        saveResting();
+      }
+      if (resting) {
+        clearTimeout(resting.timer);
+      } else {
+        el.addEventListener("blur", saveResting, { once: true });
+      }
+      resting = { id: el.id, timer: setTimeout(saveResting, SELECT_REST_MS) };
+      return;
+    }
+    saveRow(rowForm(el), false);
   });
 
   // --- Explanations of large plans ----------------------------------------------------------

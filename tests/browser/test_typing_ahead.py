@@ -14,6 +14,7 @@ from playwright.sync_api import Page, Route, expect
 
 from tests.browser.conftest import LiveServer
 from tests.browser.flows import quick_add, row_id, set_up_team
+from tests.browser.test_meeting import RowSaves
 
 pytestmark = pytest.mark.browser
 
@@ -99,3 +100,40 @@ def test_a_refused_quick_row_keeps_what_was_typed_after_enter(
     expect(page.locator("#quick-title")).to_have_value("Pier lights")
     expect(page.locator("#quick-value")).to_have_value("145")
     expect(page.locator("#quick-effort")).to_have_value("2d")
+
+
+def test_arrowing_through_a_rows_state_saves_only_where_it_rests(
+    app_page: Page, live_server: LiveServer
+) -> None:
+    """Found in use: from "candidate" to "ruled out" by arrow keys stored "pinned" on the way,
+    with a re-plan and an undo entry for each step."""
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    gangway = row_id(page, "Gangway repair")
+    saves = RowSaves(page)
+    state = page.locator(f"#state-{gangway}")
+    state.focus()
+    with page.expect_response(lambda r: r.url.endswith(f"/plan/initiatives/{gangway}")):
+        page.keyboard.press("ArrowDown")  # pinned
+        page.keyboard.press("ArrowDown")  # ruled out
+    expect(page.locator(f"#state-{gangway}")).to_have_value("ruled_out")
+    expect(page.locator(f"#state-{gangway}")).to_be_focused()
+    page.wait_for_timeout(700)  # a late second save would show by now
+    assert saves.values("state") == [(gangway, "ruled_out")]
+    page.reload()
+    expect(page.locator(f"#state-{gangway}")).to_have_value("ruled_out")
+
+
+def test_leaving_a_rows_state_saves_it_at_once(app_page: Page, live_server: LiveServer) -> None:
+    page = app_page
+    set_up_team(page, live_server.url)
+    quick_add(page, "Gangway repair", "5", "30")
+    gangway = row_id(page, "Gangway repair")
+    saves = RowSaves(page)
+    page.locator(f"#state-{gangway}").focus()
+    with page.expect_response(lambda r: r.url.endswith(f"/plan/initiatives/{gangway}")):
+        page.keyboard.press("ArrowDown")  # pinned
+        page.keyboard.press("Tab")
+    expect(page.locator(f"#state-{gangway}")).to_have_value("pinned")
+    assert saves.values("state") == [(gangway, "pinned")]
