@@ -155,6 +155,18 @@ def _number_text(cell: str, decimal_comma: bool) -> str:
     return cell
 
 
+def decimal_point(text: str) -> str:
+    """A number typed into a field with a decimal comma ("3,5"), as the paste reads it: one
+    field holds one number, so the comma can only be decimal, unless it groups thousands
+    ("2,500" is left as typed, and refused)."""
+    return _number_text(text, not _THOUSANDS_LIKE.match(text))
+
+
+def typed_effort_fields(text: str) -> dict[str, Any]:
+    """effort_fields for an effort typed into a form field, decimal commas read as points."""
+    return {key: decimal_point(part) for key, part in effort_fields(text).items()}
+
+
 def _cell_counts(text: str, delimiter: str) -> list[int]:
     """How many cells each non-blank line has when split by `delimiter` (quotes honoured)."""
     counts = []

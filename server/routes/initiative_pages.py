@@ -13,6 +13,7 @@ from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
+from server.planning.paste import decimal_point
 from server.routes.change_notices import change_notice
 from server.routes.forms import (
     SHARE_RULE,
@@ -105,11 +106,12 @@ def _list_url(team_id: int, period: str, saved: str) -> str:
 def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
     """Form fields -> the API's initiative input (blank optional fields become null)."""
     period = form_text(form, "period_id")
-    effort: dict[str, Any] = {"likely": form_text(form, "effort.likely")}
+    effort: dict[str, Any] = {"likely": decimal_point(form_text(form, "effort.likely"))}
     if form_text(form, "effort.low") or form_text(form, "effort.high"):
+        low, high = optional_text(form, "effort.low"), optional_text(form, "effort.high")
         effort |= {
-            "low": optional_text(form, "effort.low"),
-            "high": optional_text(form, "effort.high"),
+            "low": None if low is None else decimal_point(low),
+            "high": None if high is None else decimal_point(high),
         }
     confidence = optional_text(form, "confidence")
     return {
@@ -118,7 +120,7 @@ def initiative_values(form: FormData, team_id: int) -> dict[str, Any]:
         "title": form_text(form, "title"),
         "notes": form_text(form, "notes", strip=False),
         "effort": effort,
-        "value": form_text(form, "value"),
+        "value": decimal_point(form_text(form, "value")),
         "confidence": percent_to_share(confidence),
         "state": form_text(form, "state") or "candidate",
         "either_or": optional_text(form, "either_or"),

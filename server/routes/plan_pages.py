@@ -27,9 +27,10 @@ from server.errors import LoadlineError, NotFoundError, StaleVersionError
 from server.planning.paste import (
     PasteResult,
     commit_paste,
-    effort_fields,
+    decimal_point,
     effort_text_message,
     parse_paste,
+    typed_effort_fields,
 )
 from server.planning.plan_view import (
     PlanView,
@@ -317,8 +318,8 @@ def _update_values(values: Mapping[str, str]) -> dict[str, Any]:
     # Every field is sent: a cleared field is refused, never read as "leave unchanged".
     return {
         "version": values["version"],
-        "effort": effort_fields(values["effort"]) or {"likely": ""},
-        "value": values["value"],
+        "effort": typed_effort_fields(values["effort"]) or {"likely": ""},
+        "value": decimal_point(values["value"]),
         "state": values["state"] or "candidate",
     }
 
@@ -438,8 +439,8 @@ async def quick_add(
                 "team_id": team_id,
                 "period_id": whatif.period_id,
                 "title": values["title"],
-                "effort": effort_fields(values["effort"]),
-                "value": values["value"],
+                "effort": typed_effort_fields(values["effort"]),
+                "value": decimal_point(values["value"]),
             }
         ),
     )

@@ -131,6 +131,23 @@ def test_adding_an_initiative_through_the_form(
     assert "Fender replacement" in form_client.get(response.headers["location"]).text
 
 
+def test_the_form_reads_a_decimal_comma_as_the_plan_page_does(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    data = ADD | {
+        "period_id": str(stored.period),
+        "effort.low": "2,5",
+        "effort.likely": "4,5",
+        "effort.high": "9",
+        "value": "12,5",
+    }
+    response = _post(form_client, f"/teams/{stored.team}/initiatives", data)
+    assert response.status_code == 303, response.text
+    row = session.exec(select(Initiative).where(Initiative.title == "Fender replacement")).one()
+    effort = _record(session, row.id or 0).own_effort
+    assert (effort.low, effort.likely, effort.high, row.value) == (2.5, 4.5, 9, 12.5)
+
+
 def test_adding_to_the_backlog_with_a_single_estimate(
     form_client: TestClient, session: Session, stored: Stored
 ) -> None:

@@ -755,6 +755,54 @@ def test_quick_add_saves_and_opens_the_next_row(form_client: TestClient, session
     assert plain.headers["location"].endswith("#quick-add")
 
 
+def test_a_decimal_comma_is_read_in_typed_fields_as_in_the_paste(
+    form_client: TestClient, session: Session
+) -> None:
+    """Found in use: the paste read "2,5" as 2.5, the quick-add row and a row's fields refused
+    "3,5". A comma grouping thousands ("2,500") is still refused, never guessed."""
+    setup = build(session)
+    url = f"/teams/{setup.team.id}/plan/initiatives"
+    period = str(setup.period.id)
+    added = post_form(
+        form_client,
+        url,
+        {"title": "Tide gauge", "effort": "3,5", "value": "7,5", "period_id": period},
+        **HX,
+    )
+    assert added.status_code == 200, added.text
+    row = session.exec(select(Initiative).where(Initiative.title == "Tide gauge")).one()
+    assert row.value == 7.5
+    assert get_initiative(session, initiative_id=row.id or 0).own_effort.likely == 3.5
+    three = post_form(
+        form_client,
+        url,
+        {"title": "Buoy", "effort": "1,5/2/4,5", "value": "5", "period_id": period},
+        **HX,
+    )
+    assert three.status_code == 200, three.text
+    buoy = session.exec(select(Initiative.id).where(Initiative.title == "Buoy")).one() or 0
+    line = get_initiative(session, initiative_id=buoy).own_effort
+    assert (line.low, line.likely, line.high) == (1.5, 2.0, 4.5)
+    edited = post_form(
+        form_client,
+        edit_url(setup, "Dark mode"),
+        row_fields(session, setup.ids["Dark mode"], effort="2,5"),
+        **HX,
+    )
+    assert edited.status_code == 200, edited.text
+    dark = get_initiative(session, initiative_id=setup.ids["Dark mode"])
+    assert dark.own_effort.likely == 2.5
+    before = _count(session)
+    grouped = post_form(
+        form_client,
+        url,
+        {"title": "Pier", "effort": "2,500", "value": "5", "period_id": period},
+        **HX,
+    )
+    assert grouped.status_code == 422
+    assert _count(session) == before
+
+
 def test_quick_add_refusal_keeps_what_was_typed(form_client: TestClient, session: Session) -> None:
     setup = build(session)
     before = _count(session)
