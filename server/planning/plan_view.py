@@ -34,6 +34,7 @@ from server.selector.risk import FitEstimate, pert_mean, pert_sd
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period, list_periods
 from server.store.teams import get_team
+from server.wording import days
 
 CONFIDENCE_PRESETS = (50.0, 80.0, 90.0)
 # Up to this many initiatives every row carries its explanation in the page (readable without
@@ -400,14 +401,15 @@ class CapacityBar:
 
     @property
     def description(self) -> str:
+        # The legend's figures (wording.days), so that a screen reader hears the same ones.
         parts = [
-            f"committed (pinned) work {self.committed:.1f} days",
-            f"other chosen work {self.chosen:.1f} days",
+            f"committed (pinned) work {days(self.committed)} days",
+            f"other chosen work {days(self.chosen)} days",
         ]
         if self.over > 0:
-            parts.append(f"over capacity by {self.over:.1f} days")
+            parts.append(f"over capacity by {days(self.over)} days")
         else:
-            parts.append(f"headroom {self.headroom:.1f} days")
+            parts.append(f"headroom {days(self.headroom)} days")
         return "Capacity use: " + ", ".join(parts) + "."
 
 
@@ -423,23 +425,26 @@ def capacity_bar(plan: LivePlan) -> CapacityBar:
     )
     chosen = max(0.0, selection.effort - committed)
     capacity = selection.capacity
-    headroom = max(0.0, capacity - selection.effort)
+    # Pinned work that does not fit leaves no headroom, even where it fits unrounded.
+    headroom = max(0.0, capacity - selection.effort) if selection.feasible else 0.0
     over = max(0.0, selection.effort - capacity)
     if not selection.feasible and over <= 1e-9 and selection.excess_days is not None:
         # Over only once efforts are rounded up to the resolution: show that overrun. Otherwise
         # the estimated one, which the headroom beside it says too.
         over = selection.excess_days
-    scale = BAR_UNITS / max(capacity, selection.effort, 1e-9)
+    # Wide enough for the capacity and its overrun: an overrun drawn from the capacity line
+    # must end inside the bar.
+    scale = BAR_UNITS / max(capacity + over, selection.effort, 1e-9)
     segments = []
     x = 0.0
-    for kind, label, days in (
+    for kind, label, length in (
         ("committed", "Committed (pinned)", committed),
         ("chosen", "Chosen", chosen),
         ("headroom", "Headroom", headroom),
     ):
-        if days > 1e-9:
-            width = days * scale
-            segments.append(BarSegment(kind, label, days, round(x, 2), round(width, 2)))
+        if length > 1e-9:
+            width = length * scale
+            segments.append(BarSegment(kind, label, length, round(x, 2), round(width, 2)))
             x += width
     if over > 1e-9:
         segments.append(

@@ -369,6 +369,14 @@ def test_an_overrun_only_from_rounding_is_still_shown_on_the_bar(
     assert "finer resolution" in root.find(cls="overrun").text()  # type: ignore[union-attr]
     bar = root.find(cls="capacity-bar").text()  # type: ignore[union-attr]
     assert "Over capacity by 0.5 days" in " ".join(bar.split())
+    # Found in use: the overrun was drawn from x = 1000 on, outside the bar, beside a headroom
+    # segment and a headroom figure of 0.1 days, while the pinned work did not fit.
+    rects = {r.get("class"): r for r in root.find(cls="capacity-bar").find_all("rect")}  # type: ignore[union-attr]
+    over = rects["seg seg-over"]
+    assert float(over.get("x") or 0) + float(over.get("width") or 0) <= 1000 + 1e-6
+    assert "seg seg-headroom" not in rects
+    assert root.by_id("total-headroom").get("value") == "0"
+    assert "3 committed (pinned, or needed by pinned work), 0 not planned" in root.text()
 
 
 def test_rounding_and_needs_warnings(form_client: TestClient, session: Session) -> None:
