@@ -300,7 +300,9 @@ def _row_view(
     titles: Mapping[str, str],
     edit: RowEdit | None,
     previous: frozenset[int] | None,
+    forced: str | None = None,
 ) -> RowView:
+    """forced: what the what-if forces, for a row without a plan_row to say it."""
     rid = record.row.id or 0
     decision = None
     change = None
@@ -336,7 +338,7 @@ def _row_view(
         planned_effort=planned,
         pert=pert,
         decision=decision,
-        forced=plan_row.forced if plan_row else None,
+        forced=plan_row.forced if plan_row else forced,
         blocked_by=plan_row.blocked_by if plan_row else (),
         needs=tuple(titles[str(n)] for n in record.needs if str(n) in titles),
         either_or=record.row.either_or,
@@ -588,6 +590,13 @@ def build_plan_view(
     )
     titles = {str(r.row.id): r.row.title for r in records}
     plan_rows = {row.id: row for row in plan.rows} if plan is not None else {}
+    # A what-if the selector refused (both members of an either-or set forced in) leaves no
+    # plan: the rows still say what the what-if forces, so each forcing can be cleared alone.
+    unsolved_forcing = (
+        dict.fromkeys(whatif.forced_in, "in") | dict.fromkeys(whatif.forced_out, "out")
+        if plan is None
+        else {}
+    )
     rows = tuple(
         _row_view(
             record,
@@ -597,6 +606,7 @@ def build_plan_view(
             titles=titles,
             edit=edits.get(record.row.id or 0),
             previous=previous_chosen,
+            forced=unsolved_forcing.get(record.row.id or 0),
         )
         for record in records
     )

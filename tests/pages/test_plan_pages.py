@@ -430,9 +430,20 @@ def test_forcing_two_alternatives_in_is_explained(
     url = f"/teams/{team.id}/plan?period_id={period.id}&force_in={a}&force_in={b}"
     response = form_client.get(url)
     assert response.status_code == 200
-    text = parse_html(response.text).text()
+    root = parse_html(response.text)
+    text = root.text()
     assert "This what-if cannot be planned" in text
     assert "Clear the what-if" in text
+    # Found in use: the rows lost their forced tags and Clear links, so the only way out was
+    # clearing every forcing at once. Each row still says it, and clears only itself.
+    for mine, other in ((a, b), (b, a)):
+        row = row_of(root, mine or 0)
+        assert "forced in (what-if)" in row.text()
+        clears = [x.get("href") or "" for x in row.find_all("a") if x.text().startswith("Clear")]
+        assert len(clears) == 1
+        assert f"force_in={other}" in clears[0]
+        assert f"force_in={mine}&" not in clears[0] + "&"
+        assert not [x for x in row.find_all("a") if x.text().strip() == "Force in"]
 
 
 def test_forcing_in_work_that_needs_forced_out_work_says_forced(
