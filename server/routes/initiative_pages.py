@@ -13,7 +13,7 @@ from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError
-from server.planning.paste import decimal_point
+from server.planning.paste import decimal_point, effort_text_message, typed_effort_fields
 from server.routes.change_notices import change_notice
 from server.routes.forms import (
     SHARE_RULE,
@@ -183,6 +183,11 @@ def _edit_context(session: SessionDep, initiative_id: int) -> dict[str, Any]:
             for tid, line in sorted(record.efforts.items())
             if tid != row.team_id
         ],
+        # Teams that can take a share of the work: every team but the owner.
+        "effort_teams": sorted(
+            ((tid, name) for tid, name in names.items() if tid != row.team_id),
+            key=lambda team: team[1].casefold(),
+        ),
         "team": team_store.get_team(session, team_id=row.team_id),
         "periods": period_store.list_periods(session),
         "states": INITIATIVE_STATES,
@@ -243,13 +248,19 @@ async def edit_initiative(
     values.pop("team_id")
     values["version"] = form_text(form, "version")
     dropped = {v for v in form.getlist("drop_effort") if isinstance(v, str)}
-    if dropped:  # the other lines are sent back unchanged, low and high included
+    added_team = form_text(form, "add_effort_team")
+    added_effort = form_text(form, "add_effort")
+    if dropped or added_team:  # the other lines are sent back unchanged, low and high included
         values["other_efforts"] = [
             {"team_id": line.team_id, "likely": line.likely, "low": line.low, "high": line.high}
             for _, line in context["other_efforts"]
-            if str(line.team_id) not in dropped
+            if str(line.team_id) not in dropped and str(line.team_id) != added_team
         ]
+        if added_team:
+            added = {"likely": ""} | typed_effort_fields(added_effort)
+            values["other_efforts"].append({"team_id": added_team} | added)
     update_in, errors = _in_percent(parse_form(InitiativeUpdate, values))
+    errors = _added_effort_errors(errors, added_team, added_effort)
     typed = form_echo(form)
     # Refused as typed: the form stays based on what it showed (its version is echoed too).
     shown = shown_as_posted(form, context["shown"])
@@ -259,7 +270,7 @@ async def edit_initiative(
                 session, initiative_id=initiative_id, initiative_in=update_in
             )
         except LoadlineError as exc:
-            errors = {exc.field or "form": exc.message}
+            errors = _added_effort_errors({exc.field or "form": exc.message}, "", "")
             current = getattr(exc, "current", None)
             context = _edit_context(session, initiative_id) | {"current": current}
             if current is not None:  # a colleague's change: merge it in, based on it now
@@ -274,6 +285,18 @@ async def edit_initiative(
     context |= {"form": typed, "errors": errors, "shown": shown}
     status = 409 if context.get("current") else 422
     return render(templates, request, "initiative_edit.html", context, status_code=status)
+
+
+def _added_effort_errors(errors: dict[str, str], team: str, effort: str) -> dict[str, str]:
+    """Refusals of the other teams' lines, said beside the one field that adds a line (the
+    lines kept are the stored ones, so only the added one can be refused)."""
+    out = {k: v for k, v in errors.items() if not k.startswith("other_efforts")}
+    refused = [v for k, v in errors.items() if k.startswith("other_efforts")]
+    if team and not effort.strip():
+        out["add_effort"] = "Enter the team's effort in days, or choose no team."
+    elif refused:
+        out["add_effort"] = effort_text_message(refused[0].split(": ", 1)[-1])
+    return out
 
 
 @router.post("/initiatives/{initiative_id}/delete")

@@ -268,6 +268,67 @@ def test_editing_through_the_form(
     assert (record.row.version, record.row.period_id) == (2, None)
 
 
+def test_another_teams_effort_is_added_and_changed_on_the_edit_page(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    """Found in use: the edit page could only remove another team's effort; adding one
+    needed the JSON API."""
+    dock = make_team(session, "Dock crew")
+    page = parse(form_client.get(f"/initiatives/{stored.quay}/edit").text)
+    options = page.find("select", id="f-add_effort_team").find_all("option")
+    assert [o.text() for o in options] == ["(none)", "Dock crew", "Lighthouse"]  # not the owner
+    ids_are_unique_and_labels_point_at_fields(page)
+    base = ADD | {"title": "Quay wall", "period_id": str(stored.period)}
+    added = _post(
+        form_client,
+        f"/initiatives/{stored.quay}",
+        base | {"version": "1", "add_effort_team": str(dock.id), "add_effort": "1,5/2/4"},
+    )
+    assert added.status_code == 303, added.text
+    session.expire_all()
+    line = _record(session, stored.quay).efforts[dock.id or 0]
+    assert (line.low, line.likely, line.high) == (1.5, 2, 4)
+    # The same team again: its share is replaced, not doubled.
+    again = _post(
+        form_client,
+        f"/initiatives/{stored.quay}",
+        base | {"version": "2", "add_effort_team": str(dock.id), "add_effort": "3"},
+    )
+    assert again.status_code == 303, again.text
+    session.expire_all()
+    record = _record(session, stored.quay)
+    assert (record.efforts[dock.id or 0].likely, len(record.efforts)) == (3, 2)
+
+
+@pytest.mark.parametrize(
+    ("effort", "says"),
+    [("", "Enter the team's effort in days"), ("lots", "Enter a number of days"), ("-2", "0")],
+)
+def test_a_bad_effort_for_another_team_is_refused_beside_its_field(
+    form_client: TestClient, session: Session, stored: Stored, effort: str, says: str
+) -> None:
+    dock = make_team(session, "Dock crew")
+    data = ADD | {
+        "title": "Quay wall",
+        "period_id": str(stored.period),
+        "version": "1",
+        "add_effort_team": str(dock.id),
+        "add_effort": effort,
+    }
+    response = _post(form_client, f"/initiatives/{stored.quay}", data)
+    assert response.status_code == 422, response.text
+    page = parse(response.text)
+    error = page.find("p", id="add_effort-error")
+    assert error is not None
+    assert says in error.text()
+    form = Form(page, f"/initiatives/{stored.quay}")
+    assert form.value("add_effort") == effort
+    assert form.value("add_effort_team") == str(dock.id)
+    session.expire_all()
+    record = _record(session, stored.quay)
+    assert (record.row.version, list(record.efforts)) == (1, [stored.team])
+
+
 def test_a_stale_edit_shows_both_versions(
     form_client: TestClient, session: Session, stored: Stored
 ) -> None:

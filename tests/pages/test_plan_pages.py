@@ -880,6 +880,11 @@ def test_explain_fragment_and_page(form_client: TestClient, session: Session) ->
     assert full.find("h1").text() == "Why “Dark mode” is left out of the plan"  # type: ignore[union-attr]
     back = next(a for a in full.find_all("a") if a.text() == "Back to the plan")
     assert back.get("href") == setup.url + f"#row-{initiative_id}"
+    # Found in use: nothing on the plan led to the fields a row does not edit (title, needs,
+    # either-or set, other teams' effort). The explanation does, with and without scripts.
+    for shown in (root, full):
+        edit = [a for a in shown.find_all("a") if a.text().startswith("Edit its title")]
+        assert [a.get("href") for a in edit] == [f"/initiatives/{initiative_id}/edit"]
     missing = form_client.get(url.replace(f"/{initiative_id}/", "/999999/"))
     assert missing.status_code == 404
 
