@@ -410,6 +410,16 @@ def read_plan(plan_id: PathId, session: SessionDep) -> SavedPlanPublic:
     return _plan_public(store.get_plan(session, plan_id=plan_id))
 
 
+@router.delete(
+    "/plans/{plan_id}",
+    status_code=status.HTTP_204_NO_CONTENT,
+    description="Delete a saved plan and its published links, which answer 404 from then "
+    "on. The audit trail keeps its name, value and chosen initiatives.",
+)
+def delete_plan(plan_id: PathId, session: SessionDep) -> None:
+    store.delete_plan(session, plan_id=plan_id)
+
+
 @router.get(
     "/plans/{plan_id}/changes",
     response_model=DriftPublic,

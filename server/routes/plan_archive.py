@@ -22,7 +22,7 @@ from starlette.datastructures import FormData, UploadFile
 from server.actor import current_actor
 from server.deps import SessionDep, SettingsDep, TemplatesDep
 from server.errors import InputError, LoadlineError, NotFoundError, StaleVersionError
-from server.models import Period, SavedPlan, Team, utcnow
+from server.models import AuditEntry, Period, SavedPlan, Team, utcnow
 from server.planning import exports
 from server.planning.compare import (
     MAX_PLANS,
@@ -224,8 +224,10 @@ def plans_page(
     templates: TemplatesDep,
     team_id: QueryId = None,
     period_id: QueryId = None,
+    deleted: QueryId = None,
 ) -> Response:
     context = _plans_context(session, team_id, period_id)
+    context["notice"] = _deleted_notice(session, deleted)
     return render(templates, request, "plans/list.html", context)
 
 
@@ -247,6 +249,7 @@ def _saved_context(session: SessionDep, plan_id: int) -> dict[str, Any]:
         "publications": store.list_publications(session, plan_id=plan_id),
         "revoke_confirm": REVOKE_CONFIRM,
         "revoke_errors": {},
+        "delete_error": None,
     }
 
 
@@ -315,6 +318,32 @@ async def publish_plan(plan_id: PathId, request: Request, session: SessionDep) -
     form = await request.form()
     store.publish_plan(session, plan_id=plan_id, actor=_actor(form_text(form, "created_by")))
     return see_other(f"/plans/{plan_id}#links")
+
+
+@router.post("/plans/{plan_id}/delete")
+async def delete_plan(
+    plan_id: PathId, request: Request, session: SessionDep, templates: TemplatesDep
+) -> Response:
+    """Delete a saved plan once its box is ticked; the saved plans list then says so."""
+    form = await request.form()
+    db_plan = store.get_plan(session, plan_id=plan_id)
+    if form_text(form, "confirm") != "yes":  # the box the browser requires, when it was not
+        context = _saved_context(session, plan_id) | {
+            "delete_error": f"Tick “Yes, delete {db_plan.name}” to delete it."
+        }
+        return render(templates, request, "plans/saved.html", context, status_code=422)
+    team_id = db_plan.team_ids[0] if db_plan.team_ids else None
+    trace = store.delete_plan(session, plan_id=plan_id, actor=_actor(form_text(form, "created_by")))
+    team = f"team_id={team_id}&" if team_id else ""
+    return see_other(f"/plans?{team}deleted={trace}")
+
+
+def _deleted_notice(session: SessionDep, entry_id: int | None) -> str | None:
+    """'Deleted saved plan “…”.' read from the audit entry the redirect names."""
+    entry = session.get(AuditEntry, entry_id) if entry_id else None
+    if entry is None or entry.action != "plan.delete":
+        return None
+    return entry.summary + "."
 
 
 @router.post("/publications/{publication_id}/revoke")

@@ -246,11 +246,10 @@ def _uses_message(session: Session, db_period: Period) -> str | None:
         steps.append("delete the scenarios")
     if plans:
         uses.append(counted(plans, "saved plan"))
+        steps.append("delete the saved plans (each on its own page)")
     message = f"Period “{db_period.name}” still has {and_list(uses)}."
     if steps:
         message += f" To delete it, {and_list(steps)} first."
-    if plans:
-        message += " Saved plans are never changed, so a period they refer to is kept."
     return message
 
 

@@ -356,6 +356,36 @@ def get_plans(session: Session, *, plan_ids: Sequence[int]) -> list[SavedPlan]:
     return [found[i] for i in plan_ids]
 
 
+def delete_plan(session: Session, *, plan_id: int, actor: str = "") -> int:
+    """Delete a saved plan and its published links (they answer 404 from then on); return
+    the id of the audit entry, which keeps what the plan was (name, inputs digest, value,
+    chosen), so a deleted plan is never lost without a trace."""
+    db_plan = get_plan(session, plan_id=plan_id)
+    links = list_publications(session, plan_id=plan_id)
+    trace = audit.record(
+        session,
+        actor=actor,
+        action="plan.delete",
+        entity="saved_plan",
+        entity_id=plan_id,
+        team_id=db_plan.team_ids[0] if db_plan.team_ids else None,
+        summary=f"Deleted saved plan “{db_plan.name}”"
+        + (f" and its {counted(len(links), 'published link')}" if links else ""),
+        before={
+            "name": db_plan.name,
+            "inputs_digest": db_plan.inputs_digest,
+            "value": db_plan.result.get("value"),
+            "chosen": db_plan.result.get("chosen"),
+            "published_links": len(links),
+        },
+    )
+    for link in links:
+        session.delete(link)
+    session.delete(db_plan)
+    session.commit()
+    return trace.id or 0
+
+
 # --- published links -----------------------------------------------------------------------
 
 

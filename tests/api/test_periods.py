@@ -217,7 +217,7 @@ def _use_availability(client: TestClient, member: int, period: int) -> None:
         ),
         (
             lambda c, ws, p: _use_saved_plan(c, ws.team, p),
-            ["1 saved plan", "Saved plans are never changed"],
+            ["1 saved plan", "delete the saved plans"],
         ),
     ],
     ids=["availability", "scenario", "saved plan"],
