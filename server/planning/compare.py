@@ -111,17 +111,36 @@ class Comparison(BaseModel):
     curves: list[CurveData]
 
 
-def parse_plan_ids(raw: Sequence[str]) -> list[int]:
-    """Read plan ids from `plans=1,2,3` (or repeated `plans=`); enforce two to four, no repeats."""
+LIVE_PICK = "live"
+
+
+def parse_plan_ids(raw: Sequence[str]) -> list[int | None]:
+    """Read plan ids from `plans=1,2,3` (or repeated `plans=`); enforce two to four, no repeats.
+
+    "live" (None in the list) stands for the live plan now, of the first saved plan's team and
+    period: at most once, and beside at least one saved plan.
+    """
     parts = [p.strip() for chunk in raw for p in chunk.split(",") if p.strip()]
-    ids: list[int] = []
+    ids: list[int | None] = []
     for part in parts:
+        if part.lower() == LIVE_PICK:
+            ids.append(None)
+            continue
         if not part.isdigit() or not 1 <= int(part) <= MAX_ID:
-            raise InputError(f"plans: “{part}” is not a plan id.", field="plans")
+            shown = part if len(part) <= 40 else f"{part[:40]}…"
+            raise InputError(
+                f"plans: “{shown}” is neither a plan id nor “{LIVE_PICK}”.", field="plans"
+            )
         ids.append(int(part))
     if len(set(ids)) != len(ids):
         raise InputError("plans: Each plan may appear only once.", field="plans")
     check_count(len(ids))
+    if all(i is None for i in ids):
+        raise InputError(
+            f"plans: “{LIVE_PICK}” is the live plan of a saved plan's team and period: "
+            "choose a saved plan as well.",
+            field="plans",
+        )
     return ids
 
 

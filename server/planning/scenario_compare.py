@@ -12,14 +12,21 @@ from collections.abc import Sequence
 
 from sqlmodel import Session
 
-from server.errors import InputError, LoadlineError
+from server.errors import InputError, LoadlineError, NotFoundError
 from server.models import utcnow
-from server.planning.compare import Column, Comparison, check_count, compare_columns
+from server.planning.compare import (
+    Column,
+    Comparison,
+    check_count,
+    column_of,
+    compare_columns,
+    parse_plan_ids,
+)
 from server.planning.scenarios import ScenarioChanges, capture, changes_from_json
 from server.planning.snapshots import Snapshot
 from server.schemas import MAX_ID
 from server.store.periods import get_period
-from server.store.plans import get_scenario
+from server.store.plans import get_plans, get_scenario
 from server.store.teams import get_team
 from server.wording import possessive
 
@@ -97,6 +104,52 @@ def compare_picks(
     return compare_columns(columns)
 
 
+def compare_saved(session: Session, *, plans: Sequence[str], resolution: float) -> Comparison:
+    """Compare saved plans (`plans=` as sent, see compare.parse_plan_ids), with the live plan
+    now wherever "live" stands: the live plan of the first saved plan's team and period, solved
+    on today's data and saved nowhere."""
+    picks = parse_plan_ids(plans)
+    db_plans = get_plans(session, plan_ids=[p for p in picks if p is not None])
+    by_id = {p.id: p for p in db_plans}
+    columns = []
+    for pick in picks:
+        if pick is not None:
+            columns.append(column_of(by_id[pick]))
+            continue
+        inputs = db_plans[0].inputs
+        team, period = inputs["teams"][0], inputs["period"]
+        try:
+            get_team(session, team_id=team["id"])
+            get_period(session, period_id=period["id"])
+        except NotFoundError as exc:
+            raise InputError(
+                f"plans: There is no live plan of {team['name']} in {period['name']} to "
+                "compare with: the team or the period has been deleted.",
+                field="plans",
+            ) from exc
+        snapshot = _solved(
+            session,
+            team_id=team["id"],
+            period_id=period["id"],
+            changes=ScenarioChanges(),
+            resolution=resolution,
+            name=LIVE_NAME,
+            scenario_name=None,
+            field="plans",
+        )
+        columns.append(
+            Column(
+                id=None,
+                name=f"{LIVE_NAME} now",
+                created_at=utcnow(),
+                created_by="",
+                inputs=snapshot.inputs_json(),
+                result=snapshot.result_json(),
+            )
+        )
+    return compare_columns(columns)
+
+
 def _solved(
     session: Session,
     *,
@@ -106,6 +159,7 @@ def _solved(
     resolution: float,
     name: str,
     scenario_name: str | None,
+    field: str = "pick",
 ) -> Snapshot:
     """One column's snapshot; a plan that cannot be solved is refused naming it."""
     try:
@@ -119,4 +173,4 @@ def _solved(
         )
     except LoadlineError as exc:
         what = "the live plan" if scenario_name is None else f"scenario “{name}”"
-        raise InputError(f"pick: {what} cannot be solved: {exc.message}", field="pick") from exc
+        raise InputError(f"{field}: {what} cannot be solved: {exc.message}", field=field) from exc

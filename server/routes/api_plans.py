@@ -14,8 +14,8 @@ from pydantic import BaseModel, ConfigDict, Field, StringConstraints
 from server.deps import SessionDep, SettingsDep
 from server.models import NAME_MAX, Publication, SavedPlan, Scenario
 from server.planning import exports
-from server.planning.compare import Comparison, compare, parse_plan_ids
-from server.planning.scenario_compare import compare_picks
+from server.planning.compare import Comparison
+from server.planning.scenario_compare import compare_picks, compare_saved
 from server.planning.scenarios import (
     ScenarioChanges,
     capture,
@@ -492,17 +492,23 @@ def revoke_publication(
 # --- comparison ----------------------------------------------------------------------------
 
 
+PLANS_PICK = "Plan ids, comma-separated, and `live` for the live plan now: plans=1,2,live"
+
+
 @router.get(
     "/compare",
     response_model=Comparison,
     description="Compare two to four saved plans: figures, initiatives in each, differences "
-    "per pair (set arithmetic on the chosen sets) and the capacity curves.",
+    "per pair (set arithmetic on the chosen sets) and the capacity curves. `live` in the list "
+    "is the live plan now of the first saved plan's team and period (its column has `id` "
+    "null).",
 )
 def compare_plans(
     session: SessionDep,
-    plans: list[str] = Query(description="Plan ids, comma-separated: plans=1,2,3"),
+    settings: SettingsDep,
+    plans: list[str] = Query(description=PLANS_PICK),
 ) -> Comparison:
-    return compare(store.get_plans(session, plan_ids=parse_plan_ids(plans)))
+    return compare_saved(session, plans=plans, resolution=settings.resolution_days)
 
 
 @router.get(
@@ -532,9 +538,10 @@ def compare_scenarios(
 def export_comparison(
     fmt: ExportFormat,
     session: SessionDep,
-    plans: list[str] = Query(description="Plan ids, comma-separated: plans=1,2,3"),
+    settings: SettingsDep,
+    plans: list[str] = Query(description=PLANS_PICK),
 ) -> Response:
-    comparison = compare(store.get_plans(session, plan_ids=parse_plan_ids(plans)))
+    comparison = compare_saved(session, plans=plans, resolution=settings.resolution_days)
     return comparison_export(comparison, fmt)
 
 

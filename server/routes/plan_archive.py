@@ -25,14 +25,14 @@ from server.errors import InputError, LoadlineError, NotFoundError, StaleVersion
 from server.models import AuditEntry, Period, SavedPlan, Team, utcnow
 from server.planning import exports
 from server.planning.compare import (
+    LIVE_PICK,
     MAX_PLANS,
     Comparison,
-    compare,
     curves_chart,
     parse_plan_ids,
     single_curve_chart,
 )
-from server.planning.scenario_compare import compare_picks, parse_picks, picks_of
+from server.planning.scenario_compare import compare_picks, compare_saved, parse_picks, picks_of
 from server.planning.scenarios import (
     LISTED_FIGURES,
     ScenarioChanges,
@@ -375,6 +375,7 @@ def _ticked(raw: list[str]) -> set[str]:
 def compare_page(
     request: Request,
     session: SessionDep,
+    settings: SettingsDep,
     templates: TemplatesDep,
     plans: list[str] = Query(default_factory=list),
     team_id: QueryId = None,
@@ -382,19 +383,21 @@ def compare_page(
 ) -> Response:
     try:
         ids = parse_plan_ids(plans)
-        db_plans = store.get_plans(session, plan_ids=ids)
+        store.get_plans(session, plan_ids=[i for i in ids if i is not None])
+        query = ",".join(LIVE_PICK if i is None else str(i) for i in ids)
+        if len(plans) > 1 or team_id is not None or period_id is not None:
+            # Ticked boxes arrive as plans=1&plans=2 (and the list's filter): the stable URL.
+            return see_other("/compare?plans=" + query)
+        comparison = compare_saved(session, plans=plans, resolution=settings.resolution_days)
     except (InputError, NotFoundError) as exc:
         # Back to the saved plans (as filtered when ticked), the boxes still ticked.
         context = _plans_context(session, team_id, period_id)
         text = bare_message(exc.message, "plans")  # shown beside the boxes: a sentence
         context |= {"ticked": _ticked(plans), "errors": {"plans": text[:1].upper() + text[1:]}}
         return render(templates, request, "plans/list.html", context, status_code=422)
-    query = ",".join(str(i) for i in ids)
-    if len(plans) > 1 or team_id is not None or period_id is not None:
-        # Ticked boxes arrive as plans=1&plans=2 (and the list's filter): the stable URL.
-        return see_other("/compare?plans=" + query)
-    comparison = compare(db_plans)
     names = {p.label: p.name for p in comparison.plans}
+    live = next((p for p in comparison.plans if p.id is None), None)
+    first = store.get_plan(session, plan_id=next(i for i in ids if i is not None))
     # Columns are told apart by name and save time to the minute; by number when both match.
     stamps = {p.id: p.created_at.strftime("%Y-%m-%d %H:%M") for p in comparison.plans}
     seen = Counter((p.name, stamps[p.id]) for p in comparison.plans)
@@ -404,15 +407,22 @@ def compare_page(
         "alike": {p.id for p in comparison.plans if seen[(p.name, stamps[p.id])] > 1},
         "chart": curves_chart(comparison.curves, names) if comparison.curves else None,
         "query": query,
+        # The live column's team and period (those of the first saved plan), for its link.
+        "live": live,
+        "team": first.inputs["teams"][0],
+        "period": first.inputs["period"],
     }
     return render(templates, request, "plans/compare.html", context)
 
 
 @router.get("/compare/export.{fmt}")
 def export_comparison(
-    fmt: ExportFormat, session: SessionDep, plans: list[str] = Query(default_factory=list)
+    fmt: ExportFormat,
+    session: SessionDep,
+    settings: SettingsDep,
+    plans: list[str] = Query(default_factory=list),
 ) -> Response:
-    comparison = compare(store.get_plans(session, plan_ids=parse_plan_ids(plans)))
+    comparison = compare_saved(session, plans=plans, resolution=settings.resolution_days)
     return comparison_export(comparison, fmt)
 
 

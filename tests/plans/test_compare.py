@@ -123,6 +123,8 @@ def test_compare_page_has_a_stable_url_and_shows_differences(
         ("plans=1,x", 422, "plans"),
         ("plans=", 422, "plans"),
         ("plans=1,999", 404, "plans"),
+        ("plans=live,live", 422, "plans"),
+        ("plans=1,live,LIVE", 422, "plans"),
     ],
 )
 def test_bad_comparisons_are_refused(
@@ -210,8 +212,62 @@ def test_list_form_sends_its_filter_and_a_good_choice_goes_to_the_stable_url(
 
 def test_parse_plan_ids_accepts_commas_and_repeats() -> None:
     assert parse_plan_ids(["3,1", "2"]) == [3, 1, 2]
+    assert parse_plan_ids(["3,live"]) == [3, None]
     with pytest.raises(InputError):
         parse_plan_ids(["1"])
+
+
+def test_a_saved_plan_is_compared_with_the_live_plan_now(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    """Asked for in use: only saved plans could be compared, so seeing what moved since a save
+    meant saving the live plan first."""
+    saved = save_live(form_client, workspace, "Sprint as agreed")
+    page_links = parse_html(form_client.get(f"/plans/{saved['id']}").text).find_all("a")
+    assert f"/compare?plans={saved['id']},live" in [a.get("href") for a in page_links]
+    target = workspace.id_of("Depot dashboard")
+    edit(session, target, value=99.0)  # live data moves on: the live plan takes it now
+    before = counts(session)
+    api = form_client.get("/api/v1/compare", params={"plans": f"{saved['id']},live"})
+    assert api.status_code == 200, api.text
+    frozen, live = api.json()["plans"]
+    assert (frozen["id"], live["id"]) == (saved["id"], None)
+    assert frozen["chosen"] == saved["result"]["chosen"]
+    fresh = form_client.get(
+        f"/api/v1/teams/{workspace.team_id}/periods/{workspace.period_id}/plan"
+    ).json()
+    assert live["value"] == fresh["selection"]["value"]
+    assert str(target) in live["chosen"]
+    assert str(target) not in frozen["chosen"]
+    pair = api.json()["pairs"][0]
+    assert (pair["a"], pair["b"]) == ("A", "B")
+    assert str(target) in pair["only_in_b"]
+    assert api.json()["plan_ids"] == [saved["id"]]
+    page = form_client.get(f"/compare?plans={saved['id']},live")
+    assert page.status_code == 200, page.text
+    assert "with the live plan now" in page.text
+    for fmt in ("csv", "md", "json"):
+        export = form_client.get(f"/compare/export.{fmt}?plans={saved['id']},live")
+        assert export.status_code == 200, (fmt, export.text)
+        assert "Live plan now" in export.text
+    assert counts(session) == before  # nothing saved
+
+
+def test_live_alone_or_for_a_deleted_team_is_refused(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    saved = save_live(client, workspace)
+    alone = client.get("/api/v1/compare", params={"plans": "live,live"})
+    assert alone.status_code == 422
+    only = client.get("/api/v1/compare", params={"plans": "live"})
+    assert only.status_code == 422
+    deleted = client.delete(
+        f"/api/v1/teams/{workspace.team_id}", params={"with_initiatives": "true"}
+    )
+    assert deleted.status_code == 204, deleted.text
+    gone = client.get("/api/v1/compare", params={"plans": f"{saved['id']},live"})
+    assert gone.status_code == 422
+    assert f"no live plan of {workspace.team.name}" in error_text(gone)
 
 
 class _SvgReader(HTMLParser):
