@@ -118,3 +118,21 @@ def busiest_team(session: Session) -> tuple[int, int]:
         key=lambda t: len(list_initiatives(session, team_id=t, period_id=period_id)),
     )
     return team_id, period_id
+
+
+# Buttons whose first word is broken over two lines ("Sav/e"): the text's first word laid out
+# in more than one line box.
+_BROKEN_BUTTON_WORDS = """() => [...document.querySelectorAll('button')].filter((b) => {
+  const text = [...b.childNodes].find((n) => n.nodeType === 3 && n.textContent.trim());
+  if (!text || !b.getClientRects().length) return false;
+  const word = text.textContent.trim().split(/\\s+/)[0];
+  const start = text.textContent.indexOf(word);
+  const range = document.createRange();
+  range.setStart(text, start);
+  range.setEnd(text, start + word.length);
+  return new Set([...range.getClientRects()].map((r) => Math.round(r.top))).size > 1;
+}).map((b) => b.textContent.trim())"""
+
+
+def broken_button_words(page: Page) -> list[str]:
+    return page.evaluate(_BROKEN_BUTTON_WORDS)

@@ -12,6 +12,7 @@ from playwright.sync_api import Browser, Page, Request, Response, Route, expect
 from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
 from tests.browser.flows import (
     add_team,
+    broken_button_words,
     decision,
     quick_add,
     row_id,
@@ -329,6 +330,7 @@ def test_save_again_after_a_colleagues_change_keeps_both(
     expect(tab_b.locator(f"#effort-{gangway}")).to_have_value("15")
     expect(tab_b.locator(f"#value-{gangway}")).to_have_value("26")
     screenshot(tab_b, "save-again-after-a-colleagues-change")
+    assert broken_button_words(tab_b) == []  # found in use: "Sav/e" beside the clash box
 
     tab_b.locator(f"#save-{gangway}").click()
     expect(tab_b.locator(".conflict")).to_have_count(0)

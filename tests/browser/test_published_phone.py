@@ -16,7 +16,7 @@ from server.store import plans as store
 from server.store.periods import list_periods
 from server.store.teams import list_members, list_teams
 from tests.browser.conftest import WAIT_MS, LiveServer, sign_in
-from tests.browser.flows import busiest_team, screenshot
+from tests.browser.flows import broken_button_words, busiest_team, screenshot
 
 pytestmark = pytest.mark.browser
 
@@ -110,6 +110,7 @@ def test_the_live_plan_and_the_changes_list_fit_a_390_px_screen(
     widths = _widths(page)
     screenshot(page, "live-plan-390")
     assert widths["scroll"] <= widths["view"], widths
+    assert broken_button_words(page) == []  # found in use: "Rea/d" beside the curve
     # Each field of a row is on the screen, labelled by its column's name.
     row = page.locator(".plan-row").first
     for field in ("Effort (days)", "Value", "State"):
