@@ -35,12 +35,12 @@ def _not_a_boolean(value: Any) -> Any:
     return value
 
 
-_NUMBER = BeforeValidator(_not_a_boolean)
-WholeNumber = Annotated[int, _NUMBER]
+NUMBER = BeforeValidator(_not_a_boolean)
+WholeNumber = Annotated[int, NUMBER]
 # Ids are INTEGER columns (32-bit on PostgreSQL): a larger number can name no row, and is
 # refused naming its field rather than looked up.
 MAX_ID = 2**31 - 1
-RowId = Annotated[int, _NUMBER, Field(ge=1, le=MAX_ID)]
+RowId = Annotated[int, NUMBER, Field(ge=1, le=MAX_ID)]
 Name = Annotated[
     str,
     StringConstraints(
@@ -54,13 +54,13 @@ Title = Annotated[
     ),
 ]
 Notes = Annotated[str, StringConstraints(max_length=NOTES_MAX)]
-Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), _NUMBER]
-DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False), _NUMBER]
-FocusFactor = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), _NUMBER]
-ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False), _NUMBER]
-Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False), _NUMBER]
-ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False), _NUMBER]
-EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False), _NUMBER]
+Share = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), NUMBER]
+DaysOff = Annotated[float, Field(ge=0, le=MAX_PERIOD_DAYS, allow_inf_nan=False), NUMBER]
+FocusFactor = Annotated[float, Field(gt=0, le=1, allow_inf_nan=False), NUMBER]
+ReservePct = Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False), NUMBER]
+Spread = Annotated[float, Field(ge=0, lt=1, allow_inf_nan=False), NUMBER]
+ValueScore = Annotated[float, Field(gt=0, le=MAX_VALUE, allow_inf_nan=False), NUMBER]
+EffortDays = Annotated[float, Field(gt=0, le=MAX_EFFORT_DAYS, allow_inf_nan=False), NUMBER]
 Weekmask = Annotated[str, StringConstraints(pattern=WEEKMASK)]
 PeriodKind = Literal["sprint", "quarter"]
 InitiativeState = Literal["candidate", "pinned", "ruled_out"]

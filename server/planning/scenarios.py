@@ -25,7 +25,7 @@ from server.planning.snapshots import (
     solve_live,
     unsolved_inputs,
 )
-from server.schemas import DaysOff, FocusFactor, ReservePct, RowId
+from server.schemas import NUMBER, DaysOff, FocusFactor, ReservePct, RowId
 from server.selector.risk import EstimateError, validate_confidence
 from server.store._common import and_list
 from server.store.initiatives import list_initiatives
@@ -36,11 +36,11 @@ from server.wording import in_days
 
 MAX_CAPACITY_DAYS = 100_000.0
 MAX_FORCED = 500
-Confidence = Annotated[float, Field(gt=0, lt=1, allow_inf_nan=False)]
+Confidence = Annotated[float, Field(gt=0, lt=1, allow_inf_nan=False), NUMBER]
 # Below a hundredth of a day a capacity plans nothing at any resolution.
 MIN_CAPACITY_DAYS = 0.01
 CapacityDays = Annotated[
-    float, Field(ge=MIN_CAPACITY_DAYS, le=MAX_CAPACITY_DAYS, allow_inf_nan=False)
+    float, Field(ge=MIN_CAPACITY_DAYS, le=MAX_CAPACITY_DAYS, allow_inf_nan=False), NUMBER
 ]
 
 

@@ -239,6 +239,9 @@ def test_parse_changes_form_reads_levels_and_keeps_blanks_live() -> None:
         ({"capacity_days": -3}, "capacity_days"),
         ({"capacity_days": 0}, "capacity_days"),
         ({"capacity_days": "lots"}, "capacity_days"),
+        # Found in use: true was stored as a capacity of 1 day.
+        ({"capacity_days": True}, "capacity_days"),
+        ({"confidence": True}, "confidence"),
         ({"days_off": {"1": -2}}, "days_off"),
         ({"forced_in": [1], "forced_out": [1]}, "forced_out"),
         ({"unknown": 1}, "unknown"),
