@@ -533,6 +533,21 @@ def test_a_plan_of_single_estimates_without_a_spread_points_to_the_setting(
     assert read_only.find("a") is None  # a viewer cannot change the spread
 
 
+def test_the_confidence_hint_names_the_teams_spread_when_it_shifts_single_efforts(
+    form_client: TestClient, session: Session
+) -> None:
+    """Found in use: the hint said P80 moves three-point efforts only, but with a team spread
+    single efforts move too."""
+    setup = build(session)
+    hint = page(form_client, setup.url).by_id("confidence-hint").text()
+    assert "spread" not in hint
+    setup.team.default_spread = 0.2
+    session.add(setup.team)
+    session.commit()
+    hint = page(form_client, setup.url).by_id("confidence-hint").text()
+    assert "each single one with the team's ± 20 % spread" in hint
+
+
 def test_an_empty_plan_says_there_is_nothing_at_risk(
     form_client: TestClient, session: Session
 ) -> None:
