@@ -401,8 +401,16 @@ def solve_steps(
         start = least_effort_capacity(row, capacity, low)
         taken, _ = backtrack(steps, table, start, last=applied, reach=reach)
         scratch.give_back(table)
+        # The row runs past the capacity when the capacity curve is asked for: say so, or
+        # the units read as the plan's own.
+        beyond = (
+            f" (0 to {capacity:,} for the plan, {capacity + 1:,} to {width - 1:,} for the "
+            "capacity curve)"
+            if width > capacity + 1
+            else ""
+        )
         note = (
-            f"{rows or count_initiatives(steps.members)} x {width:,} capacity units; "
+            f"{rows or count_initiatives(steps.members)} x {width:,} capacity units{beyond}; "
             f"decision table {_mib(need)} within the {_mib(budget_bytes)} budget"
         )
         if applied < steps.count:

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from selector_oracles import brute_force, indices, units_of
 from selector_strategies import problems
 
-from server.selector import Item, Problem, solve
+from server.selector import Item, Problem, default_curve_to, solve
 
 # Efforts 1..7 units, none fitting in capacity 0, one (50 units) never fitting.
 EFFORT_UNITS = [1, 2, 3, 4, 5, 6, 7, 50, 3, 2]
@@ -158,3 +158,13 @@ def test_the_method_note_counts_one_initiative_in_the_singular() -> None:
     valued = solve(Problem(items=(Item("a", 1, 2), Item("b", 1.5, 2)), capacity=2))
     assert "fullest: 1 initiative x 5 capacity units" in fullest.method_note
     assert "2 initiatives x 5 capacity units" in valued.method_note
+
+
+def test_the_method_note_tells_the_curve_s_capacities_from_the_plan_s() -> None:
+    """Found in use: with a curve the note said 24 capacity units for a plan of 19."""
+    items = tuple(Item(key=f"k{i}", effort=1.0 + i, value=3.0 + i) for i in range(6))
+    problem = Problem(items=items, capacity=9.5)  # 19 units at 0.5 day
+    plain = solve(problem).method_note
+    assert "6 initiatives x 20 capacity units;" in plain
+    curved = solve(problem, curve_to=default_curve_to(problem.capacity)).method_note
+    assert "6 initiatives x 24 capacity units (0 to 19 for the plan, 20 to 23 for the " in curved
