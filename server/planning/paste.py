@@ -68,6 +68,7 @@ _FORMULA = re.compile(r"^(?:[=@]|[+-][A-Za-z_]+\()")
 _DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+\s*$")
 # "2,500" or "1,000,000": a thousands separator as often as a decimal comma; never guessed.
 _THOUSANDS_LIKE = re.compile(r"^\s*[+-]?\d{1,3}(?:,\d{3})+\s*$")
+_NUMBER_CELL = re.compile(r"^\s*[+-]?\d+(?:\.\d+)?\s*$")
 
 
 @dataclass(frozen=True)
@@ -340,6 +341,12 @@ def _parse_row(
     state = STATE_WORDS.get(" ".join(state_text.lower().split()))
     if state is None:
         errors["state"] = f"“{state_text}” is not a state; use candidate, pinned or ruled out."
+        if not decimal_comma and _NUMBER_CELL.match(state_text):
+            # Cells split at commas: "2,500" became two cells, and the value took the state's.
+            errors["state"] += (
+                " Between cells split at commas, a number written with a comma (2,500 or "
+                "2,5) becomes two cells: write 2500, or 2.5."
+            )
     values = {
         "team_id": team_id,
         "period_id": period_id,

@@ -96,6 +96,16 @@ def test_too_many_cells_name_the_columns_read() -> None:
     )
 
 
+def test_a_number_split_at_its_comma_is_named_as_the_cause() -> None:
+    """Found in use: "Acquirer failover,2,500,9" said only that 9 is not a state."""
+    result = _parse("Acquirer failover,2,500,9\nQuay wall,3,40\n")
+    message = result.rows[0].errors["state"]
+    assert message.startswith("“9” is not a state; use candidate, pinned or ruled out.")
+    assert "write 2500, or 2.5" in message
+    tabbed = _parse("Acquirer failover\t2\t500\t9\n")
+    assert "write 2500" not in tabbed.rows[0].errors["state"]  # no commas between its cells
+
+
 def test_quoted_cells_keep_their_commas() -> None:
     result = _parse('"Quay wall, north side",5,40\n')
     assert result.ok
