@@ -545,9 +545,10 @@
     first.focus();
   }
 
-  // A link of the error summary puts the keyboard in its field, not only the view there.
+  // A link of the error summary, or a jump link to a field, puts the keyboard in its field,
+  // not only the view there.
   document.addEventListener("click", function (event) {
-    var link = event.target && event.target.closest ? event.target.closest(".error-summary a[href^='#']") : null;
+    var link = event.target && event.target.closest ? event.target.closest(".error-summary a[href^='#'], a.to-field[href^='#']") : null;
     var field = link ? document.getElementById(link.getAttribute("href").slice(1)) : null;
     if (field && typeof field.focus === "function") {
       event.preventDefault();
