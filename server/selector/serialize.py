@@ -8,11 +8,16 @@ from typing import Any
 
 from .model import JointSelection, Selection
 
+# Days and value scores carry at most six decimals; sums and differences of them pick up
+# binary noise (2.141999999999996, 23.00000000000001) that nine places drop.
+_DECIMALS = 9
+
 
 def _clean(value: Any) -> Any:
-    """Replace non-finite floats (not valid JSON) by None and tuples by lists."""
+    """Replace non-finite floats (not valid JSON) by None, round away float noise, and turn
+    tuples into lists."""
     if isinstance(value, float):
-        return value if math.isfinite(value) else None
+        return round(value, _DECIMALS) if math.isfinite(value) else None
     if isinstance(value, dict):
         return {key: _clean(item) for key, item in value.items()}
     if isinstance(value, list | tuple):
