@@ -207,9 +207,11 @@ def _reason(
         return f"In the plan: leaving it out costs {_number(regret)} value{tail}"
     if opposite is None:
         free_days = context.outcome.free_capacity * checked.resolution
+        # "With what it needs" only of work that needs something still to be chosen.
+        what = "with what it needs it takes" if context.decided.free_needs.get(i) else "it takes"
         return (
-            "Left out: it does not fit; with what it needs it takes more than the "
-            f"{free_days:g} days left after pinned work."
+            f"Left out: it does not fit; {what} more than the {free_days:g} days left after "
+            "pinned work."
         )
     if regret == 0:
         return "Left out; an equally good plan with it exists, and the tie rule left it out."

@@ -228,6 +228,23 @@ def test_leaving_out_what_others_need_names_them() -> None:
     assert "leave the plan too" not in why["b"].reason
 
 
+def test_work_too_large_to_fit_is_said_so_with_its_needs_only_when_it_has_some() -> None:
+    """Found in use: "with what it needs" was said of work that needs nothing. Worked by hand:
+    5 days of room; d (6 days) never fits; e (3 days) needs f (3 days), 6 together."""
+    problem = Problem(
+        items=(Item("d", 6, 10), Item("e", 3, 8, needs=("f",)), Item("f", 3, 1)), capacity=5
+    )
+    why = {e.key: e for e in solve(problem, explain=True).explanations or ()}
+    assert (
+        why["d"].reason
+        == "Left out: it does not fit; it takes more than the 5 days left after pinned work."
+    )
+    assert why["e"].reason == (
+        "Left out: it does not fit; with what it needs it takes more than the 5 days left "
+        "after pinned work."
+    )
+
+
 def test_needing_an_alternative_of_its_own_set_is_not_called_a_matter_of_fit() -> None:
     """Worked by hand: a needs b, and a and b are alternatives (set x), so a can never be in;
     d needs c and e, alternatives in set y, so d can never be in either. Room for all."""
