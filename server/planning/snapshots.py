@@ -609,6 +609,11 @@ def _n(value: Any) -> str:
     return str(value)
 
 
+def _pct(share: Any) -> str:
+    """A share (0.5) as the pages write it (50 %)."""
+    return "none" if share is None else f"{round(float(share) * 100, 2):g} %"
+
+
 _CAPACITY_FIELDS = (
     ("working_days", "Working days"),
     ("gross_days", "Available person-days"),
@@ -674,6 +679,8 @@ def _capacity_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange]:
         for name, label in _MEMBER_FIELDS:
             before, after = getattr(m, name), getattr(now, name)
             if not _close(before, after):
+                # A share is a percentage on every page that shows one.
+                said = _pct if name == "allocation" else _n
                 out.append(
                     InputChange(
                         "member",
@@ -681,7 +688,7 @@ def _capacity_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange]:
                         name,
                         before,
                         after,
-                        f"{now.name}: {label} {_n(before)} → {_n(after)}",
+                        f"{now.name}: {label} {said(before)} → {said(after)}",
                     )
                 )
     for member_id, m in live_members.items():
@@ -839,7 +846,7 @@ def input_changes(saved: PlanInputs, live: PlanInputs) -> list[InputChange]:
                     before.default_spread,
                     team.default_spread,
                     f"{team.name}: default spread of single estimates "
-                    f"{_n(before.default_spread)} → {_n(team.default_spread)}",
+                    f"{_pct(before.default_spread)} → {_pct(team.default_spread)}",
                 )
             )
     period_fields = ("name", "start_date", "end_date", "weekmask", "non_working_dates")

@@ -309,6 +309,22 @@ def test_drift_names_a_renamed_member(session: Session, workspace: Workspace) ->
     assert [c.text for c in drift.changes] == ["Renamed Ola to Ola N."]
 
 
+def test_drift_says_shares_and_spreads_in_percent_as_the_pages_do(
+    session: Session, workspace: Workspace
+) -> None:
+    """Found in use: "share on team 0.5 → 0.6" and "default spread 0.1 → 0.3"."""
+    db_plan = _save(session, workspace)
+    ola = workspace.members[0]
+    update_member(session, member_id=ola.id or 0, member_in=MemberUpdate(allocation=0.6))
+    update_team(session, team_id=workspace.team_id, team_in=TeamUpdate(default_spread=0.3))
+    drift = drift_of(
+        session, inputs=db_plan.inputs, result=db_plan.result, digest=db_plan.inputs_digest
+    )
+    texts = [c.text for c in drift.changes]
+    assert "Ola: share on team 100 % → 60 %" in texts
+    assert f"{workspace.team.name}: default spread of single estimates 0 % → 30 %" in texts
+
+
 def test_a_saved_plan_of_a_deleted_team_links_only_to_pages_that_exist(
     session: Session, workspace: Workspace, form_client: TestClient
 ) -> None:
