@@ -548,6 +548,16 @@ def test_the_confidence_hint_names_the_teams_spread_when_it_shifts_single_effort
     assert "each single one with the team's ± 20 % spread" in hint
 
 
+def test_the_pert_spread_beside_a_row_says_how_it_is_worked(
+    form_client: TestClient, session: Session
+) -> None:
+    """Found in use: "PERT 8.5 ± 1.5" read as the simulated spread, which for PERT-beta
+    5/8/14 is 1.66; the ± is the classical range ÷ 6."""
+    setup = build(session, rows=())
+    make_three_point(session, setup.team, setup.period, "Quay survey", (5, 8, 14), 20)
+    assert "PERT 8.5 ± 1.5 (range ÷ 6)" in page(form_client, setup.url).text()
+
+
 def test_an_empty_plan_says_there_is_nothing_at_risk(
     form_client: TestClient, session: Session
 ) -> None:
