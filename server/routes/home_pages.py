@@ -15,6 +15,7 @@ from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
+from server.models import Period
 from server.routes.forms import (
     SPREAD_RULE,
     after_conflict,
@@ -58,8 +59,21 @@ def _home_context(session: SessionDep) -> dict[str, Any]:
 
 
 @router.get("/")
-def home(request: Request, session: SessionDep, templates: TemplatesDep) -> Response:
-    return render(templates, request, "home.html", _home_context(session))
+def home(
+    request: Request, session: SessionDep, templates: TemplatesDep, done: str | None = None
+) -> Response:
+    context = _home_context(session) | {"notice": _period_notice(session, done)}
+    return render(templates, request, "home.html", context)
+
+
+def _period_notice(session: SessionDep, code: str | None) -> str | None:
+    """'Added period “…”.' for `done=added-ID` (or saved-ID), read from the stored period, so
+    a link cannot make the page say anything else."""
+    kind, _, raw_id = (code or "").partition("-")
+    if kind not in ("added", "saved") or not raw_id.isdigit() or len(raw_id) > 10:
+        return None
+    period = session.get(Period, int(raw_id))
+    return f"{kind.capitalize()} period “{period.name}”." if period is not None else None
 
 
 @router.post("/teams")
@@ -101,7 +115,7 @@ async def add_period(request: Request, session: SessionDep, templates: Templates
             lambda: period_store.create_period(session, period_in=period_in)
         )
         if db_period is not None:
-            return see_other("/")
+            return see_other(f"/?done=added-{db_period.id}#periods-h")
     shown = values | {"non_working_dates": form_text(form, "non_working_dates")}
     context = _home_context(session) | {"period_form": shown, "period_errors": _flatten(errors)}
     return render(templates, request, "home.html", context, status_code=422)
@@ -169,7 +183,7 @@ async def update_period(
             )
         )
         if updated is not None:
-            return see_other("/")
+            return see_other(f"/?done=saved-{period_id}#periods-h")
     session.refresh(db_period)
     typed = values | {"non_working_dates": form_text(form, "non_working_dates")}
     who = audit.last_actor(session, entity="period", entity_id=period_id)

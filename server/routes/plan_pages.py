@@ -261,8 +261,12 @@ def plan_page(
             return RedirectResponse(plan_url(team_id, whatif), status_code=307)
     view = _view(request, session, settings, team_id, params)
     status = 422 if view.whatif_errors else 200
-    notice = change_notice(session, (params.get("done") or [""])[0])
-    extra = {"notice": notice, "focus": "notice"} if notice else None
+    done = (params.get("done") or [""])[0]
+    notice = change_notice(session, done)
+    # After a row was added the keyboard goes on in the next new row, as it does with scripts
+    # (Enter saves and opens the next one); after any other change, to what it did.
+    focus = "quick-title" if done.startswith("added-") else "notice"
+    extra = {"notice": notice, "focus": focus} if notice else None
     return _render(request, templates, view, status_code=status, extra=extra)
 
 

@@ -155,6 +155,12 @@ def test_adding_a_period(form_client: TestClient, session: Session) -> None:
     assert period.non_working_dates == ["2027-03-19"]
     rows = parse(form_client.get("/").text).find("table").find_all("tr")
     assert [cell.text() for cell in rows[1].find_all("td")][-1] == "9"  # 10 weekdays - 1
+    # Found in use: the page came back with no word of what was added.
+    location = response.headers["location"]
+    assert location == f"/?done=added-{period.id}#periods-h"
+    notice = parse(form_client.get(location).text).find("p", id="notice")
+    assert notice.text() == f"Added period “{period.name}”."
+    assert parse(form_client.get("/?done=added-999999").text).find_all("p", id="notice") == []
 
 
 @pytest.mark.parametrize(
@@ -222,7 +228,10 @@ def test_a_period_is_changed_from_its_page(form_client: TestClient, session: Ses
     form = Form(page, f"/periods/{period.id}")
     assert (form.value("name"), form.value("start_date")) == ("Sprint 1", "2027-03-01")
     changed = PERIOD_FORM | {"name": "Sprint 1b", "start_date": "2027-03-01"}
-    assert _send(form_client, f"/periods/{period.id}", changed).status_code == 303
+    sent = _send(form_client, f"/periods/{period.id}", changed)
+    assert sent.status_code == 303
+    said = parse(form_client.get(sent.headers["location"]).text).find("p", id="notice")
+    assert said.text() == "Saved period “Sprint 1b”."
     session.expire_all()
     stored = session.get(Period, period.id)
     assert stored is not None
