@@ -74,6 +74,15 @@ class ComparedPlan(BaseModel):
     method: str
     chosen: list[str]  # keys
 
+    @property
+    def changes_said(self) -> str:
+        """What the plan changed of the live inputs, as the page and the downloads say it."""
+        if self.changed_inputs:
+            return "; ".join(self.changed_inputs)
+        if self.scenario_name:
+            return f"none (scenario “{self.scenario_name}” changed nothing)"
+        return "none (the live plan)" if self.id is None else "none (saved from the live plan)"
+
 
 class ComparedInitiative(BaseModel):
     key: str

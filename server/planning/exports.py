@@ -290,6 +290,7 @@ def _figures(cmp: Comparison) -> list[tuple[str, list[object]]]:
         ("utilisation", [_number(p.utilisation) for p in cmp.plans]),
         ("confidence", [_number(p.confidence) for p in cmp.plans]),
         ("fit_probability", [_number(p.fit_probability) for p in cmp.plans]),
+        ("changed_inputs", [p.changes_said for p in cmp.plans]),
     ]
 
 
@@ -333,6 +334,7 @@ def comparison_markdown(cmp: Comparison) -> str:
         ("Utilisation", [_pct(p.utilisation) for p in cmp.plans]),
         ("Planned at", [_level(p.confidence) for p in cmp.plans]),
         ("Chance it fits", [md(p.fit_label) if p.fit_label else "–" for p in cmp.plans]),
+        ("Changed inputs", [md(p.changes_said) for p in cmp.plans]),
     ]
     lines += [f"| {name} | " + " | ".join(values) + " |" for name, values in rows]
     lines += ["", "## Differences", ""]

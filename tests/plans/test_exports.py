@@ -626,3 +626,24 @@ def test_an_in_plan_cell_changed_to_something_else_is_refused_not_dropped(
         "out, use forced."
     )
     assert read_snapshot(app.state.engine) == before
+
+
+def test_comparison_downloads_say_what_each_plan_changed(
+    session: Session, workspace: Workspace, client: TestClient
+) -> None:
+    """Found in use: the comparison Markdown left out the page's "Changed inputs" row."""
+    live = save_live(client, workspace, "As is")
+    tight = save_live(client, workspace, "Tight", changes={"capacity_days": 5})
+    query = f"plans={live['id']},{tight['id']}"
+    page = client.get(f"/compare?{query}").text
+    said = tight["result"]["changed_inputs"]
+    assert said
+    markdown = client.get(f"/api/v1/compare/export.md?{query}").text
+    row = next(line for line in markdown.splitlines() if line.startswith("| Changed inputs |"))
+    assert "none (saved from the live plan)" in row
+    assert said[0].split(":")[0] in row
+    table = list(csv.reader(io.StringIO(client.get(f"/api/v1/compare/export.csv?{query}").text)))
+    changed = next(r for r in table if r and r[0] == "changed_inputs")
+    assert changed[1] == "none (saved from the live plan)"
+    assert changed[2] == "; ".join(said)
+    assert changed[2] in page  # the same words as the page
