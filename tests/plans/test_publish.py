@@ -63,8 +63,11 @@ def test_published_page_is_frozen_read_only_and_leads_nowhere(
     assert "script" not in page.tags
     assert "input" not in page.tags
     assert "button" not in page.tags
-    # The only URL on the page is the stylesheet: no link into the app, no API, no other plan.
-    assert page.urls == [("link", "href", "/static/loadline.css")]
+    # The only URLs on the page are static files: no link into the app, no API, no other plan.
+    assert page.urls == [
+        ("link", "href", "/static/favicon.svg"),
+        ("link", "href", "/static/loadline.css"),
+    ]
     assert "Sprint plan for stakeholders" in response.text
     assert "Route search" in response.text
     assert "saved " in response.text

@@ -75,7 +75,10 @@ def test_published_scenario_plan_shows_team_totals_and_no_member(
     assert "× focus factor 0.7" in text
     assert "− reserve 15 %" in text
     # No download or other address behind the link that could carry the members instead.
-    assert collect(response.text).urls == [("link", "href", "/static/loadline.css")]
+    assert collect(response.text).urls == [
+        ("link", "href", "/static/favicon.svg"),
+        ("link", "href", "/static/loadline.css"),
+    ]
     for suffix in ("/export.csv", "/export.json", "/export.md", ".csv", ".json"):
         assert TestClient(form_client.app).get(link["url"] + suffix).status_code == 404
 
