@@ -11,11 +11,12 @@ from typing import Any
 
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
+from sqlmodel import col, select
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
-from server.models import Period
+from server.models import AuditEntry, Period
 from server.routes.forms import (
     SPREAD_RULE,
     after_conflict,
@@ -62,18 +63,28 @@ def _home_context(session: SessionDep) -> dict[str, Any]:
 def home(
     request: Request, session: SessionDep, templates: TemplatesDep, done: str | None = None
 ) -> Response:
-    context = _home_context(session) | {"notice": _period_notice(session, done)}
+    context = _home_context(session) | {"notice": _home_notice(session, done)}
     return render(templates, request, "home.html", context)
 
 
-def _period_notice(session: SessionDep, code: str | None) -> str | None:
-    """'Added period “…”.' for `done=added-ID` (or saved-ID), read from the stored period, so
-    a link cannot make the page say anything else."""
-    kind, _, raw_id = (code or "").partition("-")
-    if kind not in ("added", "saved") or not raw_id.isdigit() or len(raw_id) > 10:
+def _home_notice(session: SessionDep, code: str | None) -> str | None:
+    """What a change just did, read from stored rows, so a link cannot make the page say
+    anything else: 'Added period “…”.' for `done=added-ID` (or saved-ID), and the audit
+    entry's 'Deleted team “…” …' for `done=deleted-team-ID` (team ids are never reused)."""
+    kind, _, raw_id = (code or "").rpartition("-")
+    if not raw_id.isdigit() or len(raw_id) > 10:
         return None
-    period = session.get(Period, int(raw_id))
-    return f"{kind.capitalize()} period “{period.name}”." if period is not None else None
+    if kind in ("added", "saved"):
+        period = session.get(Period, int(raw_id))
+        return f"{kind.capitalize()} period “{period.name}”." if period is not None else None
+    if kind == "deleted-team":
+        entry = session.exec(
+            select(AuditEntry)
+            .where(AuditEntry.action == "team.delete", AuditEntry.entity_id == int(raw_id))
+            .order_by(col(AuditEntry.id).desc())
+        ).first()
+        return f"{entry.summary}." if entry is not None else None
+    return None
 
 
 @router.post("/teams")

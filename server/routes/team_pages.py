@@ -221,7 +221,7 @@ async def delete_team(
         except LoadlineError as exc:  # still owns initiatives, or others depend on it
             message, status_code = exc.message, exc.status_code
         else:
-            return see_other("/")
+            return see_other(f"/?done=deleted-team-{team_id}")
     context = _team_context(session, team_id, period_id) | {
         "delete_error": message,
         "delete_form": {"with_initiatives": with_initiatives},

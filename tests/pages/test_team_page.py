@@ -433,8 +433,12 @@ def test_a_team_is_deleted_from_its_page_after_the_tick(
 
     response = _post(form_client, url, {"confirm": "yes"})
     assert response.status_code == 303  # type: ignore[attr-defined]
-    assert response.headers["location"] == "/"  # type: ignore[attr-defined]
+    location = response.headers["location"]  # type: ignore[attr-defined]
+    assert location == f"/?done=deleted-team-{team.id}"
     assert not _team_exists(session, team.id)
+    # The home page says what went (found in use: it came back without a word).
+    notice = parse(form_client.get(location).text).find("p", id="notice")
+    assert notice.text().startswith("Deleted team “Harbour”")
     assert _member(session, team.ola) is None
     assert _member(session, team.other_team_member) is not None
     entry = session.exec(select(AuditEntry).where(AuditEntry.action == "team.delete")).one()
