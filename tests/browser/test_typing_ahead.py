@@ -57,20 +57,26 @@ def test_a_refusal_does_not_pull_the_keyboard_back_from_another_row(
     expect(page.locator(f"#effort-{gangway}")).to_have_value("5")
 
 
+def _type_on_before_the_answer(page: Page, *, effort: str, typed: str) -> None:
+    """Enter a quick-add row ("Pier lights", effort, 14), type on while its answer is held,
+    then let the answer come."""
+    held = _held(page, "**/plan/initiatives")
+    page.locator("#quick-title").fill("Pier lights")
+    page.locator("#quick-effort").fill(effort)
+    page.locator("#quick-value").fill("14")
+    page.locator("#quick-value").press("Enter")
+    page.keyboard.type(typed)
+    assert len(held) == 1
+    held[0].continue_()
+    page.unroute("**/plan/initiatives")
+
+
 def test_letters_typed_right_after_enter_begin_the_next_title(
     app_page: Page, live_server: LiveServer
 ) -> None:
     page = app_page
     set_up_team(page, live_server.url)
-    held = _held(page, "**/plan/initiatives")
-    page.locator("#quick-title").fill("Pier lights")
-    page.locator("#quick-effort").fill("2")
-    page.locator("#quick-value").fill("14")
-    page.locator("#quick-value").press("Enter")
-    page.keyboard.type("Qu")  # before the answer: still in the value field
-    assert len(held) == 1
-    held[0].continue_()
-    page.unroute("**/plan/initiatives")
+    _type_on_before_the_answer(page, effort="2", typed="Qu")  # still in the value field
     expect(page.locator("#notice")).to_have_text("Added “Pier lights”.")
     title = page.locator("#quick-title")
     expect(title).to_have_value("Qu")
@@ -87,15 +93,7 @@ def test_a_refused_quick_row_keeps_what_was_typed_after_enter(
 ) -> None:
     page = app_page
     set_up_team(page, live_server.url)
-    held = _held(page, "**/plan/initiatives")
-    page.locator("#quick-title").fill("Pier lights")
-    page.locator("#quick-effort").fill("2d")
-    page.locator("#quick-value").fill("14")
-    page.locator("#quick-value").press("Enter")
-    page.keyboard.type("5")
-    assert len(held) == 1
-    held[0].continue_()
-    page.unroute("**/plan/initiatives")
+    _type_on_before_the_answer(page, effort="2d", typed="5")
     expect(page.locator("#quick-add")).to_have_class(re.compile(r"row-refused"))
     expect(page.locator("#quick-title")).to_have_value("Pier lights")
     expect(page.locator("#quick-value")).to_have_value("145")
