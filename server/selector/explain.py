@@ -13,7 +13,7 @@ mark removed and itself forced in.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from .constraints import Decided, decide
 from .engine import Outcome, Prepared, run
@@ -70,8 +70,12 @@ def explain_outcome(
     )
     explanations = []
     for i in range(count):
-        use_tables = i in fast and not exact_moves
-        forced_in, forced_out = fast[i] if use_tables else _resolve_both(context, i)
+        if i not in fast:
+            forced_in, forced_out = _resolve_both(context, i)
+        elif exact_moves:
+            forced_in, forced_out = _moves_resolved(context, i, *fast[i])
+        else:
+            forced_in, forced_out = fast[i]
         explanations.append(_explanation(context, i, forced_in, forced_out))
     if exact_moves:
         note += "; what moves with each by re-solving it forced"
@@ -80,6 +84,19 @@ def explain_outcome(
     elif len(fast) < len(explanations):
         note += "; pinned, ruled-out and blocked initiatives re-solved"
     return tuple(explanations), note
+
+
+def _moves_resolved(
+    context: _Context, i: int, forced_in: ForcedPlan, forced_out: ForcedPlan
+) -> tuple[ForcedPlan, ForcedPlan]:
+    """The tables' values, with what moves read from a re-solve of the side the plan is not
+    (the same value: both are exact; the re-solve's plan is the tie rule's own)."""
+    resolved_in, resolved_out = _resolve_both(context, i)
+    if i in context.chosen and resolved_out.value is not None:
+        forced_out = replace(resolved_out, value=forced_out.value)
+    elif i not in context.chosen and resolved_in.value is not None:
+        forced_in = replace(resolved_in, value=forced_in.value)
+    return forced_in, forced_out
 
 
 def _resolve_both(context: _Context, i: int) -> tuple[ForcedPlan, ForcedPlan]:
