@@ -46,6 +46,14 @@ def _is_published(path: str) -> bool:
     return path.startswith("/p/")
 
 
+def _is_json(content_type: str | None) -> bool:
+    """application/json, or a JSON-based type (application/problem+json), any parameters."""
+    media = (content_type or "").split(";")[0].strip().lower()
+    return media == "application/json" or (
+        media.startswith("application/") and media.endswith("+json")
+    )
+
+
 def _is_api(path: str) -> bool:
     # The JSON API only accepts application/json bodies, which a cross-site page cannot send
     # without a CORS preflight (and no CORS headers are ever sent), so it needs no form token.
@@ -85,6 +93,17 @@ class RequestGuard:
         body, too_large = await _read_body(receive, self.max_body_bytes)
         if too_large:
             await self._reject(scope, receive, send, 413, "The request is too large.")
+            return
+        if body and _is_api(scope["path"]) and not _is_json(request.headers.get("content-type")):
+            # Every body the API reads is JSON: anything else is refused as what it is, not
+            # reported as a JSON object with no fields.
+            await self._reject(
+                scope,
+                receive,
+                send,
+                415,
+                "Send the body as JSON, with the header Content-Type: application/json.",
+            )
             return
         replay = _replay(body)
         if not _is_api(scope["path"]):
