@@ -437,9 +437,15 @@ def solve_scenario(
     changes: ScenarioChanges,
     resolution: float,
 ) -> ScenarioOutcome:
-    """Solve the live plan and the scenario; list the changed inputs against live values."""
+    """Solve the live plan and the scenario; list the changed inputs against live values.
+
+    Solved as the scenario stands today (`still_applying`), so its page, its comparison and
+    the plan saved from it all plan the same inputs; the list still names what no longer
+    applies.
+    """
     baseline = baseline_of(session, team_id=team_id, period_id=period_id, resolution=resolution)
-    plan: LivePlan | None = baseline.plan if changes.is_empty else None
+    applying = still_applying(session, team_id=team_id, period_id=period_id, changes=changes)
+    plan: LivePlan | None = baseline.plan if applying.is_empty else None
     error = None
     if plan is None:
         try:
@@ -447,7 +453,7 @@ def solve_scenario(
                 session,
                 team_id=team_id,
                 period_id=period_id,
-                options=options_for(changes, resolution=resolution),
+                options=options_for(applying, resolution=resolution),
             )
         except InputError as exc:
             error = exc

@@ -119,3 +119,28 @@ def test_the_live_plan_changed_since_its_save_page_was_drawn_is_not_saved(
         "/plans", data=_save_fields(refused.text, "After the edit", csrf), follow_redirects=False
     )
     assert again.status_code == 303, again.text
+
+
+def test_a_scenario_over_what_live_data_removed_saves_from_its_page(
+    session: Session, workspace: Workspace, form_client: TestClient
+) -> None:
+    """Found in use: such a scenario was refused at every save from its page ("changed since
+    this page was shown"): the page planned its stale days off, the save did not."""
+    csrf = form_client.csrf  # type: ignore[attr-defined]
+    leaver = workspace.members[0].id
+    victim = workspace.id_of("Stop alerts")
+    db_scenario = store.create_scenario(
+        session,
+        team_id=workspace.team_id,
+        period_id=workspace.period_id,
+        name="Before the move",
+        changes=ScenarioChanges(days_off={leaver: 3}, forced_in=[victim]).to_json(),
+    )
+    assert form_client.delete(f"/api/v1/initiatives/{victim}").status_code == 204
+    assert form_client.delete(f"/api/v1/members/{leaver}").status_code == 204
+    shown = form_client.get(f"/scenarios/{db_scenario.id}")
+    assert "no longer on the team" in shown.text  # the page still says what no longer applies
+    saved = form_client.post(
+        "/plans", data=_save_fields(shown.text, "As it stands", csrf), follow_redirects=False
+    )
+    assert saved.status_code == 303, saved.text
