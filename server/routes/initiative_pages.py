@@ -264,7 +264,7 @@ async def edit_initiative(
     typed = form_echo(form)
     # Refused as typed: the form stays based on what it showed (its version is echoed too).
     shown = shown_as_posted(form, context["shown"])
-    if update_in is not None:
+    if update_in is not None and not errors:
         try:
             initiative_store.update_initiative(
                 session, initiative_id=initiative_id, initiative_in=update_in
@@ -294,6 +294,9 @@ def _added_effort_errors(errors: dict[str, str], team: str, effort: str) -> dict
     refused = [v for k, v in errors.items() if k.startswith("other_efforts")]
     if team and not effort.strip():
         out["add_effort"] = "Enter the team's effort in days, or choose no team."
+    elif effort.strip() and not team:
+        # Never dropped in silence: an effort typed without its team is refused.
+        out["add_effort"] = "Choose the team this effort is for, or clear the effort."
     elif refused:
         out["add_effort"] = effort_text_message(refused[0].split(": ", 1)[-1])
     return out

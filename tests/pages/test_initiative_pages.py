@@ -300,6 +300,19 @@ def test_another_teams_effort_is_added_and_changed_on_the_edit_page(
     assert (record.efforts[dock.id or 0].likely, len(record.efforts)) == (3, 2)
 
 
+def test_an_effort_typed_without_its_team_is_refused_not_dropped(
+    form_client: TestClient, session: Session, stored: Stored
+) -> None:
+    """Found in use: "Its effort" with Team left on "(none)" saved, and the 4 was lost."""
+    data = ADD | {"title": "Quay wall", "period_id": str(stored.period), "version": "1"}
+    response = _post(form_client, f"/initiatives/{stored.quay}", data | {"add_effort": "4"})
+    assert response.status_code == 422, response.text
+    error = parse(response.text).find("p", id="add_effort-error")
+    assert "Choose the team this effort is for" in error.text()
+    session.expire_all()
+    assert _record(session, stored.quay).row.version == 1
+
+
 @pytest.mark.parametrize(
     ("effort", "says"),
     [("", "Enter the team's effort in days"), ("lots", "Enter a number of days"), ("-2", "0")],
