@@ -25,6 +25,7 @@ from server.planning.curve_chart import (
     probed_curve,
     readout,
 )
+from server.planning.paste import decimal_point
 from server.planning.plans import LivePlan, PlanOptions, PlanRow, plan_for
 from server.planning.team_capacity import no_capacity_message
 from server.planning.undo import COVERS as UNDO_COVERS
@@ -176,7 +177,7 @@ def parse_whatif(params: Mapping[str, Sequence[str]]) -> tuple[WhatIf, dict[str,
             errors["confidence_pct"] = "Enter a confidence level between 1 and 99 %."
     if choice not in {"", "likely", "custom"}:
         try:
-            confidence = float(choice)
+            confidence = float(decimal_point(choice))  # 85,5 as typed where a comma is decimal
         except ValueError:
             errors["confidence_pct"] = f"“{choice}” is not a number; enter a level such as 85."
         else:
@@ -187,7 +188,7 @@ def parse_whatif(params: Mapping[str, Sequence[str]]) -> tuple[WhatIf, dict[str,
     delta_text = _first(params, "delta")
     if delta_text:
         try:
-            delta = float(delta_text)
+            delta = float(decimal_point(delta_text))
         except ValueError:
             errors["delta"] = f"“{delta_text}” is not a number of days."
         else:

@@ -569,6 +569,22 @@ def test_an_empty_plan_says_there_is_nothing_at_risk(
     assert note.text() == "Nothing is chosen yet, so there is nothing whose fit could be at risk."
 
 
+def test_the_plan_page_fields_read_a_decimal_comma(
+    form_client: TestClient, session: Session
+) -> None:
+    """Found in use: the custom level took 85.5 but refused 85,5, as the curve's ± field
+    refused 2,5, while every other typed field reads a decimal comma."""
+    setup = build(session)
+    comma = form_client.get(setup.url + "&confidence=custom&confidence_pct=85,5&delta=2,5")
+    point = form_client.get(setup.url + "&confidence=custom&confidence_pct=85.5&delta=2.5")
+    assert comma.status_code == 200, comma.text
+    assert "P85.5" in comma.text
+    assert parse_html(comma.text).by_id("total-value").get("value") == parse_html(point.text).by_id(
+        "total-value"
+    ).get("value")
+    assert "2.5 more days would" in comma.text
+
+
 def test_custom_confidence_and_bad_levels(form_client: TestClient, session: Session) -> None:
     setup = build(session)
     ok = form_client.get(setup.url + "&confidence=custom&confidence_pct=85")
