@@ -43,7 +43,7 @@ from server.selector.risk import (
 from server.store.initiatives import InitiativeRecord, list_initiatives
 from server.store.periods import get_period
 from server.store.teams import get_team
-from server.wording import counted, in_days, possessive
+from server.wording import counted, days, in_days, possessive
 
 FIT_DRAWS = 10_000
 # In the warning about rounding; stored plans' pages find it by this and say it once, their way.
@@ -467,11 +467,13 @@ def plan_for(
         )
     if selection.rounding.items_rounded_up:
         rounded = len(selection.rounding.items_rounded_up)
+        lost = selection.rounding.capacity_days_lost
+        # Said only when it happened: "rounded down by 0 days" read as a fault.
+        capacity_too = f"; capacity was rounded down by {days(lost)} days" if lost > 1e-9 else ""
         warnings.append(
             f"{counted(rounded, 'effort')} {'was' if rounded == 1 else 'were'}"
             f"{ROUNDING_WARNING_MARK}"
-            f"{options.resolution:g}-day resolution; capacity was rounded down by "
-            f"{selection.rounding.capacity_days_lost:g} days."
+            f"{options.resolution:g}-day resolution{capacity_too}."
         )
     warnings.extend(_kept_out_by_rounding(rows, passed, selection, options.resolution))
     if selection.forced_by_needs:

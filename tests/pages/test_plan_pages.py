@@ -375,7 +375,23 @@ def test_an_overrun_only_from_rounding_is_still_shown_on_the_bar(
     over = rects["seg seg-over"]
     assert float(over.get("x") or 0) + float(over.get("width") or 0) <= 1000 + 1e-6
     assert "seg seg-headroom" not in rects
-    assert root.by_id("total-headroom").get("value") == "0"
+    headroom = root.by_id("total-headroom")
+    assert headroom.get("value") == "-0.5"
+    assert headroom.text() == "-0.5"
+    assert "days once efforts are rounded up" in headroom.parent.text()
+    assert "over 100 % once rounded up" in root.find(cls="figures").text()  # type: ignore[union-attr]
+    assert "Over capacity by 0.5 days once efforts are rounded up" in " ".join(bar.split())
+    # Saved, the plan says the same, and neither a fit of single estimates nor a method.
+    saved = form_client.post(
+        "/api/v1/plans", json={"name": "Rounded", "team_id": team.id, "period_id": period.id}
+    )
+    assert saved.status_code == 201, saved.text
+    frozen = " ".join(page(form_client, f"/plans/{saved.json()['id']}").text().split())
+    assert "-0.5 days once efforts are rounded up" in frozen
+    assert "The pinned work does not fit, so there is no fit probability." in frozen
+    assert "the plan fits if the estimates hold" not in frozen
+    assert "Not solved, at a 0.5-day resolution: pinned work alone does not fit." in frozen
+    assert "by none" not in frozen
     assert "3 committed (pinned, or needed by pinned work), 0 not planned" in root.text()
 
 
