@@ -19,7 +19,15 @@ from server.planning.scenarios import changes_from_json, changes_in_words
 from server.wording import STATE_LABELS, audit_value, field_label, in_days, quoted
 
 # Keys kept for undo or for the record that the page does not list on their own.
-_NOT_LISTED = {"in_words", "position", "id", "version", "created_at", "updated_at"}
+_NOT_LISTED = {
+    "in_words",
+    "position",
+    "id",
+    "version",
+    "created_at",
+    "updated_at",
+    "inputs_digest",
+}
 
 # Old summaries named fields by their stored names; new ones use the labels.
 _SUMMARY_WORDS = {
@@ -28,14 +36,15 @@ _SUMMARY_WORDS = {
 
 
 def values_shown(entry: AuditEntry) -> bool:
-    """Edits, availability, removed members, deleted initiatives and deleted scenarios list
-    their values (a deleted initiative's are all that is left to make it again by hand); the
-    values of other entries are whole records, which the summary already names."""
+    """Edits, availability, removed members, deleted initiatives, scenarios and saved plans
+    list their values (a deleted initiative's are all that is left to make it again by hand);
+    the values of other entries are whole records, which the summary already names."""
     return entry.action.endswith((".update", ".set")) or entry.action in (
         "initiative.delete",
         "member.delete",
         "availability.delete",
         "scenario.delete",
+        "plan.delete",
     )
 
 

@@ -414,7 +414,7 @@ def read_plan(plan_id: PathId, session: SessionDep) -> SavedPlanPublic:
     "/plans/{plan_id}",
     status_code=status.HTTP_204_NO_CONTENT,
     description="Delete a saved plan and its published links, which answer 404 from then "
-    "on. The audit trail keeps its name, value and chosen initiatives.",
+    "on. The audit trail keeps its name, value and chosen initiatives (by title).",
 )
 def delete_plan(plan_id: PathId, session: SessionDep) -> None:
     store.delete_plan(session, plan_id=plan_id)

@@ -362,6 +362,7 @@ def delete_plan(session: Session, *, plan_id: int, actor: str = "") -> int:
     chosen), so a deleted plan is never lost without a trace."""
     db_plan = get_plan(session, plan_id=plan_id)
     links = list_publications(session, plan_id=plan_id)
+    titles = {i["key"]: i["title"] for i in db_plan.inputs.get("initiatives", [])}
     trace = audit.record(
         session,
         actor=actor,
@@ -373,10 +374,11 @@ def delete_plan(session: Session, *, plan_id: int, actor: str = "") -> int:
         + (f" and its {counted(len(links), 'published link')}" if links else ""),
         before={
             "name": db_plan.name,
-            "inputs_digest": db_plan.inputs_digest,
-            "value": db_plan.result.get("value"),
-            "chosen": db_plan.result.get("chosen"),
+            "plan_value": db_plan.result.get("value"),
+            # By title, as the plan showed them: the keys name rows that may be gone too.
+            "chosen": [titles.get(key, key) for key in db_plan.result.get("chosen", [])],
             "published_links": len(links),
+            "inputs_digest": db_plan.inputs_digest,
         },
     )
     for link in links:

@@ -36,7 +36,14 @@ def test_the_api_deletes_a_plan_and_its_links_and_the_audit_keeps_what_it_was(
     ).one()
     assert entry.entity_id == plan["id"]
     assert entry.before["name"] == "Sprint plan (wrong name)"
-    assert entry.before["chosen"] == plan["result"]["chosen"]
+    titles = {i["key"]: i["title"] for i in plan["inputs"]["initiatives"]}
+    assert entry.before["chosen"] == [titles[k] for k in plan["result"]["chosen"]]
+    # The Changes list shows what the plan was (found in use: its cells were empty).
+    rows = parse_html(client.get("/audit").text).find_all("tr")
+    row = " ".join(next(r for r in rows if "Deleted saved plan" in r.text()).text().split())
+    assert "chosen" in row
+    assert titles[plan["result"]["chosen"][0]] in row
+    assert f"plan value: {plan['result']['value']:g}" in row
     assert entry.before["published_links"] == 1
     assert "Deleted saved plan “Sprint plan (wrong name)” and its 1 published link" in entry.summary
     assert client.delete(f"/api/v1/plans/{plan['id']}").status_code == 404
