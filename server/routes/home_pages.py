@@ -11,12 +11,11 @@ from typing import Any
 
 from fastapi import APIRouter, Request
 from fastapi.responses import Response
-from sqlmodel import col, select
 from starlette.datastructures import FormData
 
 from server.deps import SessionDep, TemplatesDep
 from server.errors import LoadlineError
-from server.models import AuditEntry, Period
+from server.models import Period
 from server.routes.forms import (
     SPREAD_RULE,
     after_conflict,
@@ -78,11 +77,7 @@ def _home_notice(session: SessionDep, code: str | None) -> str | None:
         period = session.get(Period, int(raw_id))
         return f"{kind.capitalize()} period “{period.name}”." if period is not None else None
     if kind == "deleted-team":
-        entry = session.exec(
-            select(AuditEntry)
-            .where(AuditEntry.action == "team.delete", AuditEntry.entity_id == int(raw_id))
-            .order_by(col(AuditEntry.id).desc())
-        ).first()
+        entry = audit.last_entry(session, action="team.delete", entity_id=int(raw_id))
         return f"{entry.summary}." if entry is not None else None
     return None
 

@@ -173,3 +173,14 @@ def last_actor(session: Session, *, entity: str, entity_id: int | None) -> str:
         .limit(1)
     )
     return session.exec(query).first() or ""
+
+
+def last_entry(session: Session, *, action: str, entity_id: int) -> AuditEntry | None:
+    """The newest entry of an action on a row (a deleted team's, say), or None."""
+    query = (
+        select(AuditEntry)
+        .where(AuditEntry.action == action, AuditEntry.entity_id == entity_id)
+        .order_by(col(AuditEntry.id).desc())
+        .limit(1)
+    )
+    return session.exec(query).first()
