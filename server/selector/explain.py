@@ -5,8 +5,9 @@ For the plain and multiple-choice DPs the forced values come from prefix and suf
 binary program, and for pinned, ruled-out and blocked initiatives everywhere, they come
 from re-solving with the initiative forced in or out (one exact solve each). What would move
 with each initiative (what it displaces, what comes or goes with it) is read from the same
-tables for large plans; for page-sized ones (EXACT_MOVES_*) every initiative is re-solved
-forced, so that it is exactly the plan a what-if shows, tie rule included. A pinned
+tables for large plans; for page-sized ones (EXACT_MOVES_*) from one re-solve of each
+initiative forced (the values still from the tables), so that it is exactly the plan a
+what-if shows, tie rule included. A pinned
 initiative is re-solved with its pin removed and itself left out; a ruled-out one with the
 mark removed and itself forced in.
 """
