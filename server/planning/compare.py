@@ -19,6 +19,7 @@ from pydantic import BaseModel
 
 from server.errors import InputError
 from server.models import SavedPlan
+from server.planning.plans import stated_headroom
 from server.planning.snapshots import PlanView, view_of
 from server.schemas import MAX_ID
 
@@ -184,7 +185,9 @@ def _compared(label: str, column: Column, view: PlanView) -> ComparedPlan:
         value=r.value,
         effort=r.effort,
         capacity=r.capacity,
-        headroom=r.headroom,
+        headroom=stated_headroom(
+            feasible=r.feasible, headroom=r.headroom, excess_days=r.excess_days
+        ),
         utilisation=r.utilisation,
         confidence=r.confidence,
         fit_probability=r.fit.probability if r.fit is not None else None,

@@ -10,7 +10,7 @@ from sqlmodel import Session
 from server.message_titles import titled_refusal
 from server.models import Period, Team
 from server.planning.joint import JointPlan, joint_plan_for
-from server.planning.plans import PlanOptions, plan_for
+from server.planning.plans import PlanOptions, plan_for, stated_headroom
 from server.selector import SelectorInputError
 from server.store.initiatives import list_initiatives
 from server.store.periods import get_period
@@ -122,7 +122,11 @@ def _summary(session: Session, team: Team, period_id: int, resolution: float) ->
         value=selection.value,
         effort=selection.effort,
         capacity=selection.capacity,
-        headroom=selection.headroom,
+        headroom=stated_headroom(
+            feasible=selection.feasible,
+            headroom=selection.headroom,
+            excess_days=selection.excess_days,
+        ),
         fit_label=plan.fit.label() if plan.fit is not None else None,
         chosen_ids=frozenset(row.id for row in plan.rows if row.chosen),
         message=selection.infeasibility,

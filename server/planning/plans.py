@@ -399,6 +399,15 @@ def _kept_out_by_rounding(
     ]
 
 
+def stated_headroom(*, feasible: bool, headroom: float, excess_days: float | None) -> float:
+    """The headroom a page or download states: as estimated, except where pinned work fits
+    as estimated but overruns once efforts are rounded up to the resolution; then the rounded
+    overrun, below zero, so that no figure shows room beside "pinned work does not fit"."""
+    if not feasible and headroom > 0 and excess_days:
+        return -excess_days
+    return headroom
+
+
 def plan_for(
     session: Session, *, team_id: int, period_id: int, options: PlanOptions | None = None
 ) -> LivePlan:

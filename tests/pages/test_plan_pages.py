@@ -392,6 +392,13 @@ def test_an_overrun_only_from_rounding_is_still_shown_on_the_bar(
     assert "the plan fits if the estimates hold" not in frozen
     assert "Not solved, at a 0.5-day resolution: pinned work alone does not fit." in frozen
     assert "by none" not in frozen
+    # The overview and a comparison state the same headroom (found in use: 0.1 days there).
+    overview = page(form_client, f"/periods/{period.id}/overview")
+    cells = [td.text() for td in overview.by_id(f"team-{team.id}").find_all("td")]
+    assert "-0.5" in cells
+    compared = page(form_client, f"/compare?plans={saved.json()['id']},live")
+    row = next(tr for tr in compared.find_all("tr") if "Headroom (days)" in tr.text())
+    assert [td.text() for td in row.find_all("td")] == ["-0.5", "-0.5"]
     assert "3 committed (pinned, or needed by pinned work), 0 not planned" in root.text()
 
 
